@@ -1,0 +1,443 @@
+"""The data table: read, matched to the plan's factors, and counted.
+
+Formats: CSV and TSV (by extension, UTF-8 with or without a byte-order mark; ``;`` with decimal
+commas via ``[data] delimiter = ";"`` and ``decimal = ","``), Parquet (pyarrow), and a pandas
+DataFrame from Python.
+
+Two promises:
+
+* **Nothing is dropped silently.** Rows with a missing or non-numeric outcome, a missing factor
+  value or an explicitly excluded level are counted by reason, with their row numbers.
+* **Decimal-exact intake of text.** A value such as ``1000000000000.4`` has no exact float64;
+  converting it first and centring later loses about 4 of its 16 digits. For text files the
+  outcome is therefore read as decimal digits, a pivot (the first valid value) is subtracted in
+  exact decimal arithmetic, and only the difference becomes float64. Input that is already float64
+  (Parquet, a DataFrame) cannot be repaired this way: its accuracy is capped by the float64
+  values it arrives as. See McCullough (1998), The American Statistician 52(4), 358-366, on why
+  such "constant leading digits" data (NIST StRD SmLs07-09) defeat naive software.
+
+Input files are opened for reading only.
+"""
+
+from __future__ import annotations
+
+import csv
+import decimal
+import difflib
+import hashlib
+import io
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Sequence
+
+import numpy as np
+
+from reporter.errors import DataError
+from reporter.intake.plan import Plan, level_key
+
+_CTX = decimal.Context(prec=60, traps=[decimal.InvalidOperation])
+
+
+@dataclass(frozen=True)
+class Exclusion:
+    """Rows left out for one reason, with the first few row numbers as the file counts them."""
+
+    reason: str
+    count: int
+    rows: tuple[int, ...]
+    detail: str = ""
+
+
+@dataclass(frozen=True)
+class Dataset:
+    """The analysable rows, coded against the plan's factor levels.
+
+    ``y`` holds the outcome minus ``pivot`` (float64): add ``pivot`` back for reporting.
+    ``levels`` holds, per factor, the index of each row's level in the plan's list.
+    ``rows`` are the rows' numbers as a person finds them: the line number in a text file
+    (the header is line 1), the 1-based row number in a Parquet file or a DataFrame.
+    ``excluded_levels`` holds the level indices of rows dropped for their outcome (-1 where
+    unknown), so that missing outcomes can be counted by cell.
+    """
+
+    source: str
+    sha256: str | None
+    format: str
+    outcome: str
+    factor_names: tuple[str, ...]
+    y: np.ndarray
+    pivot: float
+    pivot_text: str
+    exact_decimal: bool
+    levels: np.ndarray
+    rows: np.ndarray
+    n_read: int
+    exclusions: tuple[Exclusion, ...]
+    dropped_outcome_levels: np.ndarray
+
+    @property
+    def n(self) -> int:
+        return int(self.y.shape[0])
+
+    def outcome_values(self) -> np.ndarray:
+        """The outcome on its original scale (float64)."""
+        return self.y + self.pivot
+
+
+# ---------------------------------------------------------------------------------------------
+# Public entry points
+
+
+def load_data(plan: Plan) -> Dataset:
+    """Read the data file named by the plan and match it to the plan's factors."""
+    path = plan.data.path
+    suffix = path.suffix.lower()
+    if not path.exists():
+        raise DataError(
+            f"{path}: the data file does not exist. Check [data] path in the plan "
+            "(it is relative to the plan file)."
+        )
+    if path.is_dir():
+        raise DataError(f"{path}: is a folder; [data] path must name a data file.")
+    if suffix == ".parquet":
+        return _from_parquet(plan, path)
+    delimiter = plan.data.delimiter or ("\t" if suffix == ".tsv" else ",")
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise DataError(f"{path}: cannot be read ({exc.strerror}).") from None
+    sha = hashlib.sha256(raw).hexdigest()
+    header, rows, lines = _parse_text(raw, str(path), delimiter)
+    return _build(plan, str(path), sha, suffix.lstrip("."), header, rows, lines, text=True)
+
+
+def data_from_frame(plan: Plan, frame: Any, name: str = "DataFrame") -> Dataset:
+    """Match a pandas DataFrame (or any mapping of column name to sequence) to the plan."""
+    columns = [str(c) for c in frame.columns] if hasattr(frame, "columns") else list(frame)
+    needed = _needed_columns(plan, columns, name)
+    n = len(frame[needed[0]]) if needed else 0
+    col_values: dict[str, Sequence[Any]] = {}
+    for c in needed:
+        col = frame[c]
+        col_values[c] = col.to_numpy() if hasattr(col, "to_numpy") else np.asarray(col)
+    return _build_columns(plan, name, None, "dataframe", col_values, n, row_numbers=np.arange(1, n + 1, dtype=np.int64))
+
+
+# ---------------------------------------------------------------------------------------------
+# Text files
+
+
+def _parse_text(raw: bytes, source: str, delimiter: str):
+    if not raw.strip():
+        raise DataError(f"{source}: the file is empty. It needs a header row and data rows.")
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise DataError(
+            f"{source}: is not UTF-8 text: line {line} holds the byte 0x{raw[exc.start]:02x} "
+            f"(file offset {exc.start}). Save the file as UTF-8 (for example 'CSV UTF-8' in a "
+            "spreadsheet program) and run again."
+        ) from None
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    try:
+        header = next(reader)
+    except StopIteration:
+        raise DataError(f"{source}: the file is empty.") from None
+    except csv.Error as exc:
+        raise DataError(f"{source}, line 1: cannot be read as delimited text ({exc}).") from None
+    header = [h.strip() for h in header]
+    rows: list[list[str]] = []
+    lines: list[int] = []
+    try:
+        for rec in reader:
+            if not rec or (len(rec) == 1 and not rec[0].strip()):
+                continue
+            rows.append(rec)
+            lines.append(reader.line_num)
+    except csv.Error as exc:
+        raise DataError(f"{source}, line {reader.line_num}: cannot be read ({exc}).") from None
+    if not rows:
+        raise DataError(f"{source}: has a header but no data rows.")
+    return header, rows, lines
+
+
+def _build(plan, source, sha, fmt, header, rows, lines, *, text):
+    needed = _needed_columns(plan, header, source)
+    idx = {name: header.index(name) for name in needed}
+    width = len(header)
+    for rec, line in zip(rows, lines):
+        if len(rec) != width:
+            raise DataError(
+                f"{source}, line {line}: has {len(rec)} fields but the header has {width}. "
+                "Check for a stray separator or an unquoted text with the separator in it."
+            )
+    cols = {name: [rec[i] for rec in rows] for name, i in idx.items()}
+    line_arr = np.asarray(lines, dtype=np.int64)
+    return _build_columns(plan, source, sha, fmt, cols, len(rows), row_numbers=line_arr)
+
+
+def _needed_columns(plan: Plan, columns: Sequence[str], source: str) -> list[str]:
+    needed = [plan.data.outcome] + [f.data_column for f in plan.factors]
+    for name in needed:
+        if name not in columns:
+            role = "outcome" if name == plan.data.outcome else "factor"
+            hint = difflib.get_close_matches(name, list(columns), n=1, cutoff=0.6)
+            fix = f" Did you mean '{hint[0]}'?" if hint else ""
+            shown = ", ".join(f"'{c}'" for c in columns[:20])
+            raise DataError(
+                f"{source}: has no column '{name}' (the {role} named in the plan). "
+                f"Its columns are {shown}.{fix}"
+            )
+    return needed
+
+
+# ---------------------------------------------------------------------------------------------
+# Columns -> Dataset
+
+
+def _build_columns(plan: Plan, source, sha, fmt, cols, n, *, row_numbers) -> Dataset:
+    word = "line" if fmt in ("csv", "tsv", "txt") else "row"
+
+    def line_of(i: int) -> str:
+        return f"{word} {int(row_numbers[i])}"
+
+    keep = np.ones(n, dtype=bool)
+    reasons: list[tuple[str, np.ndarray, str]] = []
+    level_idx = np.empty((n, len(plan.factors)), dtype=np.int64)
+    excluded_level = np.zeros(n, dtype=bool)
+    for j, f in enumerate(plan.factors):
+        codes, missing, excluded = _match_levels(plan, f, cols[f.data_column], source, line_of)
+        level_idx[:, j] = codes
+        if missing.any():
+            reasons.append((f"missing value of factor '{f.name}'", missing & keep, ""))
+            keep &= ~missing
+        if excluded.any():
+            listed = ", ".join(f'"{e}"' for e in f.exclude)
+            reasons.append(
+                (f"level of '{f.name}' excluded by the plan", excluded & keep, f"excluded: {listed}")
+            )
+            keep &= ~excluded
+            excluded_level |= excluded
+
+    raw_outcome = cols[plan.data.outcome]
+    y, status, pivot, pivot_text, exact = _read_outcome(raw_outcome, plan, keep)
+    missing_y = (status == 1) & keep
+    bad_y = (status == 2) & keep
+    if missing_y.any():
+        reasons.append((f"missing outcome '{plan.data.outcome}'", missing_y, ""))
+    if bad_y.any():
+        first = np.flatnonzero(bad_y)[:5]
+        shown = "; ".join(f'{line_of(int(i))}: "{str(raw_outcome[i]).strip()}"' for i in first)
+        reasons.append((f"non-numeric outcome '{plan.data.outcome}'", bad_y, shown))
+    dropped_outcome = missing_y | bad_y
+    keep &= ~dropped_outcome
+
+    exclusions = tuple(
+        Exclusion(
+            reason=r,
+            count=int(mask.sum()),
+            rows=tuple(int(row_numbers[i]) for i in np.flatnonzero(mask)[:20]),
+            detail=d,
+        )
+        for r, mask, d in reasons
+        if mask.any()
+    )
+    dropped_levels = level_idx[dropped_outcome].copy()
+    kept_rows = np.flatnonzero(keep)
+    rows = np.ascontiguousarray(row_numbers[kept_rows])
+    y_kept = np.ascontiguousarray(y[keep])
+    levels_kept = np.ascontiguousarray(level_idx[keep])
+    for arr in (y_kept, levels_kept, rows, dropped_levels):
+        arr.setflags(write=False)
+    return Dataset(
+        source=source,
+        sha256=sha,
+        format=fmt,
+        outcome=plan.data.outcome,
+        factor_names=tuple(f.name for f in plan.factors),
+        y=y_kept,
+        pivot=pivot,
+        pivot_text=pivot_text,
+        exact_decimal=exact,
+        levels=levels_kept,
+        rows=rows,
+        n_read=n,
+        exclusions=exclusions,
+        dropped_outcome_levels=dropped_levels,
+    )
+
+
+def _as_texts(values) -> tuple[np.ndarray, np.ndarray]:
+    """Unique values of a column and the inverse index, without a per-row Python loop
+    where numpy can do it."""
+    arr = np.asarray(values)
+    if arr.dtype.kind in "fiub":
+        uniq, inv = np.unique(arr, return_inverse=True)
+        return uniq, inv.reshape(-1)
+    obj = np.asarray([("" if v is None else str(v)) for v in arr.tolist()], dtype=object) if arr.dtype.kind == "O" else arr.astype(str)
+    uniq, inv = np.unique(obj.astype(str), return_inverse=True)
+    return uniq, inv.reshape(-1)
+
+
+def _value_text(v) -> str | None:
+    if v is None:
+        return None
+    if isinstance(v, (float, np.floating)):
+        if math.isnan(v):
+            return None
+        return repr(float(v))
+    if isinstance(v, (np.integer,)):
+        return str(int(v))
+    return str(v).strip()
+
+
+@dataclass(frozen=True)
+class _Encoded:
+    """A column already split into its distinct values and each row's index into them."""
+
+    uniq: np.ndarray
+    inv: np.ndarray
+
+    def __len__(self) -> int:
+        return int(self.inv.shape[0])
+
+
+def _match_levels(plan, factor, values, source, line_of):
+    if isinstance(values, _Encoded):
+        uniq, inv = values.uniq, values.inv
+    else:
+        uniq, inv = _as_texts(values)
+    plan_keys = {level_key(lv): i for i, lv in enumerate(factor.levels)}
+    excl_keys = {level_key(e) for e in factor.exclude}
+    code_of_uniq = np.empty(len(uniq), dtype=np.int64)
+    missing_u = np.zeros(len(uniq), dtype=bool)
+    excluded_u = np.zeros(len(uniq), dtype=bool)
+    unknown: list[int] = []
+    for u, v in enumerate(uniq.tolist()):
+        t = _value_text(v)
+        if t is None or t == "" or t in plan.data.missing:
+            missing_u[u] = True
+            code_of_uniq[u] = -1
+            continue
+        k = level_key(t)
+        if k in plan_keys:
+            code_of_uniq[u] = plan_keys[k]
+        elif k in excl_keys:
+            excluded_u[u] = True
+            code_of_uniq[u] = -1
+        else:
+            unknown.append(u)
+            code_of_uniq[u] = -1
+    if unknown:
+        parts = []
+        for u in unknown[:10]:
+            where = np.flatnonzero(inv == u)
+            parts.append(f'"{_value_text(uniq[u])}" ({where.size} rows, first at {line_of(int(where[0]))})')
+        more = f" and {len(unknown) - 10} more" if len(unknown) > 10 else ""
+        listed = ", ".join(f'"{lv}"' for lv in factor.levels)
+        raise DataError(
+            f"{source}: column '{factor.data_column}' holds levels that the plan does not list for "
+            f"factor '{factor.name}': {', '.join(parts)}{more}. The plan lists {listed}. Add them to "
+            f"levels, or leave them out on purpose with exclude = [...] in that [[factors]] table."
+        )
+    return code_of_uniq[inv], missing_u[inv], excluded_u[inv]
+
+
+def _read_outcome(values, plan, keep):
+    """Return (y - pivot, status, pivot, pivot_text, exact) with status 0 ok, 1 missing, 2 non-numeric."""
+    arr = np.asarray(values)
+    n = arr.shape[0]
+    status = np.zeros(n, dtype=np.int8)
+    if arr.dtype.kind in "fiub":
+        y = arr.astype(np.float64)
+        status[np.isnan(y)] = 1
+        status[np.isinf(y)] = 2
+        ok = (status == 0) & keep
+        pivot = float(y[np.flatnonzero(ok)[0]]) if ok.any() else 0.0
+        y = np.where(status == 0, y - pivot, np.nan)
+        return y, status, pivot, repr(pivot), False
+    return _exact_from_text(arr, plan, keep, status)
+
+
+def _exact_from_text(arr, plan, keep, status):
+    """Subtract a decimal pivot exactly before conversion to float64."""
+    comma = plan.data.decimal == ","
+    missing = set(plan.data.missing)
+    n = arr.shape[0]
+    decs: list[decimal.Decimal | None] = [None] * n
+    for i, v in enumerate(arr.tolist()):
+        t = "" if v is None else str(v).strip()
+        if t in missing or t.lower() in ("na", "nan", "null", "none"):
+            status[i] = 1
+            continue
+        if comma:
+            t = t.replace(",", ".")
+        t = t.replace("\u2212", "-")
+        try:
+            d = decimal.Decimal(t)
+        except decimal.InvalidOperation:
+            status[i] = 2
+            continue
+        if not d.is_finite():
+            status[i] = 2 if d.is_infinite() else 1
+            continue
+        decs[i] = d
+    ok = np.flatnonzero((status == 0) & keep)
+    if ok.size == 0:
+        return np.full(n, np.nan), status, 0.0, "0", True
+    pivot = decs[int(ok[0])]
+    y = np.fromiter(
+        (float(_CTX.subtract(d, pivot)) if d is not None else math.nan for d in decs),
+        dtype=np.float64,
+        count=n,
+    )
+    return y, status, float(pivot), str(pivot), True
+
+
+# ---------------------------------------------------------------------------------------------
+# Parquet
+
+
+def _from_parquet(plan: Plan, path: Path) -> Dataset:
+    try:
+        import pyarrow as pa
+        import pyarrow.compute as pc
+        import pyarrow.parquet as pq
+    except ImportError:
+        raise DataError(
+            f"{path}: reading Parquet needs pyarrow. Install it with: pip install 'anova-report[parquet]'"
+        ) from None
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    try:
+        pf = pq.ParquetFile(path)
+    except Exception as exc:  # pyarrow raises several types for a damaged file
+        raise DataError(f"{path}: is not a readable Parquet file ({exc}).") from None
+    columns = pf.schema_arrow.names
+    needed = _needed_columns(plan, columns, str(path))
+    table = pf.read(columns=list(dict.fromkeys(needed)))
+    n = table.num_rows
+    if n == 0:
+        raise DataError(f"{path}: has no data rows.")
+    cols: dict[str, Any] = {}
+    for f in plan.factors:
+        col = table.column(f.data_column)
+        if pa.types.is_dictionary(col.type):
+            col = col.cast(col.type.value_type)
+        enc = pc.dictionary_encode(col).combine_chunks()
+        uniq = np.asarray(enc.dictionary.to_pylist(), dtype=object)
+        idx = enc.indices.to_numpy(zero_copy_only=False)
+        if enc.null_count:
+            idx = np.where(enc.is_null().to_numpy(zero_copy_only=False), len(uniq), idx)
+            uniq = np.append(uniq, None)
+        cols[f.data_column] = _Encoded(uniq, idx.astype(np.int64))
+    out = table.column(plan.data.outcome)
+    if pa.types.is_integer(out.type) or pa.types.is_floating(out.type) or pa.types.is_decimal(out.type):
+        cols[plan.data.outcome] = out.cast(pa.float64()).to_numpy(zero_copy_only=False)
+    else:
+        cols[plan.data.outcome] = np.asarray(out.cast(pa.string()).to_pylist(), dtype=object)
+    return _build_columns(plan, str(path), h.hexdigest(), "parquet", cols, n, row_numbers=np.arange(1, n + 1, dtype=np.int64))

@@ -1,0 +1,515 @@
+"""The plan file: a TOML document that states the design, the data and the hypotheses.
+
+:func:`load_plan` reads a plan with :mod:`tomllib`, checks every key against the rules below and
+returns a frozen :class:`Plan`. A message names the key path (``hypotheses[2].means``, counted from
+1 as a person counts the ``[[hypotheses]]`` tables), the line where it sits, the rule it broke, the
+value received and what to write instead. Unknown keys are errors with a "did you mean" hint.
+Defaults live in :mod:`reporter.intake.defaults`.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import math
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Mapping
+
+from reporter.errors import PlanError
+from reporter.intake import defaults as D
+
+
+@dataclass(frozen=True)
+class DataSpec:
+    """Where the data are and how to read them."""
+
+    path: Path
+    outcome: str
+    delimiter: str | None = None
+    decimal: str = "."
+    missing: tuple[str, ...] = tuple(D.DATA_DEFAULTS["missing"])  # type: ignore[arg-type]
+
+
+@dataclass(frozen=True)
+class FactorSpec:
+    """A between-subjects factor: its column and its levels in report order."""
+
+    name: str
+    levels: tuple[str, ...]
+    exclude: tuple[str, ...] = ()
+    column: str | None = None
+
+    @property
+    def data_column(self) -> str:
+        return self.column or self.name
+
+
+@dataclass(frozen=True)
+class HypothesisSpec:
+    """One ``[[hypotheses]]`` table: a statement about means, or a named effect."""
+
+    name: str
+    means: str | None
+    effect: str | None
+    role: str = "planned"
+    description: str | None = None
+    index: int = 0  # 1-based position in the plan
+
+    @property
+    def key_path(self) -> str:
+        return f"hypotheses[{self.index}]"
+
+
+@dataclass(frozen=True)
+class AnalysisSpec:
+    """The ``[analysis]`` table with every default filled in."""
+
+    alpha: float = 0.05
+    parameterization: str = "cell-means"
+    ss_type: str = "III"
+    correction: str = "holm"
+    posthoc: tuple[str, ...] = ()
+    posthoc_on: str = "cells"
+    control: str | None = None
+    unequal_variances: str = "classical"
+    permutations: int = 10_000
+    seed: int = 20261202
+
+    @property
+    def confidence(self) -> float:
+        return 1.0 - self.alpha
+
+
+@dataclass(frozen=True)
+class StudySpec:
+    """Optional methods details that the report quotes in its methods section."""
+
+    sample_size_rationale: str | None = None
+    allocation: str | None = None
+    blinding: str | None = None
+    stopping_rule: str | None = None
+    exclusion_rules: str | None = None
+
+
+@dataclass(frozen=True)
+class Plan:
+    """A validated plan. ``source`` is the plan file (None for a plan built in Python)."""
+
+    title: str
+    data: DataSpec
+    factors: tuple[FactorSpec, ...]
+    hypotheses: tuple[HypothesisSpec, ...]
+    analysis: AnalysisSpec = field(default_factory=AnalysisSpec)
+    study: StudySpec = field(default_factory=StudySpec)
+    summary: str | None = None
+    source: Path | None = None
+    sha256: str | None = None
+
+    def factor(self, name: str) -> FactorSpec:
+        for f in self.factors:
+            if f.name == name:
+                return f
+        raise KeyError(name)
+
+
+# ---------------------------------------------------------------------------------------------
+# Reading and validation
+
+_TOP_KEYS = ("title", "summary", "data", "factors", "analysis", "hypotheses", "study")
+_DATA_KEYS = ("path", "outcome", "delimiter", "decimal", "missing")
+_FACTOR_KEYS = ("name", "levels", "exclude", "column")
+_HYP_KEYS = ("name", "means", "effect", "role", "description")
+_STUDY_KEYS = tuple(StudySpec.__dataclass_fields__)
+
+
+class _Locator:
+    """Finds the line of a key path in the plan text, for messages (best effort)."""
+
+    _header = re.compile(r"^\s*(\[\[?)\s*([A-Za-z_][\w-]*)\s*\]\]?")
+
+    def __init__(self, text: str | None):
+        self.lines = text.splitlines() if text else []
+
+    def line_of(self, table: str | None, index: int | None, key: str | None) -> int | None:
+        if not self.lines:
+            return None
+        start, seen = 0, 0
+        if table is not None:
+            start = None
+            for i, line in enumerate(self.lines):
+                m = self._header.match(line)
+                if m and m.group(2) == table:
+                    seen += 1
+                    if index is None or seen == index:
+                        start = i
+                        break
+            if start is None:
+                return None
+            if key is None:
+                return start + 1
+            start += 1
+        for i in range(start, len(self.lines)):
+            line = self.lines[i]
+            if self._header.match(line):
+                break
+            if key is not None and re.match(rf"^\s*{re.escape(key)}\s*=", line):
+                return i + 1
+        return None
+
+
+class _Checker:
+    def __init__(self, source: str, text: str | None):
+        self.source = source
+        self.loc = _Locator(text)
+
+    def fail(self, path: str, rule: str, *, table=None, index=None, key=None) -> PlanError:
+        line = self.loc.line_of(table, index, key)
+        where = f"{self.source}, line {line}" if line else self.source
+        return PlanError(f"{where}: '{path}' {rule}")
+
+    def unknown_keys(self, mapping: Mapping, allowed: tuple[str, ...], prefix: str, **loc) -> None:
+        for key in mapping:
+            if key not in allowed:
+                hint = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
+                fix = f" Did you mean '{hint[0]}'?" if hint else f" Allowed keys: {', '.join(allowed)}."
+                path = f"{prefix}{key}"
+                raise self.fail(path, f"is not a known key.{fix}", key=key, **loc)
+
+    def text(self, mapping, key, path, *, required=True, **loc) -> str | None:
+        if key not in mapping:
+            if required:
+                where = path.rsplit(".", 1)[0] if "." in path else "the top level"
+                raise self.fail(path, f"is required: add {key} = \"...\" to {where}.", **loc)
+            return None
+        value = mapping[key]
+        if not isinstance(value, str):
+            raise self.fail(path, f"must be text in quotes (got {_show(value)}).", key=key, **loc)
+        if not value.strip():
+            raise self.fail(path, "must not be empty.", key=key, **loc)
+        return value
+
+    def choice(self, mapping, key, path, choices, default, **loc):
+        value = mapping.get(key, default)
+        if value not in choices:
+            allowed = ", ".join(f'"{c}"' for c in choices)
+            hint = (
+                difflib.get_close_matches(str(value), choices, n=1, cutoff=0.5)
+                if isinstance(value, str)
+                else []
+            )
+            fix = f" Did you mean \"{hint[0]}\"?" if hint else ""
+            raise self.fail(path, f"must be one of {allowed} (got {_show(value)}).{fix}", key=key, **loc)
+        return value
+
+
+def _show(value: Any) -> str:
+    if isinstance(value, str):
+        return f'"{value}"'
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, dict):
+        return "a table"
+    if isinstance(value, list):
+        return "a list"
+    return repr(value)
+
+
+def level_text(value: Any) -> str:
+    """The text form of a level written in the plan (numbers as a person writes them)."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, int):
+        return str(value)
+    if isinstance(value, float):
+        return repr(value) if not value.is_integer() else repr(value)
+    return str(value).strip()
+
+
+def load_plan(path: str | Path) -> Plan:
+    """Read and validate the plan file at ``path``; data paths resolve relative to it."""
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise PlanError(f"{path}: the plan file does not exist. Check the path.") from None
+    except IsADirectoryError:
+        raise PlanError(f"{path}: is a folder; give the path of a plan file (.toml).") from None
+    except OSError as exc:
+        raise PlanError(f"{path}: cannot be read ({exc.strerror}).") from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise PlanError(
+            f"{path}: is not UTF-8 text (byte {exc.start} is 0x{raw[exc.start]:02x}). "
+            "Save the plan as UTF-8."
+        ) from None
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise PlanError(f"{path}: is not valid TOML: {exc}.") from None
+    plan = plan_from_dict(doc, base_dir=path.parent, source=str(path), text=text)
+    return _replace_source(plan, path.resolve(), hashlib.sha256(raw).hexdigest())
+
+
+def _replace_source(plan: Plan, source: Path, sha: str) -> Plan:
+    from dataclasses import replace
+
+    return replace(plan, source=source, sha256=sha)
+
+
+def plan_from_dict(
+    doc: Mapping[str, Any],
+    base_dir: str | Path = ".",
+    source: str = "plan",
+    text: str | None = None,
+) -> Plan:
+    """Validate a plan given as a mapping (the parsed TOML); see :func:`load_plan`."""
+    ck = _Checker(source, text)
+    ck.unknown_keys(doc, _TOP_KEYS, "")
+    title = ck.text(doc, "title", "title")
+    summary = ck.text(doc, "summary", "summary", required=False)
+
+    data = _read_data(doc, ck, Path(base_dir))
+    factors = _read_factors(doc, ck, data)
+    analysis = _read_analysis(doc, ck, factors)
+    hypotheses = _read_hypotheses(doc, ck)
+    study = _read_study(doc, ck)
+    return Plan(
+        title=title,
+        summary=summary,
+        data=data,
+        factors=factors,
+        hypotheses=hypotheses,
+        analysis=analysis,
+        study=study,
+    )
+
+
+def _table(doc, key, ck, *, required) -> Mapping[str, Any]:
+    if key not in doc:
+        if required:
+            raise ck.fail(key, f"is required: add a [{key}] table.")
+        return {}
+    value = doc[key]
+    if not isinstance(value, dict):
+        raise ck.fail(key, f"must be a table, written [{key}] (got {_show(value)}).", key=key)
+    return value
+
+
+def _read_data(doc, ck: _Checker, base_dir: Path) -> DataSpec:
+    t = _table(doc, "data", ck, required=True)
+    loc = {"table": "data"}
+    ck.unknown_keys(t, _DATA_KEYS, "data.", **loc)
+    rel = ck.text(t, "path", "data.path", **loc)
+    outcome = ck.text(t, "outcome", "data.outcome", **loc).strip()
+    path = Path(rel)
+    if not path.is_absolute():
+        path = base_dir / path
+    if path.suffix.lower() not in D.DATA_SUFFIXES:
+        raise ck.fail(
+            "data.path",
+            f"must end in .csv, .tsv or .parquet (got \"{rel}\").",
+            key="path",
+            **loc,
+        )
+    delimiter = t.get("delimiter", D.DATA_DEFAULTS["delimiter"])
+    if delimiter is not None and (not isinstance(delimiter, str) or len(delimiter) != 1):
+        raise ck.fail(
+            "data.delimiter",
+            f'must be one character such as ";" or "\\t" (got {_show(delimiter)}).',
+            key="delimiter",
+            **loc,
+        )
+    decimal = ck.choice(t, "decimal", "data.decimal", (".", ","), ".", **loc)
+    if decimal == "," and (delimiter in (None, ",")) and path.suffix.lower() == ".csv":
+        raise ck.fail(
+            "data.decimal",
+            'is "," but the field separator is also ",". Add delimiter = ";" to [data].',
+            key="decimal",
+            **loc,
+        )
+    missing = t.get("missing", D.DATA_DEFAULTS["missing"])
+    if not isinstance(missing, (list, tuple)) or not all(isinstance(m, str) for m in missing):
+        raise ck.fail(
+            "data.missing",
+            f'must be a list of texts such as ["", "NA"] (got {_show(missing)}).',
+            key="missing",
+            **loc,
+        )
+    return DataSpec(
+        path=path,
+        outcome=outcome,
+        delimiter=delimiter,
+        decimal=decimal,
+        missing=tuple(m.strip() for m in missing),
+    )
+
+
+def _read_factors(doc, ck: _Checker, data: DataSpec) -> tuple[FactorSpec, ...]:
+    if "factors" not in doc:
+        raise ck.fail("factors", "is required: add at least one [[factors]] table with name and levels.")
+    raw = doc["factors"]
+    if not isinstance(raw, list) or not all(isinstance(f, dict) for f in raw):
+        raise ck.fail("factors", "must be written as [[factors]] tables, one per factor.", key="factors")
+    if not raw:
+        raise ck.fail("factors", "must hold at least one factor.")
+    out: list[FactorSpec] = []
+    names: set[str] = set()
+    for i, f in enumerate(raw, start=1):
+        loc = {"table": "factors", "index": i}
+        p = f"factors[{i}]."
+        ck.unknown_keys(f, _FACTOR_KEYS, p, **loc)
+        name = ck.text(f, "name", p + "name", **loc).strip()
+        if name in names:
+            raise ck.fail(p + "name", f'repeats the factor name "{name}"; each factor needs its own name.', key="name", **loc)
+        if name == data.outcome:
+            raise ck.fail(p + "name", f'is "{name}", which is also the outcome column.', key="name", **loc)
+        if name.lower() == "mean" or " x " in name:
+            raise ck.fail(p + "name", f'"{name}" is reserved in hypotheses; choose another name.', key="name", **loc)
+        names.add(name)
+        if "levels" not in f:
+            raise ck.fail(p + "levels", 'is required: list the levels in report order, e.g. levels = ["a", "b"].', **loc)
+        levels = f["levels"]
+        if not isinstance(levels, list):
+            raise ck.fail(p + "levels", f"must be a list (got {_show(levels)}).", key="levels", **loc)
+        texts = []
+        for j, lv in enumerate(levels, start=1):
+            if not isinstance(lv, (str, int, float)) or isinstance(lv, bool):
+                raise ck.fail(f"{p}levels[{j}]", f"must be text or a number (got {_show(lv)}).", key="levels", **loc)
+            if isinstance(lv, float) and not math.isfinite(lv):
+                raise ck.fail(f"{p}levels[{j}]", f"must be a finite number (got {lv!r}).", key="levels", **loc)
+            t = level_text(lv)
+            if not t:
+                raise ck.fail(f"{p}levels[{j}]", "must not be empty.", key="levels", **loc)
+            texts.append(t)
+        if len(texts) < 2:
+            raise ck.fail(p + "levels", f"must list at least 2 levels (got {len(texts)}).", key="levels", **loc)
+        seen: dict[str, int] = {}
+        for j, t in enumerate(texts, start=1):
+            k = _level_key(t)
+            if k in seen:
+                raise ck.fail(
+                    p + "levels",
+                    f'lists the level "{t}" twice (positions {seen[k]} and {j}); each level once.',
+                    key="levels",
+                    **loc,
+                )
+            seen[k] = j
+        exclude = f.get("exclude", [])
+        if not isinstance(exclude, list) or not all(isinstance(e, (str, int, float)) for e in exclude):
+            raise ck.fail(p + "exclude", f"must be a list of levels to leave out (got {_show(exclude)}).", key="exclude", **loc)
+        ex = tuple(level_text(e) for e in exclude)
+        for e in ex:
+            if _level_key(e) in seen:
+                raise ck.fail(p + "exclude", f'names "{e}", which is also in levels; a level is either analysed or excluded.', key="exclude", **loc)
+        column = f.get("column")
+        if column is not None and (not isinstance(column, str) or not column.strip()):
+            raise ck.fail(p + "column", f"must be the name of a data column (got {_show(column)}).", key="column", **loc)
+        out.append(FactorSpec(name=name, levels=tuple(texts), exclude=ex, column=column.strip() if column else None))
+    return tuple(out)
+
+
+def _level_key(text: str):
+    """Levels compare as text after trimming, or as numbers when the text is a number."""
+    t = text.strip()
+    try:
+        x = float(t)
+    except ValueError:
+        return ("text", t)
+    if math.isfinite(x):
+        return ("number", x)
+    return ("text", t)
+
+
+level_key = _level_key
+
+
+def _read_analysis(doc, ck: _Checker, factors) -> AnalysisSpec:
+    t = _table(doc, "analysis", ck, required=False)
+    loc = {"table": "analysis"}
+    ck.unknown_keys(t, tuple(D.ANALYSIS_DEFAULTS), "analysis.", **loc)
+    a = dict(D.ANALYSIS_DEFAULTS)
+    alpha = t.get("alpha", a["alpha"])
+    if isinstance(alpha, bool) or not isinstance(alpha, (int, float)) or not (0 < alpha < 0.5):
+        raise ck.fail("analysis.alpha", f"must be a number between 0 and 0.5, such as 0.05 (got {_show(alpha)}).", key="alpha", **loc)
+    param = ck.choice(t, "parameterization", "analysis.parameterization", D.PARAMETERIZATIONS, a["parameterization"], **loc)
+    ss = t.get("ss_type", a["ss_type"])
+    if isinstance(ss, int) and not isinstance(ss, bool) and 1 <= ss <= 3:
+        ss = "I" * ss if ss < 3 else "III"
+    ss = ck.choice({"ss_type": ss}, "ss_type", "analysis.ss_type", D.SS_TYPES, a["ss_type"], **loc)
+    corr = ck.choice(t, "correction", "analysis.correction", D.CORRECTIONS, a["correction"], **loc)
+    posthoc = t.get("posthoc", [])
+    if isinstance(posthoc, str):
+        posthoc = [posthoc]
+    if not isinstance(posthoc, list):
+        raise ck.fail("analysis.posthoc", f"must be a list such as [\"all-pairs\"] (got {_show(posthoc)}).", key="posthoc", **loc)
+    for j, fam in enumerate(posthoc, start=1):
+        ck.choice({"posthoc": fam}, "posthoc", f"analysis.posthoc[{j}]", D.POSTHOC_FAMILIES, None, **loc)
+    names = [f.name for f in factors]
+    on = t.get("posthoc_on", "cells")
+    if on != "cells" and on not in names:
+        choices = ["cells", *names]
+        ck.choice({"posthoc_on": on}, "posthoc_on", "analysis.posthoc_on", tuple(choices), None, **loc)
+    control = t.get("control")
+    if control is not None:
+        if not isinstance(control, (str, int, float)) or isinstance(control, bool):
+            raise ck.fail("analysis.control", f"must be a level name (got {_show(control)}).", key="control", **loc)
+        control = level_text(control)
+    if "versus-control" in posthoc and control is None:
+        raise ck.fail("analysis.control", 'is required by posthoc "versus-control": name the control level, e.g. control = "placebo".', key="posthoc", **loc)
+    uv = ck.choice(t, "unequal_variances", "analysis.unequal_variances", D.UNEQUAL_VARIANCES, a["unequal_variances"], **loc)
+    perms = t.get("permutations", a["permutations"])
+    if isinstance(perms, bool) or not isinstance(perms, int) or not (0 <= perms <= 10_000_000):
+        raise ck.fail("analysis.permutations", f"must be a whole number from 0 (no permutation test) to 10000000 (got {_show(perms)}).", key="permutations", **loc)
+    seed = t.get("seed", a["seed"])
+    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
+        raise ck.fail("analysis.seed", f"must be a whole number ≥ 0 (got {_show(seed)}).", key="seed", **loc)
+    return AnalysisSpec(
+        alpha=float(alpha),
+        parameterization=param,
+        ss_type=ss,
+        correction=corr,
+        posthoc=tuple(posthoc),
+        posthoc_on=on,
+        control=control,
+        unequal_variances=uv,
+        permutations=perms,
+        seed=seed,
+    )
+
+
+def _read_hypotheses(doc, ck: _Checker) -> tuple[HypothesisSpec, ...]:
+    raw = doc.get("hypotheses", [])
+    if not isinstance(raw, list) or not all(isinstance(h, dict) for h in raw):
+        raise ck.fail("hypotheses", "must be written as [[hypotheses]] tables.", key="hypotheses")
+    out: list[HypothesisSpec] = []
+    names: dict[str, int] = {}
+    for i, h in enumerate(raw, start=1):
+        loc = {"table": "hypotheses", "index": i}
+        p = f"hypotheses[{i}]."
+        ck.unknown_keys(h, _HYP_KEYS, p, **loc)
+        name = ck.text(h, "name", p + "name", **loc).strip()
+        if name in names:
+            raise ck.fail(p + "name", f'repeats the name "{name}" of hypotheses[{names[name]}]; give each hypothesis its own name.', key="name", **loc)
+        names[name] = i
+        means = ck.text(h, "means", p + "means", required=False, **loc)
+        effect = ck.text(h, "effect", p + "effect", required=False, **loc)
+        if means is not None and effect is not None:
+            raise ck.fail(p + "effect", "cannot stand beside 'means' in one hypothesis: keep one, or split them into two [[hypotheses]].", key="effect", **loc)
+        if means is None and effect is None:
+            raise ck.fail(p + "means", 'is missing: give means = "a > b" (a statement about means) or effect = "factor".', **loc)
+        role = ck.choice(h, "role", p + "role", D.ROLES, "planned", **loc)
+        desc = ck.text(h, "description", p + "description", required=False, **loc)
+        out.append(HypothesisSpec(name=name, means=means, effect=effect, role=role, description=desc, index=i))
+    return tuple(out)
+
+
+def _read_study(doc, ck: _Checker) -> StudySpec:
+    t = _table(doc, "study", ck, required=False)
+    loc = {"table": "study"}
+    ck.unknown_keys(t, _STUDY_KEYS, "study.", **loc)
+    values = {k: ck.text(t, k, f"study.{k}", required=False, **loc) for k in _STUDY_KEYS}
+    return StudySpec(**values)

@@ -1,0 +1,61 @@
+"""Shared helpers: test data location and a factory for small plan + data projects."""
+
+from __future__ import annotations
+
+import textwrap
+from pathlib import Path
+
+import pytest
+
+DATA_DIR = Path(__file__).parent / "data"
+
+
+@pytest.fixture
+def data_dir() -> Path:
+    return DATA_DIR
+
+
+@pytest.fixture
+def project(tmp_path):
+    """Write a plan (TOML text) and optional data files into a temporary folder."""
+
+    def make(plan: str, files: dict[str, str | bytes] | None = None, name: str = "plan.toml") -> Path:
+        for fname, content in (files or {}).items():
+            target = tmp_path / fname
+            if isinstance(content, bytes):
+                target.write_bytes(content)
+            else:
+                target.write_text(content, encoding="utf-8")
+        path = tmp_path / name
+        path.write_text(textwrap.dedent(plan).lstrip(), encoding="utf-8")
+        return path
+
+    return make
+
+
+ONEWAY_PLAN = """
+title = "Seedling height under four growing media"
+[data]
+path = "heights.csv"
+outcome = "height_mm"
+[[factors]]
+name = "medium"
+levels = ["peat", "coir", "bark", "soil"]
+[[hypotheses]]
+name = "coir beats bark"
+means = "coir > bark"
+[[hypotheses]]
+name = "media differ"
+effect = "medium"
+"""
+
+ONEWAY_DATA = "height_mm,medium\n" + "".join(
+    f"{v},{m}\n"
+    for m, vals in {
+        "peat": [12.1, 13.4, 11.8, 12.9],
+        "coir": [14.2, 15.1, 13.8],
+        "bark": [10.2, 11.0, 9.7, 10.8, 10.1],
+        "soil": [9.1, 8.7, 9.9, 9.4],
+    }.items()
+    for v in vals
+)
