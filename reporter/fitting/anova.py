@@ -1,0 +1,215 @@
+"""ANOVA tables with Type I, II and III sums of squares, computed from the cell statistics.
+
+* **Type III** ("unweighted means"): the SS of the hypothesis that the effect's contrasts of
+  unweighted cell means are zero, C_A = (difference matrix of A) ⊗ (averaging rows of the other
+  factors) (Searle (1987), *Linear Models for Unbalanced Data*, sections 4.9 and 8.6). It does not
+  depend on the coding. It equals what other software reports as Type III only under sum-to-zero
+  coding: with treatment (reference) coding, dropping a main-effect column tests the simple
+  effect at the reference level of the other factors instead.
+* **Type I** ("sequential"): SS(term | terms before it) in the plan's factor order, terms ordered
+  by degree (A, B, A×B, ...).
+* **Type II** ("adjusted for other main effects"): SS(term | every term that does not contain
+  it) (Langsrud (2003), "ANOVA for unbalanced data: Use Type II instead of Type III sums of
+  squares", Statistics and Computing 13, 163-167).
+
+Types I and II compare nested models fitted to the cell means by least squares with weights n_c;
+the within-cell SS is common to every model, so the cell statistics suffice
+(Searle 1987, section 4.2).
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+
+from reporter.fitting.linear import ModelFit, fit_contrast
+from reporter.model.design import Design, build_design
+from reporter.model.hypotheses import effect_weights
+
+SS_LABELS = {
+    "I": "sequential",
+    "II": "adjusted for other main effects",
+    "III": "unweighted means",
+}
+
+
+@dataclass(frozen=True)
+class AnovaRow:
+    """One effect of the table; F and p are None when the effect is not testable."""
+
+    source: str
+    factors: tuple[str, ...]
+    df: int
+    ss: float | None
+    ms: float | None
+    F: float | None
+    p: float | None
+    note: str | None = None
+
+    @property
+    def testable(self) -> bool:
+        return self.F is not None
+
+
+@dataclass(frozen=True)
+class AnovaTable:
+    """The table of one SS type, with the residual and total lines and fit summaries."""
+
+    ss_type: str
+    rows: tuple[AnovaRow, ...]
+    df_error: int
+    ss_error: float
+    ms_error: float
+    df_total: int
+    ss_total: float
+    r_squared: float
+    residual_sd: float
+    balanced: bool
+    types_agree: bool
+    notes: tuple[str, ...]
+
+    @property
+    def label(self) -> str:
+        return f"Type {self.ss_type} ({SS_LABELS[self.ss_type]})"
+
+
+def _terms(design: Design) -> list[tuple[str, ...]]:
+    names = [f.name for f in design.factors]
+    out = []
+    for size in range(1, len(names) + 1):
+        out.extend(itertools.combinations(names, size))
+    return out
+
+
+def _source(term: tuple[str, ...]) -> str:
+    return " × ".join(term)
+
+
+def _weighted_rss(columns: np.ndarray, fit: ModelFit) -> tuple[float, int]:
+    """RSS between cells (Σ n_c (ȳ_c − fitted_c)²) and the rank of a cell-level model."""
+    cells = fit.cells
+    o = cells.observed
+    w = np.sqrt(cells.n[o].astype(float))
+    y = cells.offset_mean[o] - cells.grand_offset_mean
+    X = columns[o] * w[:, None]
+    if X.shape[1] == 0:
+        r = y * w
+        return math.fsum((r * r).tolist()), 0
+    Q, R = np.linalg.qr(X)
+    diag = np.abs(np.diag(R))
+    rank = int((diag > 1e-10 * max(diag.max(), 1.0)).sum())
+    if rank < X.shape[1]:
+        U, s, _ = np.linalg.svd(X, full_matrices=False)
+        rank = int((s > 1e-10 * s.max()).sum())
+        Q = U[:, :rank]
+    yw = y * w
+    r = yw - Q @ (Q.T @ yw)
+    return math.fsum((r * r).tolist()), rank
+
+
+def _model_columns(effects: Design, terms: list[tuple[str, ...]]) -> np.ndarray:
+    wanted = set(terms) | {()}
+    cols = [j for j, c in enumerate(effects.coefficients) if c.term in wanted]
+    return effects.matrix[:, cols].astype(float)
+
+
+def _nested_rows(design: Design, fit: ModelFit, ss_type: str) -> list[AnovaRow]:
+    effects = build_design(design.factors, "effects")
+    terms = _terms(design)
+    rows = []
+    for i, term in enumerate(terms):
+        if ss_type == "I":
+            base = terms[:i]
+        else:
+            base = [t for t in terms if t != term and not set(term) <= set(t)]
+        rss0, rank0 = _weighted_rss(_model_columns(effects, base), fit)
+        rss1, rank1 = _weighted_rss(_model_columns(effects, base + [term]), fit)
+        df = rank1 - rank0
+        if df == 0:
+            rows.append(AnovaRow(_source(term), term, 0, None, None, None, None,
+                                 "not testable: the empty cells leave this effect no degrees of freedom"))
+            continue
+        ss = max(rss0 - rss1, 0.0)
+        rows.append(_row(term, df, ss, fit))
+    return rows
+
+
+def _row(term, df, ss, fit, note=None) -> AnovaRow:
+    ms = ss / df
+    F = ms / fit.mse
+    return AnovaRow(_source(term), term, df, ss, ms, F, float(stats.f.sf(F, df, fit.df_error)), note)
+
+
+def _type3_rows(design: Design, fit: ModelFit) -> list[AnovaRow]:
+    rows = []
+    empty = ~fit.cells.observed
+    for term in _terms(design):
+        C = effect_weights(design, term)
+        touched = [design.cells[c].label for c in np.flatnonzero(empty) if any(r[c] != 0 for r in C)]
+        if touched:
+            rows.append(AnovaRow(_source(term), term, len(C), None, None, None, None,
+                                 "not testable as unweighted means: it needs the empty cell(s) "
+                                 + ", ".join(f"({t})" for t in touched[:4])))
+            continue
+        res = fit_contrast(fit, C, [0] * len(C), test="F")
+        rows.append(_row(term, len(C), res.ss, fit))
+    return rows
+
+
+def fit_anova(design: Design, fit: ModelFit, ss_type: str = "III") -> AnovaTable:
+    """The ANOVA table of the given SS type, and whether the three types agree here."""
+    tables = {t: (_type3_rows(design, fit) if t == "III" else _nested_rows(design, fit, t)) for t in ("I", "II", "III")}
+    rows = tables[ss_type]
+    n = fit.cells.n
+    balanced = bool(np.all(n == n[0]) and n[0] > 0)
+    agree = _agree(tables)
+    notes = []
+    if len(design.factors) == 1:
+        notes.append("With one factor, Types I, II and III are the same test.")
+    elif balanced:
+        notes.append("The design is balanced (equal n in every cell), so Types I, II and III agree.")
+    elif agree:
+        notes.append("Types I, II and III agree for these data.")
+    else:
+        notes.append(
+            "The design is unbalanced, so Types I, II and III differ; the table uses Type "
+            f"{ss_type} ({SS_LABELS[ss_type]})."
+        )
+        if ss_type != "III":
+            notes.append(
+                "Hypotheses written as effect = \"...\" always test unweighted means (Type III), "
+                "so their F can differ from this table's row for the same effect."
+            )
+    if any(not r.testable for r in rows):
+        notes.append("Some effects are not testable because cells are empty; see the row notes.")
+    return AnovaTable(
+        ss_type=ss_type,
+        rows=tuple(rows),
+        df_error=fit.df_error,
+        ss_error=fit.ss_error,
+        ms_error=fit.mse,
+        df_total=fit.cells.n_total - 1,
+        ss_total=fit.ss_total,
+        r_squared=fit.r_squared,
+        residual_sd=fit.residual_sd,
+        balanced=balanced,
+        types_agree=agree,
+        notes=tuple(notes),
+    )
+
+
+def _agree(tables) -> bool:
+    base = tables["III"]
+    for other in (tables["I"], tables["II"]):
+        for a, b in zip(base, other):
+            if a.ss is None or b.ss is None:
+                if (a.ss is None) != (b.ss is None):
+                    return False
+                continue
+            if a.df != b.df or not math.isclose(a.ss, b.ss, rel_tol=1e-9, abs_tol=1e-12 * (1 + abs(a.ss))):
+                return False
+    return True

@@ -1,0 +1,89 @@
+"""``anova-report run``: fit a prepared analysis and write the requested files, all or nothing.
+
+Every output is rendered in memory first; only then are the files written, each to a temporary
+name in the output folder and renamed into place. A failure before that point leaves no file
+behind, and the input files are never opened for writing.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from fractions import Fraction
+from pathlib import Path
+
+from reporter.errors import OptionError, RenderError
+from reporter.fitting.analysis import Analysis, fit_analysis
+from reporter.provenance import collect_provenance
+
+FILE_NAMES = {"json": "results.json", "html": "report.html", "pdf": "report.pdf", "md": "report.md"}
+
+
+def analyse(prep) -> Analysis:
+    """Fit everything for a prepared plan."""
+    a = prep.plan.analysis
+    data = prep.data
+    pivot_exact = Fraction(data.pivot_text) if data.exact_decimal else Fraction(data.pivot)
+    return fit_analysis(
+        prep.design,
+        data.y,
+        prep.cell,
+        prep.contrasts,
+        alpha=a.alpha,
+        ss_type=a.ss_type,
+        correction=a.correction,
+        pivot=data.pivot,
+        pivot_exact=pivot_exact,
+    )
+
+
+def render_outputs(prep, analysis: Analysis, formats) -> dict[str, bytes]:
+    """The bytes of each requested format."""
+    from reporter.render.results_json import render_json, results_dict
+
+    provenance = collect_provenance(prep)
+    doc = results_dict(prep, analysis, provenance)
+    out: dict[str, bytes] = {}
+    for fmt in formats:
+        if fmt == "json":
+            out[fmt] = render_json(doc)
+        else:
+            raise RenderError(f"--format {fmt}: this format is not available yet; use json.")
+    return out
+
+
+def _check_out_dir(out: Path, plan, data_path: Path) -> None:
+    if out.exists() and not out.is_dir():
+        raise OptionError(f"--out {out}: exists and is not a folder; give a folder for the report files.")
+    inputs = {p.resolve() for p in (Path(plan.source) if plan.source else None, data_path) if p}
+    for name in FILE_NAMES.values():
+        if (out / name).resolve() in inputs:
+            raise OptionError(f"--out {out}: writing {name} there would overwrite an input file; choose another folder.")
+
+
+def write_outputs(prep, out: Path, formats) -> list[Path]:
+    """Fit, render every format in memory, then write the files atomically."""
+    _check_out_dir(out, prep.plan, prep.plan.data.path)
+    analysis = analyse(prep)
+    blobs = render_outputs(prep, analysis, formats)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OptionError(f"--out {out}: cannot create the folder ({exc.strerror}).") from None
+    written, temps = [], []
+    try:
+        for fmt, blob in blobs.items():
+            fd, tmp = tempfile.mkstemp(prefix=".anova-report-", dir=out)
+            temps.append(tmp)
+            with os.fdopen(fd, "wb") as fh:
+                fh.write(blob)
+        for (fmt, _), tmp in zip(blobs.items(), temps):
+            target = out / FILE_NAMES[fmt]
+            os.replace(tmp, target)
+            written.append(target)
+    except OSError as exc:
+        for tmp in temps:
+            if os.path.exists(tmp):
+                os.unlink(tmp)
+        raise OptionError(f"--out {out}: cannot write the report files ({exc.strerror}).") from None
+    return written
