@@ -1,0 +1,233 @@
+"""Monte Carlo permutation F tests for between-subjects designs.
+
+The p value needs no normal errors: it compares the observed F with the F of data rearranged
+under the null hypothesis. For a one-way design the rows' outcomes are exchangeable under the
+null, so they are permuted across cells. For one effect of a factorial design (a contrast
+matrix C over the cells, e.g. an interaction) the other effects are not null, so the residuals
+of the reduced model (the model without that effect) are permuted and added back to its fitted
+values: Freedman & Lane (1983), Journal of Business & Economic Statistics 1, 292-298; Anderson &
+Legendre (1999), Journal of Statistical Computation and Simulation 62, 271-303, compare the
+choices and recommend it.
+
+Computation. Only the cell sums of the permuted residuals matter. With e0 the reduced-model
+residuals (cell order), S the vector of their cell sums after permutation, D = diag(n):
+the permuted cell means are mu0 + S/n, the hypothesis sum of squares is
+||L^-1 C D^-1 S||^2 with L L' = C D^-1 C', and the within-cell sum of squares is
+sum e0^2 - sum_c S_c^2 / n_c. Permutations are drawn in blocks: each row of a block is an
+independent Fisher-Yates shuffle of e0 (``Generator.permuted``), and the cell sums of a block come
+from one ``np.add.reduceat`` over rows sorted by cell, with no per-permutation Python work. The
+random numbers come from numpy's SFC64 bit generator (Chris Doty-Humphrey's Small Fast Chaotic
+generator) seeded with ``seed``, which shuffled about a third faster than the default PCG64 in our
+benchmark. The stream does not depend on the block size.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from reporter.errors import FitError
+from reporter.fitting.posthoc import _check_seed
+from reporter.fitting.robust import _cell_stats_from_rows, _reduce_rows, _rows
+
+__all__ = ["PermutationResult", "permutation_f_test"]
+
+_BLOCK_ELEMENTS = 1 << 16
+_MAX_BLOCK = 128
+
+
+@dataclass(frozen=True)
+class PermutationResult:
+    """A Monte Carlo permutation F test.
+
+    ``statistic`` is the observed F with ``df1`` and ``df2`` (used only to form F; the p value
+    comes from the permutations). ``p`` = (b + 1)/(m + 1) with b the number of the m permuted F
+    at or above the observed one; ``mc_se`` = sqrt(p (1 - p) / m) is its Monte Carlo standard
+    error. ``seed`` reproduces the permutations.
+    """
+
+    statistic: float
+    df1: int
+    df2: int
+    p: float
+    mc_se: float
+    n_permutations: int
+    n_extreme: int
+    method: str
+    seed: int
+
+
+@dataclass(frozen=True, eq=False)
+class _NullDistribution:
+    observed: float
+    observed_by_sums: float
+    null: np.ndarray
+    df1: int
+    df2: int
+    method: str
+
+
+def _check_count(n_permutations) -> int:
+    if (
+        isinstance(n_permutations, (bool, np.bool_))
+        or not isinstance(n_permutations, (int, np.integer))
+        or n_permutations < 1
+    ):
+        raise FitError(
+            f"'n_permutations' must be a positive whole number (got {n_permutations!r}); "
+            "10000 gives a Monte Carlo standard error below 0.005."
+        )
+    return int(n_permutations)
+
+
+def _null_distribution(
+    y, codes, k, C, n_permutations: int, seed: int, block: int | None = None
+) -> _NullDistribution:
+    y, codes, k = _rows(y, codes, k)
+    n, mean, ss = _cell_stats_from_rows(y, codes, k)
+    obs = np.flatnonzero(n > 0)
+    g = obs.size
+    big_n = y.size
+    df2 = big_n - g
+    if df2 < 1:
+        raise FitError(
+            f"the F test needs residual degrees of freedom (N - cells = {df2}); collect more "
+            "than one row per cell."
+        )
+    sse = float(ss.sum())
+    if not sse > 0.0:
+        raise FitError(
+            "every cell's values are equal (no within-cell variation), so F is undefined."
+        )
+    if C is None:
+        if g < 2:
+            raise FitError(
+                f"a one-way permutation test compares at least 2 observed cells (got {g})."
+            )
+        cm = np.zeros((g - 1, k))
+        cm[np.arange(g - 1), obs[:-1]] = 1.0
+        cm[:, obs[-1]] = -1.0
+        method = "permutation of rows"
+    else:
+        cm, _ = _reduce_rows(C, None, k)
+        sums = np.abs(cm.sum(axis=1))
+        if np.any(sums > 1e-9 * np.abs(cm).sum(axis=1)):
+            raise FitError(
+                "a permutation test can only test contrasts, whose rows of 'C' sum to 0 over the "
+                "cells (a row here sums to a non-zero value): permuting rows leaves the grand mean "
+                "unchanged, so a null like 'a mean equals 0' cannot be tested this way."
+            )
+        empty = np.flatnonzero(np.any(cm != 0.0, axis=0) & (n == 0))
+        if empty.size:
+            raise FitError(
+                f"'C' puts weight on empty cells {empty.tolist()}, so the effect is not "
+                "estimable; give those cells zero weight."
+            )
+        method = "Freedman-Lane permutation of reduced-model residuals"
+    cn = cm[:, obs]
+    nn = n[obs].astype(np.float64)
+    ybar = mean[obs]
+    a = (cn / nn) @ cn.T
+    try:
+        chol = np.linalg.cholesky(a)
+    except np.linalg.LinAlgError as exc:
+        raise FitError(
+            "the rows of 'C' are not estimable from the observed cells; check 'C'."
+        ) from exc
+    q = cn.shape[0]
+    if C is None:
+        # The reduced model of the one-way null is the grand mean.
+        mu0 = np.full(g, float(np.sum(nn * ybar) / big_n))
+    else:
+        # Weighted least squares projection of the cell means onto {mu : C mu = 0}.
+        mu0 = ybar - (cn.T / nn[:, None]) @ np.linalg.solve(a, cn @ ybar)
+    g_mat = np.linalg.solve(chol, cn / nn)
+
+    z = np.linalg.solve(chol, cn @ ybar)
+    observed = (float(z @ z) / q) / (sse / df2)
+
+    order = np.argsort(codes, kind="stable")
+    position = np.full(k, -1)
+    position[obs] = np.arange(g)
+    cell_of_row = position[codes[order]]
+    resid = y[order] - mu0[cell_of_row]
+    starts = np.concatenate(([0], np.cumsum(nn.astype(np.int64))[:-1]))
+    total = float(resid @ resid)
+
+    def f_from_sums(sums: np.ndarray) -> np.ndarray:
+        u = g_mat @ sums
+        ss_h = np.einsum("ij,ij->j", u, u)
+        ss_w = total - np.einsum("ij,ij->j", sums, sums / nn[:, None])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return (ss_h / q) / (np.maximum(ss_w, 0.0) / df2)
+
+    observed_by_sums = float(f_from_sums(np.add.reduceat(resid, starts)[:, None])[0])
+
+    if block is None:
+        block = int(min(_MAX_BLOCK, max(1, _BLOCK_ELEMENTS // max(big_n, 1))))
+    rng = np.random.Generator(np.random.SFC64(seed))
+    null = np.empty(n_permutations)
+    block = min(block, n_permutations)
+    template = np.tile(resid, (block, 1))
+    buffer = np.empty_like(template)
+    done = 0
+    while done < n_permutations:
+        size = min(block, n_permutations - done)
+        rows = buffer[:size]
+        np.copyto(rows, template[:size])
+        rng.permuted(rows, axis=1, out=rows)
+        sums = np.add.reduceat(rows, starts, axis=1)
+        null[done : done + size] = f_from_sums(sums.T)
+        done += size
+    return _NullDistribution(
+        observed=observed,
+        observed_by_sums=observed_by_sums,
+        null=null,
+        df1=q,
+        df2=df2,
+        method=method,
+    )
+
+
+def permutation_f_test(
+    y,
+    codes,
+    k: int | None = None,
+    C=None,
+    *,
+    n_permutations: int = 10_000,
+    seed: int | None = None,
+) -> PermutationResult:
+    """Permutation p value of the F for C mu = 0 (default: all cell means equal).
+
+    With ``C=None`` the outcomes are permuted across rows (the cells keep their sizes) and F is
+    the one-way F over the observed cells. With a contrast matrix ``C`` (q x k, one column per
+    cell) the Freedman-Lane scheme is used: the reduced model (cell means restricted by
+    C mu = 0, fitted by least squares with weights n) gives fitted values and residuals; the
+    residuals are permuted and added back; F of C is recomputed each time. For a one-way C of
+    all differences the reduced model is the grand mean and both schemes coincide.
+
+    p = (b + 1) / (m + 1), counting as extreme the permuted F at or above the observed F, with a
+    relative tolerance of 100 machine epsilons for rounding (Phipson & Smyth 2010, Statistical
+    Applications in Genetics and Molecular Biology 9(1), article 39: this p is exact for a
+    test that adds the observed arrangement to m random ones). The Monte Carlo standard error
+    is sqrt(p (1 - p) / m). ``seed=None`` draws a seed and records it in the result.
+    """
+    m = _check_count(n_permutations)
+    seed = _check_seed(seed)
+    dist = _null_distribution(y, codes, k, C, m, seed)
+    cut = dist.observed_by_sums - abs(dist.observed_by_sums) * 100.0 * np.finfo(float).eps
+    b = int(np.count_nonzero(dist.null >= cut))
+    p = (b + 1.0) / (m + 1.0)
+    return PermutationResult(
+        statistic=dist.observed,
+        df1=dist.df1,
+        df2=dist.df2,
+        p=p,
+        mc_se=float(np.sqrt(p * (1.0 - p) / m)),
+        n_permutations=m,
+        n_extreme=b,
+        method=dist.method,
+        seed=seed,
+    )

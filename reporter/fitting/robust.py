@@ -1,0 +1,513 @@
+"""Alternatives to the pooled-variance F and t tests for between-subjects designs.
+
+When the cell variances differ, the pooled MSE misstates the variance of contrasts whose cells
+have unequal sizes. The tests here estimate each cell's variance separately (Welch's one-way
+ANOVA, the Welch-Satterthwaite t for one contrast, Games-Howell pairs, an HC3 sandwich Wald F),
+or drop the normal model altogether (Kruskal-Wallis on ranks).
+
+Inputs follow the fitting layer's conventions: per-cell sufficient statistics ``n`` (counts),
+``mean`` and ``ss`` (centred sums of squares) over k cells, or row data ``y`` with ``codes``
+(the cell index of each row).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+from scipy import stats
+
+from reporter.errors import FitError
+from reporter.fitting.posthoc import Comparison, ComparisonFamily, _check_alpha
+
+__all__ = [
+    "KruskalWallisResult",
+    "RobustWaldResult",
+    "WelchAnovaResult",
+    "WelchContrastResult",
+    "games_howell",
+    "hc3_wald",
+    "kruskal_wallis",
+    "welch_anova",
+    "welch_contrast",
+]
+
+Alternative = Literal["two-sided", "greater", "less"]
+
+
+@dataclass(frozen=True)
+class WelchAnovaResult:
+    """Welch's heteroscedastic one-way F with fractional denominator degrees of freedom."""
+
+    statistic: float
+    df1: float
+    df2: float
+    p: float
+    n_groups: int
+
+
+@dataclass(frozen=True)
+class WelchContrastResult:
+    """A t test of one contrast over cells with separate cell variances (Welch-Satterthwaite).
+
+    ``estimate`` is c'ybar, ``null_value`` the hypothesised h; ``statistic`` is
+    (estimate - null_value) / se; the interval is for c'mu at ``confidence_level``, one-sided
+    when ``alternative`` is.
+    """
+
+    estimate: float
+    null_value: float
+    se: float
+    df: float
+    statistic: float
+    p: float
+    alternative: str
+    confidence_level: float
+    ci_low: float
+    ci_high: float
+
+
+@dataclass(frozen=True)
+class KruskalWallisResult:
+    """Kruskal-Wallis H (tie-corrected) with its chi-square p value."""
+
+    statistic: float
+    df: int
+    p: float
+    tie_correction: float
+    n_groups: int
+
+
+@dataclass(frozen=True)
+class RobustWaldResult:
+    """A Wald F of C mu = h with a heteroscedasticity-consistent covariance of the cell means."""
+
+    statistic: float
+    df1: int
+    df2: int
+    p: float
+    method: str
+
+
+# ---------------------------------------------------------------------------------------------
+# shared input handling (also used by the assumptions and permutation modules)
+
+
+def _rows(y, codes, k: int | None = None) -> tuple[np.ndarray, np.ndarray, int]:
+    """Validate row data; return y as float64, codes as intp and the number of cells k."""
+    yy = np.asarray(y, dtype=np.float64)
+    cc = np.asarray(codes)
+    if yy.ndim != 1:
+        raise FitError(f"'y' must be a 1-D array of outcome values (got shape {yy.shape}).")
+    if cc.shape != yy.shape:
+        raise FitError(
+            f"'codes' must give one cell index per row of 'y' (got {cc.size} codes for "
+            f"{yy.size} rows)."
+        )
+    if yy.size and not np.issubdtype(cc.dtype, np.integer):
+        if not np.issubdtype(cc.dtype, np.floating) or np.any(cc != np.round(cc)):
+            raise FitError(
+                f"'codes' must hold whole-number cell indices (got dtype {cc.dtype})."
+            )
+    cc = cc.astype(np.intp)
+    if not np.all(np.isfinite(yy)):
+        bad = int(np.flatnonzero(~np.isfinite(yy))[0])
+        raise FitError(
+            f"'y' must be finite (row {bad} is {yy[bad]!r}); missing values are removed at "
+            "intake, before fitting."
+        )
+    if k is None:
+        k = int(cc.max()) + 1 if cc.size else 0
+    elif isinstance(k, bool) or not isinstance(k, (int, np.integer)) or k < 1:
+        raise FitError(f"'k' must be a positive whole number of cells (got {k!r}).")
+    k = int(k)
+    if cc.size and (cc.min() < 0 or cc.max() >= k):
+        raise FitError(
+            f"'codes' must lie between 0 and k - 1 = {k - 1} (got values from {cc.min()} to "
+            f"{cc.max()})."
+        )
+    return yy, cc, k
+
+
+def _cell_stats_from_rows(
+    y: np.ndarray, codes: np.ndarray, k: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Cell counts, means and centred sums of squares by two passes with a mean correction.
+
+    The second pass centres every row on its cell's first-pass mean and adds the mean of those
+    deviations back (the corrected two-pass algorithm of Chan, Golub & LeVeque 1983, The American
+    Statistician 37, 242-247), so no raw sum of squares is ever formed.
+    """
+    n = np.bincount(codes, minlength=k)
+    safe = np.maximum(n, 1)
+    mean = np.bincount(codes, weights=y, minlength=k) / safe
+    dev = y - mean[codes]
+    shift = np.bincount(codes, weights=dev, minlength=k)
+    mean = mean + shift / safe
+    dev = y - mean[codes]
+    ss = np.bincount(codes, weights=dev * dev, minlength=k)
+    return n.astype(np.int64), mean, ss
+
+
+def _cell_stats(n, mean, ss) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    nn = np.asarray(n)
+    mm = np.asarray(mean, dtype=np.float64)
+    sq = np.asarray(ss, dtype=np.float64)
+    if nn.ndim != 1 or mm.shape != nn.shape or sq.shape != nn.shape:
+        raise FitError(
+            "'n', 'mean' and 'ss' must be 1-D arrays of the same length, one entry per cell "
+            f"(got shapes {nn.shape}, {mm.shape}, {sq.shape})."
+        )
+    if np.any(nn < 0) or np.any(nn != np.round(nn)):
+        raise FitError(f"'n' must hold non-negative whole numbers (got {nn.tolist()}).")
+    observed = nn > 0
+    if not np.all(np.isfinite(mm[observed])) or not np.all(np.isfinite(sq[observed])):
+        raise FitError("'mean' and 'ss' must be finite in every observed cell.")
+    if np.any(sq[observed] < 0):
+        raise FitError(f"'ss' must be non-negative (got {sq.tolist()}).")
+    return nn.astype(np.int64), mm, sq
+
+
+def _reduce_rows(C, h, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Validate a contrast matrix and reduce it to independent rows with the same null space.
+
+    Equivalent stacks of rows state the same hypothesis; the Wald F is invariant to an
+    invertible transformation of the rows, so the rows are replaced by an orthonormal basis of
+    their span (a consistent h is carried along).
+    """
+    cm = np.atleast_2d(np.asarray(C, dtype=np.float64))
+    if cm.ndim != 2 or cm.shape[1] != k:
+        raise FitError(
+            f"'C' must have one column per cell ({k}) (got shape {np.shape(C)})."
+        )
+    if not np.all(np.isfinite(cm)):
+        raise FitError("'C' must be finite (got NaN or infinity).")
+    hv = np.zeros(cm.shape[0]) if h is None else np.atleast_1d(np.asarray(h, dtype=np.float64))
+    if hv.shape != (cm.shape[0],):
+        raise FitError(
+            f"'h' must have one value per row of 'C' ({cm.shape[0]}) (got shape {hv.shape})."
+        )
+    u, s, vt = np.linalg.svd(cm, full_matrices=False)
+    if s.size == 0 or s[0] == 0.0:
+        raise FitError("'C' has no non-zero row, so it states no hypothesis.")
+    rank = int(np.sum(s > s[0] * max(cm.shape) * np.finfo(float).eps * 16))
+    if rank < cm.shape[0]:
+        residual = hv - u[:, :rank] @ (u[:, :rank].T @ hv)
+        if np.linalg.norm(residual) > 1e-9 * max(1.0, np.linalg.norm(hv)):
+            raise FitError(
+                f"the rows of 'C' are linearly dependent (rank {rank} of {cm.shape[0]}) and "
+                "'h' contradicts that dependence, so the hypothesis is impossible; fix 'h'."
+            )
+    return u[:, :rank].T @ cm, u[:, :rank].T @ hv
+
+
+def _check_alternative(alternative: str) -> str:
+    if alternative not in ("two-sided", "greater", "less"):
+        raise FitError(
+            "'alternative' must be 'two-sided', 'greater' or 'less' "
+            f"(got {alternative!r})."
+        )
+    return alternative
+
+
+def _variances(n: np.ndarray, ss: np.ndarray, cells: np.ndarray, what: str) -> np.ndarray:
+    small = cells[n[cells] < 2]
+    if small.size:
+        raise FitError(
+            f"{what} needs a variance from every cell it uses, but cells {small.tolist()} have "
+            f"fewer than 2 rows (n = {n[small].tolist()}); merge or drop those cells."
+        )
+    return ss[cells] / (n[cells] - 1)
+
+
+# ---------------------------------------------------------------------------------------------
+# Welch's ANOVA
+
+
+def welch_anova(n, mean, ss) -> WelchAnovaResult:
+    """Welch's test of equal means without assuming equal variances, over the observed cells.
+
+    With w_i = n_i / s_i^2, W = sum w_i, the weighted mean m = sum w_i ybar_i / W and
+    L = sum (1 - w_i/W)^2 / (n_i - 1):
+    F = [sum w_i (ybar_i - m)^2 / (g - 1)] / [1 + 2 (g - 2) L / (g^2 - 1)],
+    df1 = g - 1, df2 = (g^2 - 1) / (3 L) (Welch 1951, Biometrika 38, 330-336).
+    Empty cells are left out.
+    """
+    n, mean, ss = _cell_stats(n, mean, ss)
+    cells = np.flatnonzero(n > 0)
+    g = cells.size
+    if g < 2:
+        raise FitError(
+            f"Welch's ANOVA compares at least 2 observed cells (got {g}); check the factor "
+            "levels present in the data."
+        )
+    var = _variances(n, ss, cells, "Welch's ANOVA")
+    if np.any(var <= 0.0):
+        zero = cells[var <= 0.0].tolist()
+        raise FitError(
+            f"Welch's ANOVA weights cells by 1/variance, but cells {zero} have zero variance "
+            "(all values equal); use the rank test or check the data."
+        )
+    ni = n[cells].astype(np.float64)
+    w = ni / var
+    wsum = w.sum()
+    ybar = mean[cells]
+    m = float(np.sum(w * ybar) / wsum)
+    a = float(np.sum(w * (ybar - m) ** 2) / (g - 1))
+    lam = float(np.sum((1.0 - w / wsum) ** 2 / (ni - 1.0)))
+    b = 1.0 + 2.0 * (g - 2) * lam / (g * g - 1.0)
+    f = a / b
+    df1 = float(g - 1)
+    df2 = (g * g - 1.0) / (3.0 * lam)
+    return WelchAnovaResult(
+        statistic=f, df1=df1, df2=df2, p=float(stats.f.sf(f, df1, df2)), n_groups=g
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# Welch-Satterthwaite t for one contrast
+
+
+def welch_contrast(
+    c,
+    n,
+    mean,
+    ss,
+    *,
+    h: float = 0.0,
+    alternative: Alternative = "two-sided",
+    alpha: float = 0.05,
+) -> WelchContrastResult:
+    """t test of c'mu = h with each cell's own variance and Satterthwaite's degrees of freedom.
+
+    se^2 = sum_c c_c^2 s_c^2 / n_c and df = (sum a_c)^2 / sum a_c^2 / (n_c - 1) with
+    a_c = c_c^2 s_c^2 / n_c (Satterthwaite 1946, Biometrics Bulletin 2, 110-114; Welch 1947,
+    Biometrika 34, 28-35, for two cells). Only cells with a non-zero coefficient enter; each of
+    them needs at least 2 rows.
+    """
+    alternative = _check_alternative(alternative)
+    alpha = _check_alpha(alpha)
+    n, mean, ss = _cell_stats(n, mean, ss)
+    cv = np.asarray(c, dtype=np.float64)
+    if cv.shape != n.shape:
+        raise FitError(
+            f"'c' needs one coefficient per cell ({n.size}) (got shape {cv.shape})."
+        )
+    if not np.all(np.isfinite(cv)) or not np.any(cv != 0.0):
+        raise FitError(f"'c' must be finite and not all zero (got {cv.tolist()}).")
+    cells = np.flatnonzero(cv != 0.0)
+    empty = cells[n[cells] == 0]
+    if empty.size:
+        raise FitError(
+            f"the contrast puts weight on empty cells {empty.tolist()}, so it is not "
+            "estimable; give those cells zero weight."
+        )
+    var = _variances(n, ss, cells, "the Welch-Satterthwaite t")
+    a = cv[cells] ** 2 * var / n[cells]
+    se2 = float(a.sum())
+    if not se2 > 0.0:
+        raise FitError(
+            "the contrast has zero estimated variance (every cell it uses has identical "
+            "values), so no t statistic exists; check the data."
+        )
+    df = se2**2 / float(np.sum(a**2 / (n[cells] - 1.0)))
+    se = float(np.sqrt(se2))
+    estimate = float(cv @ np.where(n > 0, mean, 0.0))
+    h = float(h)
+    t = (estimate - h) / se
+    if alternative == "two-sided":
+        p = float(2.0 * stats.t.sf(abs(t), df))
+        q = float(stats.t.isf(alpha / 2.0, df))
+        low, high = estimate - q * se, estimate + q * se
+    elif alternative == "greater":
+        p = float(stats.t.sf(t, df))
+        q = float(stats.t.isf(alpha, df))
+        low, high = estimate - q * se, np.inf
+    else:
+        p = float(stats.t.cdf(t, df))
+        q = float(stats.t.isf(alpha, df))
+        low, high = -np.inf, estimate + q * se
+    return WelchContrastResult(
+        estimate=estimate,
+        null_value=h,
+        se=se,
+        df=float(df),
+        statistic=float(t),
+        p=min(p, 1.0),
+        alternative=alternative,
+        confidence_level=1.0 - alpha,
+        ci_low=float(low),
+        ci_high=float(high),
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# Games-Howell
+
+
+def games_howell(n, mean, ss, *, alpha: float = 0.05) -> ComparisonFamily:
+    """All pairs of cells with separate variances: the Games-Howell procedure.
+
+    For cells i < j: d = ybar_i - ybar_j, se = sqrt(s_i^2/n_i + s_j^2/n_j), Welch's df
+    nu = se^4 / [(s_i^2/n_i)^2/(n_i - 1) + (s_j^2/n_j)^2/(n_j - 1)], adjusted p =
+    P(Q_(g, nu) >= sqrt(2)|d|/se) from the studentized range, and the interval
+    d -/+ q_(1-alpha; g, nu)/sqrt(2) * se (Games & Howell 1976, Journal of Educational
+    Statistics 1, 113-125). Every cell must have at least 2 rows.
+    """
+    alpha = _check_alpha(alpha)
+    n, mean, ss = _cell_stats(n, mean, ss)
+    g = n.size
+    if g < 2:
+        raise FitError(f"Games-Howell compares at least 2 cells (got {g}).")
+    if np.any(n == 0):
+        raise FitError(
+            f"Games-Howell compares the cells passed in, but cells "
+            f"{np.flatnonzero(n == 0).tolist()} are empty; pass only observed cells."
+        )
+    var = _variances(n, ss, np.arange(g), "Games-Howell")
+    a = var / n
+    out = []
+    for i in range(g):
+        for j in range(i + 1, g):
+            se2 = float(a[i] + a[j])
+            if not se2 > 0.0:
+                raise FitError(
+                    f"cells {i} and {j} both have zero variance, so their difference has no "
+                    "standard error; check the data."
+                )
+            df = se2**2 / float(a[i] ** 2 / (n[i] - 1) + a[j] ** 2 / (n[j] - 1))
+            se = float(np.sqrt(se2))
+            diff = float(mean[i] - mean[j])
+            t = diff / se
+            crit = float(stats.studentized_range.ppf(1.0 - alpha, g, df)) / np.sqrt(2.0)
+            p = float(stats.studentized_range.sf(abs(t) * np.sqrt(2.0), g, df))
+            out.append(
+                Comparison(
+                    first=i,
+                    second=j,
+                    difference=diff,
+                    se=se,
+                    statistic=t,
+                    df=float(df),
+                    p_adjusted=min(max(p, 0.0), 1.0),
+                    critical_value=crit,
+                    ci_low=diff - crit * se,
+                    ci_high=diff + crit * se,
+                )
+            )
+    return ComparisonFamily(
+        method="Games-Howell",
+        alpha=alpha,
+        alternative="two-sided",
+        comparisons=tuple(out),
+        n_groups=g,
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# Kruskal-Wallis
+
+
+def kruskal_wallis(y, codes, k: int | None = None) -> KruskalWallisResult:
+    """Kruskal-Wallis rank test over the observed cells, corrected for ties.
+
+    With mid-ranks R, H = 12 / (N (N + 1)) sum_c R_c^2 / n_c - 3 (N + 1), divided by
+    1 - sum (t^3 - t) / (N^3 - N) over tie groups of size t; p from chi-square with g - 1 df
+    (Kruskal & Wallis 1952, JASA 47, 583-621).
+    """
+    y, codes, k = _rows(y, codes, k)
+    n = np.bincount(codes, minlength=k)
+    g = int(np.count_nonzero(n))
+    big_n = y.size
+    if g < 2:
+        raise FitError(
+            f"Kruskal-Wallis compares at least 2 observed cells (got {g}); check the factor "
+            "levels present in the data."
+        )
+    ranks = stats.rankdata(y)
+    rank_sums = np.bincount(codes, weights=ranks, minlength=k)
+    obs = n > 0
+    h = 12.0 / (big_n * (big_n + 1.0)) * float(np.sum(rank_sums[obs] ** 2 / n[obs])) - 3.0 * (
+        big_n + 1.0
+    )
+    _, tie_sizes = np.unique(y, return_counts=True)
+    t = tie_sizes.astype(np.float64)
+    correction = 1.0 - float(np.sum(t**3 - t)) / (big_n**3 - float(big_n))
+    if correction <= 0.0:
+        raise FitError(
+            "Kruskal-Wallis needs at least two distinct values of 'y' (all values are equal)."
+        )
+    h /= correction
+    df = g - 1
+    return KruskalWallisResult(
+        statistic=float(h),
+        df=df,
+        p=float(stats.chi2.sf(h, df)),
+        tie_correction=correction,
+        n_groups=g,
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# HC3 Wald F
+
+
+def hc3_wald(C, n, mean, ss, *, h=None) -> RobustWaldResult:
+    """Wald F of C mu = h on the full cell-means model with the HC3 covariance.
+
+    In the cell-means model every row of cell c has leverage 1/n_c, so the HC3 sandwich
+    (MacKinnon & White 1985, Journal of Econometrics 29, 305-325; recommended by Long & Ervin
+    2000, The American Statistician 54, 217-224) is diagonal with
+    V_c = sum_(i in c) e_i^2 / (1 - 1/n_c)^2 / n_c^2 = ss_c / (n_c - 1)^2.
+    F = (C ybar - h)' (C V C')^-1 (C ybar - h) / q with df (q, N - g), q the rank of C and g the
+    number of observed cells.
+
+    A cell with one row has leverage 1 and no HC3 variance: a contrast that uses such a cell
+    raises FitError; such cells that C does not use are harmless.
+    """
+    n, mean, ss = _cell_stats(n, mean, ss)
+    k = n.size
+    cm, hv = _reduce_rows(C, h, k)
+    used = np.any(cm != 0.0, axis=0)
+    empty = np.flatnonzero(used & (n == 0))
+    if empty.size:
+        raise FitError(
+            f"'C' puts weight on empty cells {empty.tolist()}, so the hypothesis is not "
+            "estimable; give those cells zero weight."
+        )
+    single = np.flatnonzero(used & (n == 1))
+    if single.size:
+        raise FitError(
+            f"HC3 needs 1 - leverage > 0, but cells {single.tolist()} have one row (leverage "
+            "1), so their variance cannot be estimated; drop those cells from the hypothesis or "
+            "use the pooled-variance F."
+        )
+    big_n = int(n.sum())
+    g = int(np.count_nonzero(n))
+    df2 = big_n - g
+    if df2 < 1:
+        raise FitError(
+            f"the HC3 F needs residual degrees of freedom (N - cells = {df2}); collect more "
+            "than one row per cell."
+        )
+    v = np.zeros(k)
+    obs = n > 1
+    v[obs] = ss[obs] / (n[obs] - 1.0) ** 2
+    m = (cm * v) @ cm.T
+    diff = cm @ np.where(n > 0, mean, 0.0) - hv
+    try:
+        chol = np.linalg.cholesky(m)
+    except np.linalg.LinAlgError:
+        chol = None
+    if chol is None or np.min(np.diag(chol)) <= 1e-12 * np.sqrt(np.max(np.diag(m))):
+        raise FitError(
+            "the HC3 covariance of the contrasts is singular (the cells they use have no "
+            "spread), so the Wald F is undefined; check the data or use the rank test."
+        )
+    z = np.linalg.solve(chol, diff)
+    q = cm.shape[0]
+    f = float(z @ z) / q
+    return RobustWaldResult(
+        statistic=f, df1=q, df2=df2, p=float(stats.f.sf(f, q, df2)), method="HC3"
+    )

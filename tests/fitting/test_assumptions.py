@@ -1,0 +1,175 @@
+"""Tests of reporter.fitting.assumptions against scipy.stats (levene, shapiro) and statsmodels
+(OLS influence, ProbPlot)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from reporter.errors import FitError
+from reporter.fitting.assumptions import (
+    brown_forsythe,
+    find_outliers,
+    levene,
+    qq_points,
+    shapiro_wilk,
+    studentized_residuals,
+)
+
+pd = pytest.importorskip("pandas")
+sm = pytest.importorskip("statsmodels.api")
+
+DATA = Path(__file__).parents[1] / "data"
+
+
+def _plant_growth():
+    frame = pd.read_csv(DATA / "PlantGrowth.csv")
+    levels = ["ctrl", "trt1", "trt2"]
+    codes = frame["group"].map({lv: i for i, lv in enumerate(levels)}).to_numpy()
+    return frame["weight"].to_numpy(float), codes, 3
+
+
+def _tooth_growth():
+    """ToothGrowth as a 2 x 3 design, six cells (supp-major)."""
+    frame = pd.read_csv(DATA / "ToothGrowth.csv")
+    supp = frame["supp"].map({"OJ": 0, "VC": 1}).to_numpy()
+    dose = frame["dose"].map({0.5: 0, 1.0: 1, 2.0: 2}).to_numpy()
+    return frame["len"].to_numpy(float), supp * 3 + dose, 6
+
+
+def _random_unbalanced():
+    """Odd and even cell sizes (so medians are both middle values and midpoints), rows shuffled."""
+    rng = np.random.default_rng(1357)
+    sizes = [7, 10, 5, 12]
+    codes = np.repeat(np.arange(4), sizes)
+    y = rng.normal(np.repeat([0.0, 1.0, 0.5, 2.0], sizes), np.repeat([1.0, 2.0, 0.5, 1.5], sizes))
+    perm = rng.permutation(codes.size)
+    return y[perm], codes[perm], 4
+
+
+DATASETS = {"PlantGrowth": _plant_growth, "ToothGrowth": _tooth_growth, "random-unbalanced": _random_unbalanced}
+
+
+@pytest.mark.parametrize("name", list(DATASETS), ids=list(DATASETS))
+@pytest.mark.parametrize(
+    ("func", "center"), [(levene, "mean"), (brown_forsythe, "median")], ids=["levene", "brown-forsythe"]
+)
+def test_homogeneity_matches_scipy_levene(name, func, center):
+    """W and p equal scipy.stats.levene(center='mean' / 'median') (reference library)."""
+    y, codes, k = DATASETS[name]()
+    res = func(y, codes, k)
+    ref = stats.levene(*[y[codes == c] for c in range(k)], center=center)
+    assert res.center == center
+    assert res.statistic == pytest.approx(ref.statistic, rel=1e-10)
+    assert res.p == pytest.approx(ref.pvalue, rel=1e-8)
+    assert (res.df1, res.df2) == (k - 1, y.size - k)
+
+
+def test_homogeneity_undefined_for_pairs():
+    """Cells of two rows have equal absolute deviations, so Levene's F is undefined: FitError."""
+    with pytest.raises(FitError, match="no spread"):
+        levene([1.0, 2.0, 5.0, 9.0], [0, 0, 1, 1])
+
+
+@pytest.mark.parametrize("name", list(DATASETS), ids=list(DATASETS))
+def test_shapiro_matches_scipy_on_residuals(name):
+    """W and p equal scipy.stats.shapiro on y minus its cell mean (reference library)."""
+    y, codes, k = DATASETS[name]()
+    means = np.array([y[codes == c].mean() for c in range(k)])
+    ref = stats.shapiro(y - means[codes])
+    res = shapiro_wilk(y, codes, k)
+    assert not res.skipped and res.n == y.size
+    assert res.statistic == pytest.approx(ref.statistic, rel=1e-6)
+    assert res.p == pytest.approx(ref.pvalue, rel=1e-5)
+
+
+@pytest.mark.parametrize(
+    ("size", "reason"),
+    [(2, "too-few-rows"), (5001, "too-many-rows")],
+    ids=["n=2", "n=5001"],
+)
+def test_shapiro_skipped_outside_its_range(size, reason):
+    """Outside 3 <= n <= 5000 (range of Royston's 1995 approximation) the test is skipped and says why."""
+    rng = np.random.default_rng(5)
+    y = rng.normal(size=size)
+    res = shapiro_wilk(y, np.zeros(size, int))
+    assert res.skipped and res.reason == reason and res.p is None and res.n == size
+
+
+def test_shapiro_skips_leverage_one_rows():
+    """Rows alone in their cell are left out of the residuals tested."""
+    y, codes, k = _plant_growth()
+    y2 = np.append(y, 100.0)
+    codes2 = np.append(codes, 3)
+    assert shapiro_wilk(y2, codes2) == shapiro_wilk(y, codes)
+
+
+def _one_way_influence(y, codes, k):
+    fit = sm.OLS(y, np.eye(k)[codes]).fit()
+    return fit.get_influence()
+
+
+@pytest.mark.parametrize("name", list(DATASETS), ids=list(DATASETS))
+def test_studentized_residuals_match_statsmodels(name):
+    """Internal and external studentized residuals equal statsmodels OLS get_influence()
+    resid_studentized_internal / _external on the cell-means model (reference library)."""
+    y, codes, k = DATASETS[name]()
+    res = studentized_residuals(y, codes, k)
+    infl = _one_way_influence(y, codes, k)
+    np.testing.assert_allclose(res.internal, infl.resid_studentized_internal, rtol=1e-9)
+    np.testing.assert_allclose(res.external, infl.resid_studentized_external, rtol=1e-9)
+    np.testing.assert_allclose(res.leverage, infl.hat_matrix_diag, rtol=1e-12)
+
+
+def test_outlier_found_at_its_row():
+    """A planted gross error is flagged at its 0-based row, and its t equals statsmodels' external
+    studentized residual (reference library); clean rows are not flagged."""
+    y, codes, k = _random_unbalanced()
+    y = y.copy()
+    row = 17
+    y[row] += 9.0 * np.std(y)
+    scan = find_outliers(y, codes, k)
+    assert [o.row for o in scan.outliers] == [row]
+    ext = _one_way_influence(y, codes, k).resid_studentized_external
+    assert scan.outliers[0].external == pytest.approx(ext[row], rel=1e-9)
+    assert scan.outliers[0].cell == codes[row]
+    assert scan.skipped_rows == () and scan.note is None and scan.n_checked == y.size
+
+
+def test_outlier_scan_skips_leverage_one_rows():
+    """Rows alone in their cell are skipped with a note, not flagged (leverage 1)."""
+    y, codes, k = _plant_growth()
+    y2 = np.append(y, 100.0)
+    codes2 = np.append(codes, 3)
+    scan = find_outliers(y2, codes2)
+    assert scan.skipped_rows == (y.size,)
+    assert scan.note is not None and "leverage 1" in scan.note
+    assert all(o.row != y.size for o in scan.outliers)
+    assert scan.n_checked == y.size
+
+
+def test_qq_points_match_statsmodels_probplot():
+    """Blom positions (i - 3/8)/(n + 1/4) equal statsmodels ProbPlot(a=3/8) theoretical quantiles and
+    the sample is the sorted internally studentized residuals (reference library; Blom 1958)."""
+    y, codes, k = _tooth_growth()
+    qq = qq_points(y, codes, k)
+    internal = _one_way_influence(y, codes, k).resid_studentized_internal
+    ref = sm.ProbPlot(internal, a=3 / 8)
+    np.testing.assert_allclose(qq.theoretical, ref.theoretical_quantiles, rtol=1e-12)
+    np.testing.assert_allclose(qq.sample, np.sort(internal), rtol=1e-9)
+    np.testing.assert_allclose(np.asarray(qq.sample), internal[list(qq.rows)], rtol=1e-12)
+
+
+@pytest.mark.parametrize("func", [levene, brown_forsythe, shapiro_wilk], ids=["levene", "brown-forsythe", "shapiro"])
+def test_checks_invariant_to_affine_change_and_row_order(func):
+    """An affine change of the outcome and a reordering of rows leave every statistic unchanged
+    (invariance)."""
+    y, codes, k = _random_unbalanced()
+    perm = np.random.default_rng(2).permutation(y.size)
+    a = func(y, codes, k)
+    b = func(3.0 * y[perm] - 7.0, codes[perm], k)
+    assert b.statistic == pytest.approx(a.statistic, rel=1e-9)
+    assert b.p == pytest.approx(a.p, rel=1e-7)
