@@ -34,22 +34,53 @@ def analyse(prep) -> Analysis:
         correction=a.correction,
         pivot=data.pivot,
         pivot_exact=pivot_exact,
+        unequal_variances=a.unequal_variances,
+        posthoc=a.posthoc,
+        posthoc_on=a.posthoc_on,
+        control=a.control,
+        permutations=a.permutations,
+        seed=a.seed,
     )
 
 
 def render_outputs(prep, analysis: Analysis, formats) -> dict[str, bytes]:
-    """The bytes of each requested format."""
+    """The bytes of each requested format (imports only what those formats need)."""
     from reporter.render.results_json import render_json, results_dict
 
     provenance = collect_provenance(prep)
-    doc = results_dict(prep, analysis, provenance)
+    results = render_json(results_dict(prep, analysis, provenance))
+    document = None
+    if {"html", "pdf", "md"} & set(formats):
+        from reporter.narrative.build import build_document
+
+        document = build_document(prep, analysis, provenance)
     out: dict[str, bytes] = {}
     for fmt in formats:
         if fmt == "json":
-            out[fmt] = render_json(doc)
+            out[fmt] = results
+        elif fmt == "html":
+            from reporter.render.html import render_html
+
+            out[fmt] = render_html(document)
+        elif fmt == "md":
+            from reporter.render.markdown import render_markdown
+
+            out[fmt] = render_markdown(document)
+        elif fmt == "pdf":
+            from reporter.render.pdf import render_pdf
+
+            out[fmt] = render_pdf(document, _attachments(prep, results))
         else:
-            raise RenderError(f"--format {fmt}: this format is not available yet; use json.")
+            raise RenderError(f"--format {fmt}: unknown format.")
     return out
+
+
+def _attachments(prep, results: bytes) -> dict[str, bytes]:
+    """The plan file as read and the results JSON, embedded in the archival PDF."""
+    plan_bytes = b""
+    if prep.plan.source is not None:
+        plan_bytes = Path(prep.plan.source).read_bytes()
+    return {"plan.toml": plan_bytes, "results.json": results}
 
 
 def _check_out_dir(out: Path, plan, data_path: Path) -> None:
@@ -77,7 +108,10 @@ def write_outputs(prep, out: Path, formats) -> list[Path]:
             temps.append(tmp)
             with os.fdopen(fd, "wb") as fh:
                 fh.write(blob)
+        umask = os.umask(0)
+        os.umask(umask)
         for (fmt, _), tmp in zip(blobs.items(), temps):
+            os.chmod(tmp, 0o666 & ~umask)
             target = out / FILE_NAMES[fmt]
             os.replace(tmp, target)
             written.append(target)

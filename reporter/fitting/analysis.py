@@ -12,6 +12,7 @@ from scipy import stats
 
 from reporter.fitting.anova import AnovaTable, fit_anova
 from reporter.fitting.cellstats import CellStats, describe_cells
+from reporter.fitting.inference import HypothesisExtras, Inference, describe_inference
 from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model
 from reporter.fitting.multiplicity import adjust_p
 from reporter.model.design import Design
@@ -33,6 +34,20 @@ class CellSummary:
 
 
 @dataclass(frozen=True)
+class MarginalMean:
+    """The unweighted mean of the cell means at one level of one factor, with a model-based CI
+    (SE² = MSE · Σ w_c²/n_c for the averaging weights w; Searle 1987, section 4.9)."""
+
+    factor: str
+    level: str
+    mean: float | None
+    se: float | None
+    ci: tuple[float, float] | None
+    cells: int
+    note: str | None = None
+
+
+@dataclass(frozen=True)
 class HypothesisResult:
     """A compiled hypothesis with its test and its place in a multiplicity family."""
 
@@ -42,6 +57,11 @@ class HypothesisResult:
     p_adjusted: float | None
     correction: str
     notes: tuple[str, ...] = ()
+    extras: "HypothesisExtras | None" = None
+
+    @property
+    def effect_size(self):
+        return None if self.extras is None else self.extras.effect_size
 
 
 @dataclass(frozen=True)
@@ -55,6 +75,8 @@ class Analysis:
     anova: AnovaTable
     summaries: tuple[CellSummary, ...]
     hypotheses: tuple[HypothesisResult, ...]
+    marginal_means: tuple[MarginalMean, ...] = ()
+    inference: "Inference | None" = None
 
 
 def describe_cell_summaries(cells: CellStats, fit: ModelFit, alpha: float) -> tuple[CellSummary, ...]:
@@ -79,6 +101,25 @@ def describe_cell_summaries(cells: CellStats, fit: ModelFit, alpha: float) -> tu
     return tuple(out)
 
 
+def describe_marginal_means(design: Design, cells: CellStats, fit: ModelFit, alpha: float) -> tuple[MarginalMean, ...]:
+    """Unweighted marginal means of every level of every factor, with CIs at 1 − α."""
+    q = float(stats.t.ppf(1 - alpha / 2, fit.df_error))
+    out = []
+    for f in design.factors:
+        for level in f.levels:
+            idx = [c.index for c in design.cells if c.as_dict()[f.name] == level]
+            n = cells.n[idx]
+            if np.any(n == 0):
+                out.append(MarginalMean(f.name, level, None, None, None, len(idx),
+                                        "not estimable as an unweighted mean: a cell at this level is empty"))
+                continue
+            w = 1.0 / len(idx)
+            mean = math.fsum(cells.offset_mean[idx].tolist()) * w + cells.pivot
+            se = math.sqrt(fit.mse * math.fsum((w * w / n).tolist()))
+            out.append(MarginalMean(f.name, level, mean, se, (mean - q * se, mean + q * se), len(idx)))
+    return tuple(out)
+
+
 def fit_analysis(
     design: Design,
     y: np.ndarray,
@@ -90,21 +131,36 @@ def fit_analysis(
     correction: str = "holm",
     pivot: float = 0.0,
     pivot_exact: Fraction | None = None,
+    inference: bool = True,
+    unequal_variances: str = "classical",
+    posthoc: Sequence[str] = (),
+    posthoc_on: str = "cells",
+    control: str | None = None,
+    permutations: int = 10_000,
+    seed: int = 0,
 ) -> Analysis:
-    """Cell statistics, the full-model fit, the ANOVA table and a test of every hypothesis.
+    """Cell statistics, the full-model fit, the ANOVA table and a test of every hypothesis,
+    with (unless ``inference=False``) effect sizes, checks, robust tests and post-hoc families.
 
     p-values are adjusted within two families: the planned hypotheses (the confirmatory family)
-    and, separately, the exploratory ones, each with ``correction``.
+    and, separately, the exploratory ones, each with ``correction``. The p that enters the
+    adjustment is that of the confirmatory test chosen by ``unequal_variances``.
     """
     cells = describe_cells(y, cell, design.k, pivot, pivot_exact)
     fit = fit_model(cells, design.matrix)
     table = fit_anova(design, fit, ss_type)
     tests = [fit_contrast(fit, c.weights, c.rhs, c.alternative, alpha, c.test) for c in contrasts]
+    inf = None
+    if inference:
+        inf = describe_inference(design, y, cell, cells, fit, table, contrasts, tests, alpha=alpha,
+                                 policy=unequal_variances, posthoc=posthoc, posthoc_on=posthoc_on,
+                                 control=control, permutations=permutations, seed=seed)
+    confirm_p = [t.p if inf is None else e.confirmatory_p for t, e in zip(tests, inf.hypotheses if inf else tests)]
     adjusted: dict[int, float | None] = {}
     for family in ("planned", "exploratory"):
         idx = [i for i, c in enumerate(contrasts) if c.role == family]
         if idx:
-            res = adjust_p([tests[i].p for i in idx], correction)
+            res = adjust_p([confirm_p[i] for i in idx], correction)
             adjusted.update(zip(idx, res.p_adjusted))
     results = []
     for i, (c, t) in enumerate(zip(contrasts, tests)):
@@ -114,7 +170,10 @@ def fit_analysis(
                 f"This effect is tested on unweighted means (Type III); the ANOVA table uses Type "
                 f"{ss_type}, whose row for the same effect weights the cells by their n and can differ."
             )
-        results.append(HypothesisResult(c, t, c.role, adjusted.get(i), correction, tuple(notes)))
+        extra = inf.hypotheses[i] if inf else None
+        if extra is not None and extra.confirmatory == "robust":
+            notes.append(f"The confirmatory test is the {extra.robust.method}: {extra.reason}.")
+        results.append(HypothesisResult(c, t, c.role, adjusted.get(i), correction, tuple(notes), extra))
     return Analysis(
         alpha=alpha,
         design=design,
@@ -123,4 +182,6 @@ def fit_analysis(
         anova=table,
         summaries=describe_cell_summaries(cells, fit, alpha),
         hypotheses=tuple(results),
+        marginal_means=describe_marginal_means(design, cells, fit, alpha),
+        inference=inf,
     )

@@ -32,6 +32,110 @@ def _pair(ci):
     return None if ci is None else [_num(ci[0]), _num(ci[1])]
 
 
+def _effect(es) -> dict[str, Any] | None:
+    if es is None:
+        return None
+    out = {"name": es.name, "value": _num(es.value), "ci": _pair(es.ci), "ci_level": _num(es.ci_level),
+           "method": es.method}
+    if es.ci_method:
+        out["ci_method"] = es.ci_method
+    return out
+
+
+def _robust(r) -> dict[str, Any] | None:
+    if r is None:
+        return None
+    out = {"method": r.method, "test": r.test, "statistic": _num(r.statistic), "df": [_num(d) for d in r.df],
+           "p": _num(r.p)}
+    if r.estimate is not None:
+        out["estimate"] = _num(r.estimate)
+    if r.ci is not None:
+        out["ci"] = _pair(r.ci)
+    if r.note:
+        out["note"] = r.note
+    return out
+
+
+def _perm(r) -> dict[str, Any] | None:
+    if r is None:
+        return None
+    return {"method": r.method, "statistic": _num(r.statistic), "p": _num(r.p), "mc_se": _num(r.mc_se),
+            "n_permutations": r.n_permutations, "n_at_least_observed": r.n_extreme, "seed": r.seed}
+
+
+def _family(fam, on, res, labels) -> dict[str, Any]:
+    return {
+        "family": fam,
+        "method": res.method,
+        "on": on,
+        "alpha": res.alpha,
+        "control": labels[res.control] if res.control is not None else None,
+        "comparisons": [
+            {"first": labels[c.first], "second": labels[c.second], "difference": _num(c.difference), "se": _num(c.se),
+             "statistic": _num(c.statistic), "df": _num(c.df), "p_adjusted": _num(c.p_adjusted),
+             "ci": _pair((c.ci_low, c.ci_high))}
+            for c in res.comparisons
+        ],
+    }
+
+
+def _inference_dict(prep, analysis) -> dict[str, Any]:
+    inf = analysis.inference
+    if inf is None:
+        return {}
+    a = inf.assumptions
+    rows = prep.data.rows
+
+    def homog(r):
+        return None if r is None else {"method": r.method, "center": r.center, "statistic": _num(r.statistic),
+                                       "df": [r.df1, r.df2], "p": _num(r.p)}
+
+    sw = a.shapiro
+    out = {
+        "assumptions": {
+            "brown_forsythe": homog(a.brown_forsythe),
+            "levene": homog(a.levene),
+            "unequal_variances_indicated": a.heterogeneous,
+            "shapiro_wilk": {"n": sw.n, "statistic": _num(sw.statistic), "p": _num(sw.p), "skipped": sw.skipped,
+                             **({"note": f"skipped: {sw.reason}"} if sw.skipped else {})},
+            "qq": {"theoretical": [_num(v) for v in a.qq.theoretical], "sample": [_num(v) for v in a.qq.sample]},
+            "outliers": {
+                "threshold": a.outliers.threshold,
+                "rule": "externally studentized residual beyond ±threshold",
+                "rows": [{"row": int(rows[o.row]), "cell": analysis.design.cells[_cell_of(analysis, o.cell)].as_dict(),
+                          "residual": _num(o.residual), "studentized": _num(o.external)} for o in a.outliers.outliers],
+            },
+            "notes": list(a.notes),
+        },
+        "unequal_variances_policy": inf.policy,
+        "robust": {
+            "kruskal_wallis": None if inf.kruskal is None else {
+                "statistic": _num(inf.kruskal.statistic), "df": inf.kruskal.df, "p": _num(inf.kruskal.p),
+                "over": "cells"},
+            "welch_anova": None if inf.welch_oneway is None else {
+                "statistic": _num(inf.welch_oneway.statistic), "df": [_num(inf.welch_oneway.df1), _num(inf.welch_oneway.df2)],
+                "p": _num(inf.welch_oneway.p)},
+        },
+        "posthoc": [_family(*f) for f in inf.posthoc],
+        "games_howell": None if inf.games_howell is None else _family(
+            "all-pairs-unequal-variances", "cells", inf.games_howell, tuple(c.short for c in analysis.design.cells)),
+    }
+    if inf.outlier_sensitivity is not None:
+        s = inf.outlier_sensitivity
+        out["outlier_sensitivity"] = {
+            "rows_removed": [int(rows[r]) for r in s.rows_removed],
+            "tests": [{"name": name, "statistic": None if t is None else _num(t.statistic),
+                       "p": None if t is None else _num(t.p), **({"note": note} if note else {})}
+                      for name, t, note in s.tests],
+        }
+    return out
+
+
+def _cell_of(analysis, compact_index: int) -> int:
+    observed = [i for i, n in enumerate(analysis.cells.n) if n > 0]
+    return observed[compact_index]
+
+
 def results_dict(prep, analysis, provenance) -> dict[str, Any]:
     """The results document as plain Python values, ready for ``json.dumps``."""
     plan, data, design = prep.plan, prep.data, analysis.design
@@ -60,6 +164,17 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
                "F": _num(r.F), "p": _num(r.p)}
         if r.note:
             row["note"] = r.note
+        extra = analysis.inference.rows[len(rows)] if analysis.inference else None
+        if extra is not None and extra.effect_sizes is not None:
+            es = extra.effect_sizes
+            row["effect_sizes"] = [_effect(e) for e in es.effect_sizes()]
+            row["effect_size_interval_rule"] = es.ci_rule
+            row["noncentrality_mapping"] = es.noncentrality_mapping
+            row["robust"] = _robust(extra.robust)
+            row["permutation"] = _perm(extra.permutation)
+            sens = extra.sensitivity
+            row["sensitivity"] = {"powers": list(sens.powers), "detectable_cohens_f": [_num(f) for f in sens.detectable_f],
+                                  "alpha": sens.alpha, "convention": sens.convention}
         rows.append(row)
     rows.append({"source": "residual", "df": table.df_error, "ss": _num(table.ss_error), "ms": _num(table.ms_error)})
 
@@ -106,6 +221,13 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
             },
             "notes": list(h.notes),
         }
+        if h.extras is not None:
+            e = h.extras
+            entry["effect_size"] = _effect(e.effect_size)
+            entry["effect_sizes"] = [_effect(x) for x in e.effect_sizes]
+            entry["robust"] = _robust(e.robust)
+            entry["permutation"] = _perm(e.permutation)
+            entry["confirmatory"] = {"test": e.confirmatory, "p": _num(e.confirmatory_p), "reason": e.reason}
         if t.test == "t":
             entry.update(
                 estimate=_num(t.estimate),
@@ -136,6 +258,12 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
             "parameterization": a.parameterization,
             "ss_type": a.ss_type,
             "correction": a.correction,
+            "unequal_variances": a.unequal_variances,
+            "posthoc": list(a.posthoc),
+            "posthoc_on": a.posthoc_on,
+            "control": a.control,
+            "permutations": a.permutations,
+            "seed": a.seed,
         },
         "data": {
             "outcome": data.outcome,
@@ -167,6 +295,7 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
         "hypotheses": hyps,
         "notes": notes,
     }
+    doc.update(_inference_dict(prep, analysis))
     return doc
 
 

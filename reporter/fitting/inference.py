@@ -1,0 +1,294 @@
+"""Everything around the tests: effect sizes, assumption checks, robust alternatives, post-hoc
+families, power, and which test is confirmatory under the plan's unequal-variance policy.
+
+Each piece is computed by its own module; this one decides what applies to the design and the
+plan and collects the results. The choice rule for unequal variances:
+
+* ``classical``: the equal-variance tests are confirmatory; robust versions are shown beside them;
+* ``robust-if-heterogeneous``: the robust version is confirmatory when the Brown–Forsythe test
+  rejects equal variances at α. This two-stage rule distorts error rates (Zimmerman (2004),
+  "A note on preliminary tests of equality of variances", British Journal of Mathematical and
+  Statistical Psychology 57, 173-181);
+* ``always-robust``: the robust version is always confirmatory, which avoids that distortion.
+
+Robust versions: a Welch–Satterthwaite t for a one-row contrast, Welch's ANOVA for a one-way
+effect, and an HC3 Wald F otherwise.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from reporter.errors import FitError
+from reporter.fitting import assumptions as A
+from reporter.fitting import posthoc as P
+from reporter.fitting import robust as R
+from reporter.fitting.cellstats import CellStats, describe_cells
+from reporter.fitting.effectsizes import AnovaEffectSizes, EffectSize, describe_anova_effect_sizes, standardized_contrast
+from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model
+from reporter.fitting.permutation import PermutationResult, permutation_f_test
+from reporter.fitting.power import Sensitivity, describe_sensitivity
+from reporter.intake.plan import level_key
+from reporter.errors import PlanError
+from reporter.model.hypotheses import compile_effect
+
+
+@dataclass(frozen=True)
+class RobustTest:
+    """A robust alternative to one classical test (statistic, df, p; an interval for t)."""
+
+    method: str
+    test: str
+    statistic: float
+    df: tuple[float, ...]
+    p: float
+    estimate: float | None = None
+    ci: tuple[float | None, float | None] | None = None
+    note: str | None = None
+
+
+@dataclass(frozen=True)
+class HypothesisExtras:
+    """Effect sizes and robust alternatives of one hypothesis, and the confirmatory choice."""
+
+    effect_size: EffectSize | None
+    effect_sizes: tuple[EffectSize, ...]
+    robust: RobustTest | None
+    permutation: PermutationResult | None
+    confirmatory: str  # "classical" or "robust"
+    confirmatory_p: float
+    reason: str
+
+
+@dataclass(frozen=True)
+class AssumptionChecks:
+    brown_forsythe: A.HomogeneityResult | None
+    levene: A.HomogeneityResult | None
+    shapiro: A.NormalityResult
+    qq: A.QQData
+    outliers: A.OutlierScan
+    residuals_by_cell: tuple[tuple[float, ...], ...]
+    heterogeneous: bool
+    notes: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class OutlierSensitivity:
+    """Planned tests rerun without the flagged rows (reported beside, never substituted)."""
+
+    rows_removed: tuple[int, ...]
+    tests: tuple[tuple[str, ContrastTest | None, str | None], ...]
+
+
+@dataclass(frozen=True)
+class RowExtras:
+    """Per ANOVA row: effect sizes, robust F, permutation F and sensitivity (power)."""
+
+    effect_sizes: AnovaEffectSizes | None
+    robust: RobustTest | None
+    permutation: PermutationResult | None
+    sensitivity: Sensitivity | None
+
+
+@dataclass(frozen=True)
+class Inference:
+    rows: tuple[RowExtras, ...]
+    hypotheses: tuple[HypothesisExtras, ...]
+    assumptions: AssumptionChecks
+    kruskal: R.KruskalWallisResult | None
+    welch_oneway: R.WelchAnovaResult | None
+    posthoc: tuple[tuple[str, str, P.ComparisonFamily], ...]  # (family key, target, result)
+    games_howell: P.ComparisonFamily | None
+    outlier_sensitivity: OutlierSensitivity | None
+    policy: str
+    notes: tuple[str, ...]
+
+
+def _observed(cells: CellStats):
+    o = cells.observed
+    return o, cells.n[o], cells.mean[o], cells.ss[o]
+
+
+def _compact_codes(cell: np.ndarray, observed: np.ndarray) -> np.ndarray:
+    remap = np.cumsum(observed) - 1
+    return remap[cell]
+
+
+def check_assumptions(y, cell, cells: CellStats, alpha: float) -> AssumptionChecks:
+    o = cells.observed
+    codes = _compact_codes(cell, o)
+    k = int(o.sum())
+    notes = []
+    try:
+        bf = A.brown_forsythe(y, codes, k)
+        lev = A.levene(y, codes, k)
+    except FitError as exc:
+        bf = lev = None
+        notes.append(f"Variance checks not possible: {exc}")
+    sw = A.shapiro_wilk(y, codes, k)
+    qq = A.qq_points(y, codes, k)
+    out = A.find_outliers(y, codes, k)
+    resid = y - cells.offset_mean[cell]
+    by_cell = tuple(tuple(float(v) for v in resid[cell == c]) for c in range(cells.k))
+    hetero = bool(bf is not None and bf.p is not None and bf.p < alpha)
+    return AssumptionChecks(bf, lev, sw, qq, out, by_cell, hetero, tuple(notes))
+
+
+def _robust_for(contrast, cells: CellStats, one_way_effect: bool, alpha: float) -> RobustTest | None:
+    o, n, mean, ss = _observed(cells)
+    C = contrast.C[:, o]
+    h = contrast.h
+    try:
+        if contrast.test == "t" and contrast.q == 1:
+            r = R.welch_contrast(C[0], n, mean, ss, h=float(h[0]), alternative=contrast.alternative, alpha=alpha)
+            return RobustTest("Welch–Satterthwaite t", "t", r.statistic, (r.df,), r.p, r.estimate, (r.ci_low, r.ci_high))
+        if one_way_effect:
+            r = R.welch_anova(n, mean, ss)
+            return RobustTest("Welch's ANOVA", "F", r.statistic, (r.df1, r.df2), r.p)
+        r = R.hc3_wald(C, n, mean, ss, h=h)
+        return RobustTest("HC3 Wald F", "F", r.statistic, (r.df1, r.df2), r.p)
+    except FitError as exc:
+        return RobustTest("not available", contrast.test, float("nan"), (), float("nan"), note=str(exc))
+
+
+def _clean_ci(ci):
+    if ci is None:
+        return None
+    lo, hi = ci
+    lo = None if lo is None or not np.isfinite(lo) else float(lo)
+    hi = None if hi is None or not np.isfinite(hi) else float(hi)
+    return (lo, hi)
+
+
+def describe_inference(design, y, cell, cells: CellStats, fit: ModelFit, table, contrasts, tests, *, alpha: float,
+                       policy: str = "classical", posthoc=(), posthoc_on="cells", control=None,
+                       permutations: int = 10_000, seed: int = 0) -> Inference:
+    """Collect effect sizes, checks, robust tests, post-hoc families and power for one fit."""
+    notes = []
+    checks = check_assumptions(y, cell, cells, alpha)
+    o, n_obs, mean_obs, ss_obs = _observed(cells)
+    codes = _compact_codes(cell, o)
+    one_way = len(design.factors) == 1
+
+    rows = []
+    for r in table.rows:
+        if not r.testable:
+            rows.append(RowExtras(None, None, None, None))
+            continue
+        es = describe_anova_effect_sizes(r.ss, r.df, fit.ss_error, fit.df_error, fit.ss_total, cells.n_total,
+                                         alpha=alpha)
+        eff = compile_effect(design, " x ".join(r.factors))
+        sens = describe_sensitivity(r.df, cells.n_total, fit.df_error, alpha=alpha)
+        if np.any(eff.C[:, ~o] != 0):  # the unweighted-means contrast needs an empty cell
+            rows.append(RowExtras(es, None, None, sens))
+            continue
+        rob = _robust_for(eff, cells, one_way, alpha)
+        perm = None
+        if permutations > 0:
+            perm = permutation_f_test(y, codes, int(o.sum()), eff.C[:, o], n_permutations=permutations, seed=seed)
+        rows.append(RowExtras(es, rob, perm, sens))
+
+    extras = []
+    for c, t in zip(contrasts, tests):
+        if t.test == "t":
+            sc = standardized_contrast([float(w) for w in c.weights[0]], float(c.rhs[0]), t.estimate, cells.n,
+                                       fit.mse, fit.df_error, level=1 - alpha,
+                                       alternative=c.alternative)
+            primary, sizes = sc.d, (sc.d, sc.g)
+        else:
+            es = describe_anova_effect_sizes(t.ss, t.df[0], fit.ss_error, fit.df_error, fit.ss_total, cells.n_total,
+                                             alpha=alpha)
+            primary, sizes = es.partial_eta_squared, (es.partial_eta_squared, es.cohens_f)
+        is_oneway_effect = one_way and c.kind == "effect"
+        rob = _robust_for(c, cells, is_oneway_effect, alpha)
+        perm = None
+        if c.test == "F" and permutations > 0 and np.allclose(c.h, 0) and np.allclose(c.C.sum(axis=1), 0):
+            perm = permutation_f_test(y, codes, int(o.sum()), c.C[:, o], n_permutations=permutations, seed=seed)
+        robust_ok = rob is not None and np.isfinite(rob.p)
+        if policy == "always-robust" and robust_ok:
+            choice, reason = "robust", "the plan makes the robust test confirmatory (always-robust)"
+        elif policy == "robust-if-heterogeneous" and checks.heterogeneous and robust_ok:
+            choice, reason = "robust", "the Brown–Forsythe test indicated unequal variances (robust-if-heterogeneous)"
+        elif policy == "robust-if-heterogeneous":
+            choice, reason = "classical", "the Brown–Forsythe test did not indicate unequal variances (robust-if-heterogeneous)"
+        elif policy == "always-robust":
+            choice, reason = "classical", "the robust test was not available: " + (rob.note if rob else "")
+        else:
+            choice, reason = "classical", "the plan makes the classical test confirmatory"
+        p = rob.p if choice == "robust" else t.p
+        extras.append(HypothesisExtras(primary, sizes, rob, perm, choice, p, reason))
+
+    kw = R.kruskal_wallis(y, codes, int(o.sum())) if int(o.sum()) >= 2 else None
+    welch = R.welch_anova(n_obs, mean_obs, ss_obs) if one_way else None
+
+    families = []
+    gh = None
+    for fam in posthoc:
+        families.append(_posthoc_family(fam, design, cells, fit, alpha, posthoc_on, control, seed))
+    if "all-pairs" in posthoc and posthoc_on == "cells" and np.all(cells.n > 1):
+        gh = R.games_howell(cells.n, cells.mean, cells.ss, alpha=alpha)
+
+    sens = _outlier_sensitivity(design, y, cell, cells, checks, contrasts, alpha)
+    return Inference(tuple(rows), tuple(extras), checks, kw, welch, tuple(families), gh, sens, policy, tuple(notes))
+
+
+def _posthoc_family(fam, design, cells, fit, alpha, on, control, seed):
+    if on == "cells":
+        labels = [c.short for c in design.cells]
+        weights = None
+        n = cells.n
+        est = cells.mean
+    else:
+        f = design.factor(on)
+        labels = list(f.levels)
+        W = np.zeros((len(f.levels), design.k))
+        for i, lv in enumerate(f.levels):
+            idx = [c.index for c in design.cells if c.as_dict()[on] == lv]
+            W[i, idx] = 1.0 / len(idx)
+        weights = W
+        n = cells.n
+        est = W @ np.nan_to_num(cells.mean)
+    if fam == "all-pairs":
+        res = P.tukey_kramer(est, n, fit.mse, fit.df_error, weights=weights, alpha=alpha)
+    elif fam == "versus-control":
+        ctrl = _control_index(labels, control, design, on)
+        res = P.dunnett(est, n, fit.mse, fit.df_error, control=ctrl, weights=weights, alpha=alpha, seed=seed)
+    else:
+        res = P.scheffe_pairs(est, n, fit.mse, fit.df_error, weights=weights, alpha=alpha)
+    return (fam, on, res, tuple(labels))
+
+
+def _control_index(labels, control, design, on) -> int:
+    keys = [level_key(lv) for lv in labels]
+    k = level_key(control)
+    if k in keys:
+        return keys.index(k)
+    raise PlanError(
+        f"'analysis.control' is \"{control}\", which is not one of the compared groups "
+        f"({', '.join(labels)}). Name one of them (for cells of several factors use the form a/b)."
+    )
+
+
+def _outlier_sensitivity(design, y, cell, cells, checks, contrasts, alpha) -> OutlierSensitivity | None:
+    flagged = tuple(o.row for o in checks.outliers.outliers)
+    if not flagged:
+        return None
+    keep = np.ones(y.shape[0], bool)
+    keep[list(flagged)] = False
+    cs2 = describe_cells(y[keep], cell[keep], cells.k, cells.pivot, cells.pivot_exact)
+    try:
+        fit2 = fit_model(cs2, design.matrix)
+    except FitError as exc:
+        return OutlierSensitivity(flagged, tuple((c.name, None, str(exc)) for c in contrasts if c.role == "planned"))
+    out = []
+    for c in contrasts:
+        if c.role != "planned":
+            continue
+        touched = np.any(c.C[:, cs2.n == 0] != 0)
+        if touched:
+            out.append((c.name, None, "removing the flagged rows empties a cell this hypothesis needs"))
+            continue
+        out.append((c.name, fit_contrast(fit2, c.weights, c.rhs, c.alternative, alpha, c.test), None))
+    return OutlierSensitivity(flagged, tuple(out))

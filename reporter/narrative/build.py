@@ -1,0 +1,843 @@
+"""Build the report's document model from fitted results: all wording lives here.
+
+The numbers come from the fitting layer (``Analysis``) and are formatted only through
+:mod:`reporter.narrative.numbers`. Nothing is computed here beyond choosing words (for example
+"larger" or "smaller" from the sign of an estimate) and picking values to show.
+
+Reporting guidance followed: APA Journal Article Reporting Standards for quantitative research
+(Appelbaum et al. (2018), American Psychologist 73(1), 3-25) and Wilkinson & the Task Force on
+Statistical Inference (1999), American Psychologist 54(8), 594-604: every test with an effect size
+and interval, assumptions with their checks, multiplicity stated, no claim from a non-significant
+result that an effect is absent.
+"""
+
+from __future__ import annotations
+
+from fractions import Fraction
+from typing import Sequence
+
+from reporter.narrative import numbers as N
+from reporter.narrative.document import (
+    BulletList, Column, DefinitionList, Document, Figure, FigureSpec, Note, Paragraph, Section, Table, plain, runs_of,
+)
+
+CORRECTION_NAMES = {
+    "holm": "Holm's (1979) step-down procedure",
+    "hochberg": "Hochberg's (1988) step-up procedure",
+    "bonferroni": "the Bonferroni correction",
+    "benjamini-hochberg": "the Benjamini–Hochberg (1995) false-discovery-rate procedure",
+    "none": "no correction",
+}
+CORRECTION_SHORT = {
+    "holm": "Holm-adjusted",
+    "hochberg": "Hochberg-adjusted",
+    "bonferroni": "Bonferroni-adjusted",
+    "benjamini-hochberg": "BH-adjusted",
+    "none": "unadjusted",
+}
+PARAM_WORDS = {
+    "cell-means": "cell-means coding (one coefficient per cell, each the mean of its cell)",
+    "effects": "effects coding (sum to zero; the last listed level of each factor is coded −1, "
+    "so each coefficient is a deviation from an average of cell means)",
+    "reference": "reference coding (the first listed level of each factor is the reference, "
+    "so each coefficient is a difference from the reference cell)",
+}
+SS_WHY = {
+    "III": "Type III sums of squares (unweighted means): each effect is a hypothesis about the "
+    "unweighted marginal means, so it does not depend on how many observations each cell happens to have",
+    "II": "Type II sums of squares (each effect adjusted for the other main effects): appropriate "
+    "when interactions are assumed absent",
+    "I": "Type I sums of squares (sequential, in the order the factors are listed in the plan): "
+    "each effect is adjusted only for the effects listed before it",
+}
+
+
+def _fr(x: Fraction) -> str:
+    if x == 0:
+        return "0"
+    s = str(abs(x.numerator)) if x.denominator == 1 else f"{abs(x.numerator)}/{x.denominator}"
+    return (N.MINUS if x < 0 else "") + s
+
+
+def _unquote(statement: str) -> str:
+    """A statement for display: the backticks that quote names in the plan are dropped."""
+    return statement.replace("`", "")
+
+
+def _num(x, d=2) -> str:
+    return N.format_number(x, d)
+
+
+def _words_list(items: Sequence[str]) -> str:
+    items = list(items)
+    if len(items) <= 1:
+        return "".join(items)
+    if len(items) == 2:
+        return f"{items[0]} and {items[1]}"
+    return ", ".join(items[:-1]) + f", and {items[-1]}"
+
+
+_NUMBER_WORDS = ["no", "one", "two", "three", "four", "five", "six", "seven", "eight", "nine", "ten"]
+
+
+def _count_words(n: int, noun: str, plural: str | None = None) -> str:
+    word = _NUMBER_WORDS[n] if 0 <= n < len(_NUMBER_WORDS) else str(n)
+    return f"{word} {noun if n == 1 else (plural or noun + 's')}"
+
+
+class _Builder:
+    def __init__(self, prep, analysis, provenance):
+        self.prep = prep
+        self.a = analysis
+        self.prov = provenance
+        self.plan = prep.plan
+        self.design = analysis.design
+        self.alpha = analysis.alpha
+        self.level = 1 - analysis.alpha
+        self.multi = len(self.design.factors) > 1
+        self.inf = getattr(analysis, "inference", None)
+
+    # -- helpers ------------------------------------------------------------------------------
+    def cell_name(self, cell) -> str:
+        return cell.label if self.multi else cell.levels[0]
+
+    def p_text(self, h) -> N.Stat:
+        adj = h.p_adjusted
+        parts = [N.stat_p(h.test.p)]
+        if h.correction != "none" and adj is not None:
+            parts.append(N.text(f"{CORRECTION_SHORT[h.correction]} ") + N.stat_p(adj))
+        return N.join_stats(parts)
+
+    def test_stat(self, t) -> N.Stat:
+        if t.test == "t":
+            return N.stat_t(t.statistic, t.df[0])
+        return N.stat_f(t.statistic, t.df[0], t.df[1])
+
+    def ci_stat(self, t) -> N.Stat:
+        low, high = t.ci
+        return N.stat_ci(float("-inf") if low is None else low, float("inf") if high is None else high, t.ci_level)
+
+    def decision_p(self, h) -> float:
+        return h.p_adjusted if h.p_adjusted is not None else h.test.p
+
+    # -- sections -----------------------------------------------------------------------------
+    def summary(self) -> tuple[Paragraph, ...]:
+        a, plan = self.a, self.plan
+        planned = [h for h in a.hypotheses if h.family == "planned"]
+        supported = [h for h in planned if self.decision_p(h) < self.alpha]
+        text = (plan.summary.strip() + " ") if plan.summary else ""
+        text += (f"This report analyses {N.format_count(self.prep.data.n)} observations of "
+                 f"{self.prep.data.outcome} in {self.design_phrase()}. ")
+        if planned:
+            k = len(supported)
+            text += (f"{k} of the {len(planned)} planned hypotheses {'was' if k == 1 else 'were'} supported at "
+                     f"α = {N.format_bounded(self.alpha, 2)} after {CORRECTION_NAMES[planned[0].correction]}; "
+                     "each is reported below with its estimate, interval and effect size.")
+        else:
+            text += "The plan states no planned hypothesis."
+        return (
+            Paragraph(runs_of(text), "lead"),
+            Paragraph(runs_of(
+                "The data are analysed exactly as the plan file states; every number below can be recomputed "
+                "from the recorded inputs (see “Where this report came from”)."), "small"),
+        )
+
+    def design_phrase(self) -> str:
+        fs = self.design.factors
+        if len(fs) == 1:
+            f = fs[0]
+            return f"a one-factor between-subjects design ({f.name}: {len(f.levels)} levels)"
+        parts = [f"{f.name} ({len(f.levels)} levels)" for f in fs]
+        dims = " × ".join(str(len(f.levels)) for f in fs)
+        return f"a {dims} between-subjects design crossing {_words_list(parts)}"
+
+    def methods(self) -> Section:
+        plan, a, d, data = self.plan, self.a, self.design, self.prep.data
+        blocks = []
+        fs = d.factors
+        if len(fs) == 1:
+            f = fs[0]
+            design_txt = (
+                f"Design. One between-subjects factor, {f.name}, with {len(f.levels)} levels "
+                f"({', '.join(f.levels)}), so the analysis has {d.k} cells (groups)."
+            )
+        else:
+            listed = "; ".join(f"{f.name}: {', '.join(f.levels)}" for f in fs)
+            design_txt = (
+                f"Design. {_count_words(len(fs), 'between-subjects factor').capitalize()}, fully crossed "
+                f"into {d.k} cells ({listed})."
+            )
+        blocks.append(Paragraph(runs_of(design_txt)))
+
+        excl = data.exclusions
+        if excl:
+            reasons = "; ".join(f"{e.count} for {e.reason}" for e in excl)
+            left = sum(e.count for e in excl)
+            sample = (
+                f"Sample. The data file {self.prov.data_file} held {N.format_count(data.n_read)} rows; "
+                f"{N.format_count(data.n)} were analysed and {N.format_count(left)} left out ({reasons}). "
+                "No row was dropped silently; the row numbers are listed in the results file."
+            )
+        else:
+            sample = (
+                f"Sample. All {N.format_count(data.n_read)} rows of the data file {self.prov.data_file} were "
+                "analysed; no row was left out."
+            )
+        blocks.append(Paragraph(runs_of(sample)))
+        miss = self.missing_by_cell()
+        if miss:
+            blocks.append(Paragraph(runs_of("Missing outcome values by cell: " + miss + ".")))
+        empty = [self.cell_name(c) for c, n in zip(d.cells, self.prep.counts) if n == 0]
+        if empty:
+            blocks.append(Paragraph(runs_of(
+                f"Empty cells (no data): {', '.join(empty)}. Hypotheses and effects that need them "
+                "cannot be estimated and are marked as such.")))
+
+        blocks.append(Paragraph(runs_of(
+            f"Model. The outcome, {data.outcome}, was modelled by a linear model with one mean per cell "
+            f"(the full model, including all interactions), fitted by ordinary least squares and "
+            f"parameterized with {PARAM_WORDS[d.parameterization]}. The parameterization changes what "
+            "each coefficient means, never the test of a hypothesis about means.")))
+        why = SS_WHY[a.anova.ss_type]
+        agree = " The design is balanced, so Types I, II and III coincide." if a.anova.balanced and self.multi else ""
+        if not self.multi:
+            agree = " With one factor, the three types coincide."
+        blocks.append(Paragraph(runs_of(f"The ANOVA table uses {why}.{agree}")))
+
+        planned = [h for h in a.hypotheses if h.family == "planned"]
+        explor = [h for h in a.hypotheses if h.family == "exploratory"]
+        if a.hypotheses:
+            items = []
+            for h in a.hypotheses:
+                c = h.contrast
+                kind = ("directional, one-sided t test" if c.alternative != "two-sided"
+                        else "two-sided t test" if c.test == "t" else f"F test with {c.q} numerator df")
+                items.append(runs_of(f"{h.contrast.name} ({h.family}; {kind}): H0: {_unquote(c.null_text())}"))
+            blocks.append(Paragraph(runs_of(
+                f"Hypotheses. The plan states {_count_words(len(planned), 'planned hypothesis', 'planned hypotheses')}"
+                f" (the confirmatory family) and {_count_words(len(explor), 'exploratory one', 'exploratory ones')}:")))
+            blocks.append(BulletList(tuple(items)))
+        corr = a.hypotheses[0].correction if a.hypotheses else plan.analysis.correction
+        blocks.append(Paragraph(runs_of(
+            f"Error rates. Every test used α = {N.format_bounded(self.alpha, 2)}. Directional hypotheses "
+            "(written with > or <) were tested one-sided, in the stated direction; the others two-sided. "
+            f"p values were adjusted with {CORRECTION_NAMES[corr]} within the planned family"
+            + (", and separately within the exploratory family" if explor else "")
+            + f". Confidence intervals are at {N.format_confidence_level(self.level)}"
+            f" (one-sided bounds for one-sided tests); intervals for η²-type effect sizes are at "
+            f"{N.format_confidence_level(1 - 2 * self.alpha)}, which matches a test at α = "
+            f"{N.format_bounded(self.alpha, 2)} (Steiger, 2004).")))
+        blocks.extend(self.assumption_methods())
+        study = self.plan.study
+        fields = [("Sample-size rationale", study.sample_size_rationale), ("Allocation and randomization", study.allocation),
+                  ("Blinding", study.blinding), ("Stopping rule", study.stopping_rule), ("Pre-set exclusion rules", study.exclusion_rules)]
+        given = [(k, v) for k, v in fields if v]
+        if given:
+            blocks.append(DefinitionList(tuple((runs_of(k), runs_of(v.strip())) for k, v in given)))
+        soft = ", ".join(f"{k} {v}" for k, v in self.prov.software)
+        blocks.append(Paragraph(runs_of(f"Software. anova-report with {soft}.")))
+        return Section("methods", "Methods", tuple(blocks))
+
+    def assumption_methods(self) -> list[Paragraph]:
+        policy = self.plan.analysis.unequal_variances
+        words = {
+            "classical": "The classical (equal-variance) tests are the confirmatory ones; robust "
+            "versions are shown beside them for comparison.",
+            "robust-if-heterogeneous": "If the Brown–Forsythe test indicated unequal variances, the "
+            "robust versions were to be the confirmatory tests. Such a two-stage choice distorts error "
+            "rates somewhat (Zimmerman, 2004).",
+            "always-robust": "The heteroscedasticity-robust versions are the confirmatory tests, "
+            "whatever the variance check shows, which avoids the error-rate distortion of a two-stage "
+            "choice (Zimmerman, 2004).",
+        }[policy]
+        return [Paragraph(runs_of(
+            "Assumptions. Independence of observations follows from the design and cannot be checked "
+            "from the data. Equality of variances across cells was checked with the Brown–Forsythe test "
+            "(Levene's test centred at the median) and the mean-centred Levene test; normality of the "
+            "residuals with the Shapiro–Wilk test and a normal Q–Q plot; outliers as externally "
+            "studentized residuals beyond ±3. " + words))]
+
+    def missing_by_cell(self) -> str:
+        lv = self.prep.data.dropped_outcome_levels
+        if lv.size == 0:
+            return ""
+        counts: dict[str, int] = {}
+        for row in lv:
+            if (row < 0).any():
+                key = "rows with an unknown cell"
+            else:
+                levels = tuple(self.design.factors[j].levels[int(i)] for j, i in enumerate(row))
+                key = "/".join(levels)
+            counts[key] = counts.get(key, 0) + 1
+        return "; ".join(f"{k}: {v}" for k, v in counts.items())
+
+    def cells_section(self) -> Section:
+        d, a = self.design, self.a
+        names = [f.name for f in d.factors]
+        cols = [Column(runs_of(n)) for n in names] + [
+            Column(runs_of(N.symbol("n")), "right"), Column(runs_of(N.symbol("M")), "right"),
+            Column(runs_of(N.symbol("SD")), "right"), Column(runs_of(N.symbol("SE")), "right"),
+            Column(runs_of(f"{N.format_confidence_level(self.level)} ", N.symbol("CI")), "right"),
+        ]
+        rows = []
+        for c, s in zip(d.cells, a.summaries):
+            ci = "—" if s.ci is None else f"[{_num(s.ci[0])}, {_num(s.ci[1])}]"
+            rows.append(tuple(runs_of(lv) for lv in c.levels) + (
+                runs_of(str(s.n)), runs_of(_num(s.mean)), runs_of(_num(s.sd)), runs_of(_num(s.se)), runs_of(ci)))
+        table = Table(
+            "cells", runs_of(f"Cell summary of {self.prep.data.outcome}"), tuple(cols), tuple(rows),
+            notes=(runs_of("CI: the cell's own ", N.symbol("SD"), f" and a t quantile on n − 1 df. Empty cells show —."),),
+            header_columns=len(names),
+        )
+        blocks = [table]
+        fig = self.means_figure()
+        if fig:
+            blocks.append(fig)
+        return Section("cells", "The groups", tuple(blocks))
+
+    def means_figure(self) -> Figure | None:
+        d, a = self.design, self.a
+        y = self.prep.data.outcome_values()
+        cell = self.prep.cell
+        groups, means, lo, hi, points = [], [], [], [], []
+        for c, s in zip(d.cells, a.summaries):
+            groups.append(c.short)
+            means.append(s.mean)
+            lo.append(None if s.ci is None else s.ci[0])
+            hi.append(None if s.ci is None else s.ci[1])
+            points.append(tuple(float(v) for v in y[cell == c.index]))
+        spec = FigureSpec("means", (
+            ("groups", tuple(groups)), ("means", tuple(means)), ("ci_low", tuple(lo)), ("ci_high", tuple(hi)),
+            ("points", tuple(points)), ("y_label", self.prep.data.outcome),
+            ("ci_label", f"{N.format_confidence_level(self.level)} CI"),
+        ))
+        alt = (f"Dot plot of {self.prep.data.outcome} for each of the {d.k} cells: every observation as a "
+               f"faint dot, the cell mean as a large marker with its {N.format_confidence_level(self.level)} "
+               "confidence interval. Means: " + "; ".join(
+                   f"{g} {_num(m)}" for g, m in zip(groups, means)) + ".")
+        return Figure("fig-means", runs_of(
+            f"Observations (dots), cell means and {N.format_confidence_level(self.level)} confidence intervals "
+            f"of {self.prep.data.outcome}."), alt, spec)
+
+    def model_section(self) -> Section:
+        d, a = self.design, self.a
+        coefs = d.coefficients
+        names = [f.name for f in d.factors]
+        cols = [Column(runs_of("/".join(names) if self.multi else "cell"))]
+        cols += [Column(runs_of(c.symbol), "center") for c in coefs]
+        cols += [Column(runs_of("data rows"), "right")]
+        rows, marks = [], []
+        for c, n in zip(d.cells, self.prep.counts):
+            if n == 0:
+                continue
+            vals = [int(v) for v in d.matrix[c.index]]
+            rows.append((runs_of(c.short), *(runs_of(_fr(Fraction(v))) for v in vals), runs_of(N.format_count(n))))
+            marks.append(("",) + tuple("pos" if v > 0 else "neg" if v < 0 else "zero" for v in vals) + ("",))
+        matrix = Table(
+            "design-matrix",
+            runs_of(f"Design matrix ({d.parameterization} parameterization): its distinct rows, one per observed cell"),
+            tuple(cols), tuple(rows),
+            notes=(runs_of(f"Each row stands for the data rows of its cell (last column); X has "
+                           f"{N.format_count(self.prep.data.n)} rows and {len(coefs)} columns. Columns: "
+                           + "; ".join(f"{c.symbol} = {c.label}" for c in coefs) + "."),),
+            highlight=tuple(marks), compact=True,
+        )
+        check = d.check_indicator_rule(self.prep.counts)
+        if check.holds:
+            rule = Paragraph(runs_of(
+                "Every column is a 0/1 indicator of one group and every row has exactly one 1, so each "
+                "coefficient is simply the mean of the group its column marks."))
+        else:
+            rule = Paragraph(runs_of(
+                "These columns are not plain group indicators (" + "; ".join(check.failures) +
+                "), so a coefficient is not simply a group mean; its meaning is given below."))
+        mrows = []
+        for c, est, se, ok in zip(coefs, a.fit.coefficients, a.fit.coefficient_se, a.fit.estimable):
+            mrows.append((runs_of(c.symbol), runs_of(c.label), runs_of(c.meaning_text(d)),
+                          runs_of(c.meaning_words(d)),
+                          runs_of(_num(est) if ok else "not estimable"), runs_of(_num(se) if ok else "—")))
+        meanings = Table(
+            "coefficients", runs_of("What each coefficient estimates, as a combination of cell means (β = D⁻¹μ)"),
+            (Column(runs_of("β")), Column(runs_of("column")), Column(runs_of("in symbols")), Column(runs_of("in words")),
+             Column(runs_of("estimate"), "right"), Column(runs_of(N.symbol("SE")), "right")),
+            tuple(mrows),
+            notes=((runs_of(f"μ̄ is the average of the {d.k} cell means, each cell counted once whatever its n."),)
+                   if any(not ref.fixed for c in coefs for _, ref in c.meaning) else ()),
+        )
+        return Section("model", "The model", (matrix, rule, meanings))
+
+    def marginal_section(self) -> Section | None:
+        a = self.a
+        if not self.multi:
+            return None
+        cols = (Column(runs_of("factor")), Column(runs_of("level")), Column(runs_of("unweighted mean"), "right"),
+                Column(runs_of(N.symbol("SE")), "right"),
+                Column(runs_of(f"{N.format_confidence_level(self.level)} ", N.symbol("CI")), "right"))
+        rows = []
+        for m in a.marginal_means:
+            ci = "—" if m.ci is None else f"[{_num(m.ci[0])}, {_num(m.ci[1])}]"
+            rows.append((runs_of(m.factor), runs_of(m.level), runs_of(_num(m.mean) if m.mean is not None else "not estimable"),
+                         runs_of(_num(m.se)), runs_of(ci)))
+        table = Table("marginal-means", runs_of("Unweighted marginal means (each cell counted once)"), cols, tuple(rows),
+                      notes=(runs_of("SE and CI use the pooled residual variance of the full model."),), header_columns=2)
+        blocks = [table]
+        fig = self.interaction_figure()
+        if fig:
+            blocks.append(fig)
+        return Section("marginal", "Means by factor", tuple(blocks))
+
+    def interaction_figure(self) -> Figure | None:
+        d, a = self.design, self.a
+        if len(d.factors) < 2:
+            return None
+        fx, ft = d.factors[-1], d.factors[0]
+        traces = []
+        for lt in ft.levels:
+            means, lo, hi = [], [], []
+            for lx in fx.levels:
+                idx = [c.index for c in d.cells if c.as_dict()[ft.name] == lt and c.as_dict()[fx.name] == lx]
+                if len(d.factors) == 2:
+                    s = a.summaries[idx[0]]
+                    means.append(s.mean)
+                    lo.append(None if s.ci_pooled is None else s.ci_pooled[0])
+                    hi.append(None if s.ci_pooled is None else s.ci_pooled[1])
+                else:
+                    vals = [a.summaries[i].mean for i in idx]
+                    means.append(None if any(v is None for v in vals) else sum(vals) / len(vals))
+                    lo.append(None)
+                    hi.append(None)
+            traces.append((lt, tuple(means), tuple(lo), tuple(hi)))
+        spec = FigureSpec("interaction", (("x_factor", fx.name), ("x_levels", tuple(fx.levels)), ("trace_factor", ft.name),
+                                          ("traces", tuple(traces)), ("y_label", self.prep.data.outcome)))
+        alt = (f"Line plot of the cell means of {self.prep.data.outcome} across the levels of {fx.name}, "
+               f"one line per level of {ft.name}; parallel lines would mean no interaction.")
+        note = "" if len(d.factors) == 2 else " (averaged over the other factors)"
+        return Figure("fig-interaction", runs_of(
+            f"Cell means{note} of {self.prep.data.outcome} by {fx.name} and {ft.name}, with "
+            f"{N.format_confidence_level(self.level)} confidence intervals from the pooled residual variance."), alt, spec)
+
+    def hypothesis_block(self, i: int, h) -> Section:
+        c, t, d = h.contrast, h.test, self.design
+        blocks = []
+        blocks.append(Paragraph(runs_of("Statement in the plan: ", c.statement if c.kind == "means" else f'effect = "{c.statement}"'), "small"))
+        blocks.append(Paragraph(runs_of("H0: ", _unquote(c.null_text())), "symbols"))
+        blocks.append(Paragraph(runs_of("H1: ", _unquote(c.alternative_text())), "symbols"))
+        blocks.append(Paragraph(runs_of(self.hypothesis_words(h))))
+        for n in h.notes:
+            blocks.append(Paragraph(runs_of("Note: " + n), "small"))
+        cells_cols = (Column(runs_of("row")),) + tuple(Column(runs_of(cell.short), "center") for cell in d.cells) + (
+            Column(runs_of("h"), "right"),)
+        rows, marks = [], []
+        for r, (row, rhs) in enumerate(zip(c.weights, c.rhs), start=1):
+            rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(_fr(rhs))))
+            marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
+        blocks.append(Table(f"h{i}-cells", runs_of("Contrast over cell means (C·μ = h)"), cells_cols, tuple(rows),
+                            highlight=tuple(marks), compact=True))
+        beta_cols = (Column(runs_of("row")),) + tuple(Column(runs_of(co.symbol), "center") for co in d.coefficients) + (
+            Column(runs_of("h"), "right"),)
+        rows, marks = [], []
+        for r, (row, rhs) in enumerate(zip(c.beta_weights, c.rhs), start=1):
+            rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(_fr(rhs))))
+            marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
+        blocks.append(Table(f"h{i}-betas", runs_of(f"The same contrast over the coefficients (L = C·D, {d.parameterization} coding)"),
+                            beta_cols, tuple(rows), highlight=tuple(marks), compact=True))
+        items = [(runs_of("Test"), runs_of(self.test_stat(t), ", ", self.p_text(h)))]
+        if t.test == "t":
+            items.append((runs_of("Estimate"), runs_of(_num(t.estimate), ", ", self.ci_stat(t),
+                                                       " (one-sided bound)" if t.ci_sides == 1 else "")))
+        es = self.effect_size_runs(h)
+        if es:
+            items.append((runs_of("Effect size"), es))
+        items.append((runs_of("Family"), runs_of(f"{h.family}; {N.format_count(self.family_size(h.family))} hypotheses, "
+                                                 f"{CORRECTION_NAMES[h.correction]}")))
+        blocks.append(DefinitionList(tuple(items)))
+        blocks.append(Paragraph(runs_of(self.reading(h)), "reading"))
+        return Section(f"h{i}", f"{i}. {c.name}", tuple(blocks), level=3)
+
+    def family_size(self, family) -> int:
+        return sum(1 for h in self.a.hypotheses if h.family == family)
+
+    def hypothesis_words(self, h) -> str:
+        c = h.contrast
+        if c.kind == "effect":
+            if len(c.factors) == 1:
+                return (f"In words: the null hypothesis is that the unweighted mean of {self.prep.data.outcome} is the "
+                        f"same at every level of {c.factors[0]}; the alternative is that at least two differ.")
+            return (f"In words: the null hypothesis is that the effect of one factor is the same at every level of "
+                    f"the other ({' × '.join(c.factors)} interaction absent).")
+        if c.alternative == "greater":
+            return f"In words: the alternative states that {self.describe_side(_unquote(c.statement), '>')}; the null is its complement."
+        if c.alternative == "less":
+            return f"In words: the alternative states that {self.describe_side(_unquote(c.statement), '<')}; the null is its complement."
+        if c.q == 1:
+            return "In words: the null hypothesis states an equality of means; the alternative is that it does not hold, in either direction."
+        return f"In words: the null hypothesis states {c.q} equalities at once; the alternative is that at least one fails."
+
+    def describe_side(self, statement: str, rel: str) -> str:
+        left, right = statement.split(rel, 1)
+        word = "larger" if rel == ">" else "smaller"
+        return f"{left.strip()} is {word} than {right.strip()}"
+
+    def effect_size_runs(self, h):
+        es = getattr(h, "effect_size", None)
+        if es is None:
+            return None
+        return runs_of(self.effect_size_stat(es))
+
+    def effect_size_stat(self, es) -> N.Stat:
+        sym = {"standardized_contrast_d": "d", "hedges_g": "g", "partial_eta_squared": "η²p", "cohens_f": "f"}.get(es.name, es.name)
+        bounded = es.name in ("partial_eta_squared", "eta_squared", "omega_squared", "partial_omega_squared")
+        label = N.symbol(sym) if sym != "η²p" else N.text("partial η²")
+        value = N.format_bounded(es.value, 2) if bounded and abs(es.value) <= 1 else N.format_number(es.value, 2)
+        out = label + N.text(f" = {value}")
+        if es.ci is not None:
+            low, high = es.ci
+            out = out + N.text(", ") + N.stat_ci(low if low is not None else float("-inf"),
+                                                 high if high is not None else float("inf"),
+                                                 es.ci_level, leading_zero=not bounded)
+        return out
+
+    def reading(self, h) -> str:
+        c, t = h.contrast, h.test
+        p = self.decision_p(h)
+        sig = p < self.alpha
+        alpha = N.format_bounded(self.alpha, 2)
+        adj = CORRECTION_SHORT[h.correction] if h.correction != "none" else "unadjusted"
+        explor = " As an exploratory result it suggests what to test next rather than confirming anything." if h.family == "exploratory" else ""
+        if c.kind == "effect" or t.test == "F":
+            if sig:
+                return (f"Reading: at α = {alpha} ({adj} p), the data are not consistent with the null hypothesis "
+                        f"that {self.null_phrase(h)}. The test does not say which means differ or by how much; "
+                        f"see the estimates and effect sizes.{explor}")
+            return (f"Reading: at α = {alpha} ({adj} p), the data do not show clear evidence against the null "
+                    f"hypothesis that {self.null_phrase(h)}. This is not evidence that the means are equal; the interval for "
+                    f"the effect size shows which effects remain compatible with the data.{explor}")
+        est = N.format_number(t.estimate, 2)
+        if c.alternative == "two-sided":
+            if sig:
+                direction = "above" if t.estimate > (t.rhs or 0) else "below"
+                return (f"Reading: the estimated contrast is {est}, {direction} its null value of "
+                        f"{N.format_number(t.rhs or 0, 2)}; at α = {alpha} ({adj} p) the data are not consistent "
+                        f"with the equality, and the confidence interval shows the range of differences compatible "
+                        f"with the data.{explor}")
+            return (f"Reading: the estimated contrast is {est}; at α = {alpha} ({adj} p) the data do not show a "
+                    f"clear difference in either direction. This does not show the means are equal: the "
+                    f"confidence interval still includes differences of either sign.{explor}")
+        if sig:
+            return (f"Reading: the estimate, {est}, lies in the stated direction, and at α = {alpha} ({adj} p) the "
+                    f"data are not consistent with the null that it is not; the one-sided bound gives the smallest "
+                    f"{'difference' if c.alternative == 'greater' else 'gap'} compatible with the data. Whether a "
+                    f"difference of this size matters is a substantive judgement, not a statistical one.{explor}")
+        return (f"Reading: at α = {alpha} ({adj} p), the data do not give clear support to the directional "
+                f"hypothesis (estimate {est}). This is not evidence against an effect in that direction, "
+                f"nor that the means are equal.{explor}")
+
+    def null_phrase(self, h) -> str:
+        c = h.contrast
+        if c.kind == "effect":
+            if len(c.factors) == 1:
+                return f"all unweighted means of {c.factors[0]} are equal"
+            return f"there is no {' × '.join(c.factors)} interaction"
+        return _unquote(c.null_text())
+
+    def hypotheses_section(self) -> Section:
+        subs = tuple(self.hypothesis_block(i, h) for i, h in enumerate(self.a.hypotheses, start=1))
+        intro = Paragraph(runs_of(
+            "Each hypothesis below is shown as written in the plan, as the null and alternative it implies, "
+            "as a contrast over the cell means and over the model's coefficients, and with its test."))
+        if not subs:
+            intro = Paragraph(runs_of("The plan states no hypothesis."))
+        return Section("hypotheses", "Hypotheses tested", (intro,), subs)
+
+    def anova_section(self) -> Section:
+        tab = self.a.anova
+        lvl2 = N.format_confidence_level(1 - 2 * self.alpha)
+        cols = (Column(runs_of("source")), Column(runs_of(N.symbol("df")), "right"), Column(runs_of(N.symbol("SS")), "right"),
+                Column(runs_of(N.symbol("MS")), "right"), Column(runs_of(N.symbol("F")), "right"),
+                Column(runs_of(N.symbol("p")), "right"), Column(runs_of("partial η²"), "right"),
+                Column(runs_of(f"{lvl2} ", N.symbol("CI")), "right"), Column(runs_of("partial ω²"), "right"))
+        rows = []
+        extras = self.inf.rows if self.inf else ()
+        for i, r in enumerate(tab.rows):
+            es = extras[i].effect_sizes if i < len(extras) else None
+            pe = N.format_bounded(es.partial_eta_squared.value, 2) if es else "—"
+            ci = es.partial_eta_squared.ci if es else None
+            ci_txt = f"[{N.format_bounded(ci[0], 2)}, {N.format_bounded(ci[1], 2)}]" if ci else "—"
+            po = N.format_number(es.partial_omega_squared.value, 2, leading_zero=False) if es else "—"
+            rows.append((runs_of(r.source), runs_of(str(r.df)), runs_of(_num(r.ss)), runs_of(_num(r.ms)),
+                         runs_of(_num(r.F)), runs_of(N.format_p_cell(r.p)), runs_of(pe), runs_of(ci_txt), runs_of(po)))
+        rows.append((runs_of("residual"), runs_of(str(tab.df_error)), runs_of(_num(tab.ss_error)), runs_of(_num(tab.ms_error)),
+                     runs_of(""), runs_of(""), runs_of(""), runs_of(""), runs_of("")))
+        rows.append((runs_of("total"), runs_of(str(tab.df_total)), runs_of(_num(tab.ss_total)), *(runs_of("") for _ in range(6))))
+        notes = [runs_of(f"Sums of squares: {tab.label}. ", " ".join(tab.notes))]
+        notes.append(runs_of(N.symbol("R²"), f" = {N.format_bounded(tab.r_squared, 2)}; residual ", N.symbol("SD"),
+                             f" = {_num(tab.residual_sd)}."))
+        notes.append(runs_of(f"Partial η² intervals are {lvl2} intervals from the noncentral F (Steiger, 2004), "
+                             "mapped by λ/(λ + df1 + df2 + 1); a lower limit of .00 means zero is compatible with the data."))
+        for r in tab.rows:
+            if r.note:
+                notes.append(runs_of(f"{r.source}: {r.note}."))
+        table = Table("anova", runs_of(f"Analysis of variance of {self.prep.data.outcome}"), cols, tuple(rows),
+                      notes=tuple(notes))
+        blocks = [table]
+        power = self.sensitivity_table()
+        if power:
+            blocks.append(power)
+        return Section("anova", "Analysis of variance", tuple(blocks))
+
+    def sensitivity_table(self) -> Table | None:
+        if not self.inf:
+            return None
+        rows = []
+        for r, x in zip(self.a.anova.rows, self.inf.rows):
+            if x.sensitivity is None:
+                continue
+            fs = x.sensitivity.detectable_f
+            rows.append((runs_of(r.source), runs_of(str(r.df)), *(runs_of(_num(f)) for f in fs)))
+        if not rows:
+            return None
+        powers = self.inf.rows[0].sensitivity.powers if self.inf.rows[0].sensitivity else (0.8, 0.9)
+        cols = (Column(runs_of("effect")), Column(runs_of(N.symbol("df")), "right"),
+                *(Column(runs_of(f"{N.format_confidence_level(pw)} power"), "right") for pw in powers))
+        return Table("sensitivity", runs_of("Sensitivity: the smallest Cohen's ", N.symbol("f"),
+                                            f" each test could detect with this sample at α = {N.format_bounded(self.alpha, 2)}"),
+                     cols, tuple(rows),
+                     notes=(runs_of("Noncentral F with λ = f²·N (Cohen, 1988). These describe the design, not the observed "
+                                    "effects; they help read a non-significant result."),))
+
+    def results_section(self) -> Section:
+        paras = []
+        planned = [h for h in self.a.hypotheses if h.family == "planned"]
+        explor = [h for h in self.a.hypotheses if h.family == "exploratory"]
+        if planned:
+            paras.append(Paragraph(runs_of("Planned hypotheses (every one is reported, whatever its result):")))
+            paras.extend(Paragraph(self.result_sentence(h)) for h in planned)
+        if explor:
+            paras.append(Paragraph(runs_of("Exploratory hypotheses (not part of the confirmatory family):")))
+            paras.extend(Paragraph(self.result_sentence(h)) for h in explor)
+        if not paras:
+            paras.append(Paragraph(runs_of("The plan states no hypothesis; see the analysis of variance above.")))
+        return Section("results", "Results", tuple(paras))
+
+    def result_sentence(self, h):
+        c, t = h.contrast, h.test
+        sig = self.decision_p(h) < self.alpha
+        lead = f"{c.name}: "
+        if c.kind == "effect":
+            claim = ("the unweighted means differed" if sig else "the data did not show clear differences among the unweighted means")
+            if len(c.factors) > 1:
+                claim = ("the data indicate an interaction" if sig else "the data did not show a clear interaction")
+        elif t.test == "F":
+            claim = "the equalities were rejected" if sig else "the data did not show clear departures from the equalities"
+        elif c.alternative == "two-sided":
+            claim = "the difference was statistically significant" if sig else "the difference was not statistically significant"
+        else:
+            claim = "the directional hypothesis was supported" if sig else "the directional hypothesis was not supported"
+        parts = [N.text(f"{lead}{claim}, "), self.test_stat(t), N.text(", "), self.p_text(h)]
+        if t.test == "t":
+            parts += [N.text("; estimate "), N.text(_num(t.estimate)), N.text(", "), self.ci_stat(t)]
+        es = self.effect_size_runs(h)
+        if es:
+            parts += [N.text("; "), es]
+        return runs_of(*parts, ".")
+
+    def cautions(self) -> Section:
+        items = [
+            runs_of("Statistical significance is not practical significance: judge the size of each estimate and "
+                    "its interval against what matters in this field, not only the p value."),
+            runs_of("A result that is not significant does not show that an effect is absent; the intervals show "
+                    "which effects remain compatible with the data."),
+            runs_of("The tests assume independent observations, residuals close to normal and, for the classical "
+                    "tests, equal variances across cells; the checks above say how well these hold here."),
+            runs_of("Exploratory hypotheses were not part of the confirmatory family; treat them as suggestions "
+                    "for future studies."),
+            runs_of("Where these results inform decisions about people (clinical, educational, personnel or legal), "
+                    "have them reviewed by a qualified statistician and follow the review rules that apply locally."),
+        ]
+        return Section("cautions", "Reading these results with care",
+                       (Note("caution", "Before drawing conclusions", (BulletList(tuple(items)),)),))
+
+    def provenance(self) -> Section:
+        p = self.prov
+        items = [
+            (runs_of("Plan file"), runs_of(p.plan_file or "(built in Python)")),
+            (runs_of("Plan SHA-256"), runs_of(p.plan_sha256 or "—")),
+            (runs_of("Data file"), runs_of(f"{p.data_file} ({p.data_format})")),
+            (runs_of("Data SHA-256"), runs_of(p.data_sha256 or "—")),
+            (runs_of("Outcome intake"), runs_of(
+                "exact decimal (pivot subtracted before conversion)" if self.prep.data.exact_decimal
+                else "binary floating point as stored in the file")),
+            (runs_of("Software"), runs_of(", ".join(f"{k} {v}" for k, v in p.software))),
+            (runs_of("Created"), runs_of(p.created)),
+        ]
+        return Section("provenance", "Where this report came from", (
+            Paragraph(runs_of("Re-running the same plan on a data file with the same SHA-256 reproduces every "
+                              "number in this report.")),
+            DefinitionList(tuple(items)),
+        ))
+
+    def build(self) -> Document:
+        sections = [self.methods(), self.cells_section(), self.model_section()]
+        marg = self.marginal_section()
+        if marg:
+            sections.append(marg)
+        sections += [self.hypotheses_section(), self.anova_section()]
+        extra = self.assumption_section()
+        if extra:
+            sections.append(extra)
+        sections += [self.results_section(), self.cautions(), self.provenance()]
+        return Document(
+            title=self.plan.title,
+            subtitle=f"Analysis of variance report · {self.design_phrase()}",
+            summary=self.summary(),
+            sections=tuple(sections),
+            created=self.prov.created,
+        )
+
+    def assumption_section(self) -> Section | None:
+        inf = self.inf
+        if inf is None:
+            return None
+        a = inf.assumptions
+        blocks = []
+        items = []
+        for r in (a.brown_forsythe, a.levene):
+            if r is None:
+                continue
+            name = "Brown–Forsythe (median-centred Levene)" if r.center == "median" else "Levene (mean-centred)"
+            items.append((runs_of(name), runs_of(N.stat_f(r.statistic, r.df1, r.df2), ", ", N.stat_p(r.p))))
+        sw = a.shapiro
+        if sw.skipped:
+            items.append((runs_of("Shapiro–Wilk on residuals"), runs_of(f"not computed ({sw.reason.replace('-', ' ')})")))
+        else:
+            items.append((runs_of("Shapiro–Wilk on residuals"),
+                          runs_of(N.symbol("W"), f" = {N.format_bounded(sw.statistic, 3)}, ", N.stat_p(sw.p),
+                                  f", N = {N.format_count(sw.n)}")))
+        outl = a.outliers.outliers
+        rows_file = self.prep.data.rows
+        if outl:
+            listed = "; ".join(f"row {int(rows_file[o.row])} ({self.design.cells[self._cell(o.cell)].short}, "
+                               f"studentized residual {_num(o.external)})" for o in outl)
+            items.append((runs_of("Outliers (|studentized residual| > 3)"), runs_of(listed)))
+        else:
+            items.append((runs_of("Outliers (|studentized residual| > 3)"), runs_of("none")))
+        blocks.append(DefinitionList(tuple(items)))
+        if a.heterogeneous:
+            verdict = ("The Brown–Forsythe test indicates unequal variances across cells; compare the classical and "
+                       "robust results below.")
+        else:
+            verdict = ("The Brown–Forsythe test does not indicate unequal variances; with small cells such a test has "
+                       "little power, so the robust results are shown beside the classical ones in any case.")
+        blocks.append(Paragraph(runs_of(verdict)))
+        blocks.append(self.qq_figure())
+        blocks.append(self.residual_figure())
+        blocks.append(self.robust_table())
+        other = self.distribution_free()
+        if other:
+            blocks.append(other)
+        if inf.outlier_sensitivity is not None:
+            blocks.append(self.outlier_table())
+        for fam in self.posthoc_tables():
+            blocks.append(fam)
+        return Section("assumptions", "Checking the assumptions", tuple(blocks))
+
+    def _cell(self, compact: int) -> int:
+        observed = [i for i, n in enumerate(self.prep.counts) if n > 0]
+        return observed[compact]
+
+    def qq_figure(self) -> Figure:
+        qq = self.inf.assumptions.qq
+        spec = FigureSpec("qq", (("theoretical", tuple(qq.theoretical)), ("sample", tuple(qq.sample))))
+        return Figure("fig-qq", runs_of("Normal Q–Q plot of the standardized residuals; points near the line mean "
+                                        "the residuals are close to normal."),
+                      f"Normal quantile plot of {len(qq.sample)} standardized residuals against theoretical normal "
+                      "quantiles, with a reference line.", spec)
+
+    def residual_figure(self) -> Figure:
+        groups = tuple(c.short for c in self.design.cells)
+        spec = FigureSpec("residuals", (("groups", groups), ("residuals", self.inf.assumptions.residuals_by_cell)))
+        return Figure("fig-residuals", runs_of("Residuals by cell; similar spread across cells supports the "
+                                               "equal-variance assumption."),
+                      f"Strip plot of the residuals in each of the {len(groups)} cells around a line at zero.", spec)
+
+    def robust_table(self) -> Table:
+        cols = (Column(runs_of("test")), Column(runs_of("classical")), Column(runs_of("robust")),
+                Column(runs_of("permutation ", N.symbol("p")), "right"), Column(runs_of("confirmatory")))
+        rows = []
+        for h in self.a.hypotheses:
+            e = h.extras
+            if e is None:
+                continue
+            classical = runs_of(self.test_stat(h.test), ", ", N.stat_p(h.test.p))
+            if e.robust is None or not (e.robust.p == e.robust.p):
+                robust = runs_of("not available" + (f" ({e.robust.note})" if e.robust and e.robust.note else ""))
+            else:
+                stat = (N.stat_t(e.robust.statistic, e.robust.df[0]) if e.robust.test == "t"
+                        else N.stat_f(e.robust.statistic, e.robust.df[0], e.robust.df[1]))
+                robust = runs_of(e.robust.method, ": ", stat, ", ", N.stat_p(e.robust.p))
+            perm = runs_of(N.format_p_cell(e.permutation.p)) if e.permutation else runs_of("—")
+            rows.append((runs_of(h.contrast.name), classical, robust, perm, runs_of(e.confirmatory)))
+        note = [runs_of("Robust versions: Welch–Satterthwaite t for one-row contrasts, Welch's ANOVA for a one-way "
+                        "effect, HC3 heteroscedasticity-consistent Wald F otherwise. Unadjusted p values.")]
+        if any(h.extras and h.extras.permutation for h in self.a.hypotheses):
+            perm = next(h.extras.permutation for h in self.a.hypotheses if h.extras and h.extras.permutation)
+            note.append(runs_of(f"Permutation p: {N.format_count(perm.n_permutations)} permutations (seed {perm.seed}), "
+                                "p = (b + 1)/(m + 1) (Phipson & Smyth, 2010); factorial effects permute residuals of the "
+                                "reduced model (Freedman & Lane, 1983)."))
+        return Table("robust", runs_of("Classical and robust tests side by side"), cols, tuple(rows), notes=tuple(note))
+
+    def distribution_free(self) -> Paragraph | None:
+        kw, welch = self.inf.kruskal, self.inf.welch_oneway
+        parts = []
+        if welch is not None:
+            parts += ["Welch's ANOVA across the cells: ", N.stat_f(welch.statistic, welch.df1, welch.df2), ", ",
+                      N.stat_p(welch.p), ". "]
+        if kw is not None:
+            parts += ["Kruskal–Wallis test across the cells (ranks; tie-corrected): ",
+                      N.symbol("H"), f"({kw.df}) = {_num(kw.statistic)}, ", N.stat_p(kw.p), "."]
+        return Paragraph(runs_of(*parts)) if parts else None
+
+    def outlier_table(self) -> Table:
+        s = self.inf.outlier_sensitivity
+        rows_file = self.prep.data.rows
+        removed = ", ".join(str(int(rows_file[r])) for r in s.rows_removed)
+        by_name = {h.contrast.name: h for h in self.a.hypotheses}
+        rows = []
+        for name, t, note in s.tests:
+            h = by_name[name]
+            with_ = runs_of(self.test_stat(h.test), ", ", N.stat_p(h.test.p))
+            without = runs_of(note) if t is None else runs_of(self.test_stat(t), ", ", N.stat_p(t.p))
+            rows.append((runs_of(name), with_, without))
+        return Table("outlier-sensitivity", runs_of("Sensitivity: planned tests with and without the flagged rows"),
+                     (Column(runs_of("hypothesis")), Column(runs_of("all rows")), Column(runs_of(f"without rows {removed}"))),
+                     tuple(rows), notes=(runs_of("Reported for comparison only; the confirmatory results use all rows."),))
+
+    def posthoc_tables(self) -> list[Table]:
+        out = []
+        names = {"all-pairs": "All pairs (Tukey–Kramer)", "versus-control": "Each versus the control (Dunnett)",
+                 "any-contrast": "All pairs within the Scheffé family (any contrast)"}
+        fams = [(k, on, res, labels) for k, on, res, labels in self.inf.posthoc]
+        if self.inf.games_howell is not None:
+            fams.append(("games-howell", "cells", self.inf.games_howell, tuple(c.short for c in self.design.cells)))
+            names["games-howell"] = "All pairs without assuming equal variances (Games–Howell)"
+        for i, (key, on, res, labels) in enumerate(fams):
+            target = "cells" if on == "cells" else f"unweighted marginal means of {on}"
+            rows = []
+            for c in res.comparisons:
+                rows.append((runs_of(f"{labels[c.first]} − {labels[c.second]}"), runs_of(_num(c.difference)),
+                             runs_of(_num(c.se)), runs_of(f"[{_num(c.ci_low)}, {_num(c.ci_high)}]"),
+                             runs_of(N.format_p_cell(c.p_adjusted))))
+            cols = (Column(runs_of("difference")), Column(runs_of("estimate"), "right"), Column(runs_of(N.symbol("SE")), "right"),
+                    Column(runs_of(f"{N.format_confidence_level(1 - res.alpha)} simultaneous ", N.symbol("CI")), "right"),
+                    Column(runs_of("adjusted ", N.symbol("p")), "right"))
+            out.append(Table(f"posthoc-{i}", runs_of(f"{names[key]}, on the {target}"), cols, tuple(rows),
+                             notes=(runs_of("Post-hoc comparisons are exploratory unless the plan lists them as planned hypotheses."),)))
+        return out
+
+
+def build_document(prep, analysis, provenance) -> Document:
+    """The complete document model of one report."""
+    return _Builder(prep, analysis, provenance).build()
+
+
+__all__ = ["build_document", "plain"]
