@@ -64,6 +64,11 @@ def _unquote(statement: str) -> str:
     return statement.replace("`", "")
 
 
+def _lead(head: str, body: str) -> tuple:
+    """A paragraph that starts with an italic run-in heading (APA style for minor headings)."""
+    return runs_of(N.Run(head + ".", True), " " + body)
+
+
 def _num(x, d=2) -> str:
     return N.format_number(x, d)
 
@@ -101,9 +106,22 @@ class _Builder:
     def cell_name(self, cell) -> str:
         return cell.label if self.multi else cell.levels[0]
 
+    def robust_confirmatory(self, h) -> bool:
+        return h.extras is not None and h.extras.confirmatory == "robust"
+
+    def confirm_stat(self, h) -> N.Stat:
+        """The statistic of the confirmatory test (classical or robust, as the plan's policy chose)."""
+        if self.robust_confirmatory(h):
+            r = h.extras.robust
+            stat = N.stat_t(r.statistic, r.df[0]) if r.test == "t" else N.stat_f(r.statistic, r.df[0], r.df[1])
+            name = {"HC3 Wald F": "HC3 Wald test", "Welch–Satterthwaite t": "Welch–Satterthwaite test"}.get(r.method, r.method)
+            return N.text(f"{name}, ") + stat
+        return self.test_stat(h.test)
+
     def p_text(self, h) -> N.Stat:
         adj = h.p_adjusted
-        parts = [N.stat_p(h.test.p)]
+        p = h.extras.robust.p if self.robust_confirmatory(h) else h.test.p
+        parts = [N.stat_p(p)]
         if h.correction != "none" and adj is not None:
             parts.append(N.text(f"{CORRECTION_SHORT[h.correction]} ") + N.stat_p(adj))
         return N.join_stats(parts)
@@ -158,32 +176,32 @@ class _Builder:
         if len(fs) == 1:
             f = fs[0]
             design_txt = (
-                f"Design. One between-subjects factor, {f.name}, with {len(f.levels)} levels "
+                f"One between-subjects factor, {f.name}, with {len(f.levels)} levels "
                 f"({', '.join(f.levels)}), so the analysis has {d.k} cells (groups)."
             )
         else:
             listed = "; ".join(f"{f.name}: {', '.join(f.levels)}" for f in fs)
             design_txt = (
-                f"Design. {_count_words(len(fs), 'between-subjects factor').capitalize()}, fully crossed "
+                f"{_count_words(len(fs), 'between-subjects factor').capitalize()}, fully crossed "
                 f"into {d.k} cells ({listed})."
             )
-        blocks.append(Paragraph(runs_of(design_txt)))
+        blocks.append(Paragraph(_lead("Design", design_txt)))
 
         excl = data.exclusions
         if excl:
             reasons = "; ".join(f"{e.count} for {e.reason}" for e in excl)
             left = sum(e.count for e in excl)
             sample = (
-                f"Sample. The data file {self.prov.data_file} held {N.format_count(data.n_read)} rows; "
+                f"The data file {self.prov.data_file} held {N.format_count(data.n_read)} rows; "
                 f"{N.format_count(data.n)} were analysed and {N.format_count(left)} left out ({reasons}). "
                 "No row was dropped silently; the row numbers are listed in the results file."
             )
         else:
             sample = (
-                f"Sample. All {N.format_count(data.n_read)} rows of the data file {self.prov.data_file} were "
+                f"All {N.format_count(data.n_read)} rows of the data file {self.prov.data_file} were "
                 "analysed; no row was left out."
             )
-        blocks.append(Paragraph(runs_of(sample)))
+        blocks.append(Paragraph(_lead("Sample", sample)))
         miss = self.missing_by_cell()
         if miss:
             blocks.append(Paragraph(runs_of("Missing outcome values by cell: " + miss + ".")))
@@ -193,8 +211,8 @@ class _Builder:
                 f"Empty cells (no data): {', '.join(empty)}. Hypotheses and effects that need them "
                 "cannot be estimated and are marked as such.")))
 
-        blocks.append(Paragraph(runs_of(
-            f"Model. The outcome, {data.outcome}, was modelled by a linear model with one mean per cell "
+        blocks.append(Paragraph(_lead("Model",
+            f"The outcome, {data.outcome}, was modelled by a linear model with one mean per cell "
             f"(the full model, including all interactions), fitted by ordinary least squares and "
             f"parameterized with {PARAM_WORDS[d.parameterization]}. The parameterization changes what "
             "each coefficient means, never the test of a hypothesis about means.")))
@@ -213,13 +231,13 @@ class _Builder:
                 kind = ("directional, one-sided t test" if c.alternative != "two-sided"
                         else "two-sided t test" if c.test == "t" else f"F test with {c.q} numerator df")
                 items.append(runs_of(f"{h.contrast.name} ({h.family}; {kind}): H0: {_unquote(c.null_text())}"))
-            blocks.append(Paragraph(runs_of(
-                f"Hypotheses. The plan states {_count_words(len(planned), 'planned hypothesis', 'planned hypotheses')}"
+            blocks.append(Paragraph(_lead("Hypotheses",
+                f"The plan states {_count_words(len(planned), 'planned hypothesis', 'planned hypotheses')}"
                 f" (the confirmatory family) and {_count_words(len(explor), 'exploratory one', 'exploratory ones')}:")))
             blocks.append(BulletList(tuple(items)))
         corr = a.hypotheses[0].correction if a.hypotheses else plan.analysis.correction
-        blocks.append(Paragraph(runs_of(
-            f"Error rates. Every test used α = {N.format_bounded(self.alpha, 2)}. Directional hypotheses "
+        blocks.append(Paragraph(_lead("Error rates",
+            f"Every test used α = {N.format_bounded(self.alpha, 2)}. Directional hypotheses "
             "(written with > or <) were tested one-sided, in the stated direction; the others two-sided. "
             f"p values were adjusted with {CORRECTION_NAMES[corr]} within the planned family"
             + (", and separately within the exploratory family" if explor else "")
@@ -235,7 +253,7 @@ class _Builder:
         if given:
             blocks.append(DefinitionList(tuple((runs_of(k), runs_of(v.strip())) for k, v in given)))
         soft = ", ".join(f"{k} {v}" for k, v in self.prov.software)
-        blocks.append(Paragraph(runs_of(f"Software. anova-report with {soft}.")))
+        blocks.append(Paragraph(_lead("Software", f"anova-report with {soft}.")))
         return Section("methods", "Methods", tuple(blocks))
 
     def assumption_methods(self) -> list[Paragraph]:
@@ -250,8 +268,8 @@ class _Builder:
             "whatever the variance check shows, which avoids the error-rate distortion of a two-stage "
             "choice (Zimmerman, 2004).",
         }[policy]
-        return [Paragraph(runs_of(
-            "Assumptions. Independence of observations follows from the design and cannot be checked "
+        return [Paragraph(_lead("Assumptions",
+            "Independence of observations follows from the design and cannot be checked "
             "from the data. Equality of variances across cells was checked with the Brown–Forsythe test "
             "(Levene's test centred at the median) and the mean-centred Levene test; normality of the "
             "residuals with the Shapiro–Wilk test and a normal Q–Q plot; outliers as externally "
@@ -441,15 +459,27 @@ class _Builder:
             marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
         blocks.append(Table(f"h{i}-betas", runs_of(f"The same contrast over the coefficients (L = C·D, {d.parameterization} coding)"),
                             beta_cols, tuple(rows), highlight=tuple(marks), compact=True))
-        items = [(runs_of("Test"), runs_of(self.test_stat(t), ", ", self.p_text(h)))]
+        if self.robust_confirmatory(h):
+            items = [(runs_of("Confirmatory test"), runs_of(self.confirm_stat(h), ", ", self.p_text(h))),
+                     (runs_of("Classical test"), runs_of(self.test_stat(t), ", ", N.stat_p(t.p), " (for comparison)"))]
+        else:
+            items = [(runs_of("Test"), runs_of(self.test_stat(t), ", ", self.p_text(h)))]
         if t.test == "t":
-            items.append((runs_of("Estimate"), runs_of(_num(t.estimate), ", ", self.ci_stat(t),
-                                                       " (one-sided bound)" if t.ci_sides == 1 else "")))
+            ci = self.ci_stat(t)
+            which = ""
+            if self.robust_confirmatory(h) and h.extras.robust.ci is not None:
+                lo, hi = h.extras.robust.ci
+                ci = N.stat_ci(float("-inf") if lo is None else lo, float("inf") if hi is None else hi, t.ci_level)
+                which = ", Welch"
+            items.append((runs_of("Estimate"), runs_of(_num(t.estimate), ", ", ci,
+                                                       f" (one-sided bound{which})" if t.ci_sides == 1 else
+                                                       (f" ({which[2:]})" if which else ""))))
         es = self.effect_size_runs(h)
         if es:
             items.append((runs_of("Effect size"), es))
-        items.append((runs_of("Family"), runs_of(f"{h.family}; {N.format_count(self.family_size(h.family))} hypotheses, "
-                                                 f"{CORRECTION_NAMES[h.correction]}")))
+        size = self.family_size(h.family)
+        items.append((runs_of("Family"), runs_of(f"{h.family}; {N.format_count(size)} "
+                                                 f"{'hypothesis' if size == 1 else 'hypotheses'}, {CORRECTION_NAMES[h.correction]}")))
         blocks.append(DefinitionList(tuple(items)))
         blocks.append(Paragraph(runs_of(self.reading(h)), "reading"))
         return Section(f"h{i}", f"{i}. {c.name}", tuple(blocks), level=3)
@@ -524,10 +554,13 @@ class _Builder:
                     f"clear difference in either direction. This does not show the means are equal: the "
                     f"confidence interval still includes differences of either sign.{explor}")
         if sig:
-            return (f"Reading: the estimate, {est}, lies in the stated direction, and at α = {alpha} ({adj} p) the "
-                    f"data are not consistent with the null that it is not; the one-sided bound gives the smallest "
-                    f"{'difference' if c.alternative == 'greater' else 'gap'} compatible with the data. Whether a "
-                    f"difference of this size matters is a substantive judgement, not a statistical one.{explor}")
+            bound = t.ci[0] if c.alternative == "greater" else t.ci[1]
+            side = "lower" if c.alternative == "greater" else "upper"
+            return (f"Reading: the estimate, {est}, lies in the stated direction, and the one-sided test rejects the "
+                    f"null ({_unquote(c.null_text())}) at α = {alpha} ({adj} p). The one-sided "
+                    f"{N.format_confidence_level(self.level)} {side} bound, {N.format_number(bound, 2)}, marks the "
+                    f"edge of the values compatible with the data; whether a difference of this size matters is a "
+                    f"substantive judgement, not a statistical one.{explor}")
         return (f"Reading: at α = {alpha} ({adj} p), the data do not give clear support to the directional "
                 f"hypothesis (estimate {est}). This is not evidence against an effect in that direction, "
                 f"nor that the means are equal.{explor}")
@@ -633,7 +666,7 @@ class _Builder:
             claim = "the difference was statistically significant" if sig else "the difference was not statistically significant"
         else:
             claim = "the directional hypothesis was supported" if sig else "the directional hypothesis was not supported"
-        parts = [N.text(f"{lead}{claim}, "), self.test_stat(t), N.text(", "), self.p_text(h)]
+        parts = [N.text(f"{lead}{claim}, "), self.confirm_stat(h), N.text(", "), self.p_text(h)]
         if t.test == "t":
             parts += [N.text("; estimate "), N.text(_num(t.estimate)), N.text(", "), self.ci_stat(t)]
         es = self.effect_size_runs(h)
@@ -712,7 +745,7 @@ class _Builder:
         else:
             items.append((runs_of("Shapiro–Wilk on residuals"),
                           runs_of(N.symbol("W"), f" = {N.format_bounded(sw.statistic, 3)}, ", N.stat_p(sw.p),
-                                  f", N = {N.format_count(sw.n)}")))
+                                  ", ", N.stat_count(sw.n, "N"))))
         outl = a.outliers.outliers
         rows_file = self.prep.data.rows
         if outl:
@@ -761,24 +794,29 @@ class _Builder:
                       f"Strip plot of the residuals in each of the {len(groups)} cells around a line at zero.", spec)
 
     def robust_table(self) -> Table:
-        cols = (Column(runs_of("test")), Column(runs_of("classical")), Column(runs_of("robust")),
+        short = {"Welch–Satterthwaite t": "Welch", "Welch's ANOVA": "Welch", "HC3 Wald F": "HC3"}
+        cols = (Column(runs_of("hypothesis")), Column(runs_of("classical")), Column(runs_of(N.symbol("p")), "right"),
+                Column(runs_of("robust")), Column(runs_of(N.symbol("p")), "right"),
                 Column(runs_of("permutation ", N.symbol("p")), "right"), Column(runs_of("confirmatory")))
         rows = []
         for h in self.a.hypotheses:
             e = h.extras
             if e is None:
                 continue
-            classical = runs_of(self.test_stat(h.test), ", ", N.stat_p(h.test.p))
             if e.robust is None or not (e.robust.p == e.robust.p):
-                robust = runs_of("not available" + (f" ({e.robust.note})" if e.robust and e.robust.note else ""))
+                robust, rp = runs_of("not available"), runs_of("—")
             else:
                 stat = (N.stat_t(e.robust.statistic, e.robust.df[0]) if e.robust.test == "t"
                         else N.stat_f(e.robust.statistic, e.robust.df[0], e.robust.df[1]))
-                robust = runs_of(e.robust.method, ": ", stat, ", ", N.stat_p(e.robust.p))
+                robust, rp = runs_of(short.get(e.robust.method, e.robust.method), " ", stat), runs_of(N.format_p_cell(e.robust.p))
             perm = runs_of(N.format_p_cell(e.permutation.p)) if e.permutation else runs_of("—")
-            rows.append((runs_of(h.contrast.name), classical, robust, perm, runs_of(e.confirmatory)))
-        note = [runs_of("Robust versions: Welch–Satterthwaite t for one-row contrasts, Welch's ANOVA for a one-way "
-                        "effect, HC3 heteroscedasticity-consistent Wald F otherwise. Unadjusted p values.")]
+            rows.append((runs_of(h.contrast.name), runs_of(self.test_stat(h.test)), runs_of(N.format_p_cell(h.test.p)),
+                         robust, rp, perm, runs_of(e.confirmatory)))
+        note = [runs_of("Robust versions: Welch = Welch–Satterthwaite t for a one-row contrast, or Welch's ANOVA for a "
+                        "one-way effect; HC3 = heteroscedasticity-consistent (HC3) Wald F. All p values unadjusted.")]
+        for h in self.a.hypotheses:
+            if h.extras and h.extras.robust and h.extras.robust.note:
+                note.append(runs_of(f"{h.contrast.name}: robust test not available ({h.extras.robust.note})."))
         if any(h.extras and h.extras.permutation for h in self.a.hypotheses):
             perm = next(h.extras.permutation for h in self.a.hypotheses if h.extras and h.extras.permutation)
             note.append(runs_of(f"Permutation p: {N.format_count(perm.n_permutations)} permutations (seed {perm.seed}), "
