@@ -34,12 +34,16 @@ def _parser() -> argparse.ArgumentParser:
         epilog="Exit codes: 0 ok, 1 a check failed, 2 bad input, 3 internal error.",
     )
     p.add_argument("--debug", action="store_true", help="show the full traceback of any error")
+    p.add_argument("--version", action="version", version=f"anova-report {_version()}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
     c = sub.add_parser(
         "check",
         help="validate a plan and its data; show cells, design matrix, β meanings and contrasts (writes nothing)",
-        description="Validate PLAN and its data file and print what the analysis will do. Writes nothing.",
+        description="Validate PLAN and its data file and print what the analysis will do: the cells and "
+        "their n, the design matrix, what each coefficient means, and every hypothesis compiled to "
+        "contrasts over the cell means and over the coefficients. Writes nothing.",
+        epilog="Example: anova-report check demo_project/factorial.toml",
     )
     c.add_argument("plan", metavar="PLAN", help="the plan file (.toml)")
     c.add_argument("--debug", action="store_true", help=argparse.SUPPRESS)
@@ -47,7 +51,10 @@ def _parser() -> argparse.ArgumentParser:
     r = sub.add_parser(
         "run",
         help="fit the plan's model and write the report",
-        description="Fit PLAN to its data and write the requested report files into --out.",
+        description="Fit PLAN to its data and write the requested report files into --out: "
+        "report.html, report.pdf (PDF/A-3b with the plan and results attached), report.md, results.json.",
+        epilog="Example: anova-report run demo_project/oneway.toml --out report --format html,pdf. "
+        "Set SOURCE_DATE_EPOCH for byte-identical reruns.",
     )
     r.add_argument("plan", metavar="PLAN", help="the plan file (.toml)")
     r.add_argument("--out", metavar="DIR", default="anova-report-out", help="output folder (default: %(default)s)")
@@ -59,6 +66,15 @@ def _parser() -> argparse.ArgumentParser:
     )
     r.add_argument("--debug", action="store_true", help=argparse.SUPPRESS)
     return p
+
+
+def _version() -> str:
+    from importlib import metadata
+
+    try:
+        return metadata.version("anova-report")
+    except metadata.PackageNotFoundError:
+        return "(not installed)"
 
 
 def _formats(text: str) -> tuple[str, ...]:

@@ -211,16 +211,21 @@ class Design:
         observed = np.ones(self.k, bool) if counts is None else np.asarray(counts) > 0
         mo = m[observed]
         fails = []
-        names = [c.label for c in self.coefficients]
+        names = [c.symbol for c in self.coefficients]
+
+        def some(items: list[str]) -> str:
+            shown = ", ".join(items[:3])
+            return shown + (f" and {len(items) - 3} more" if len(items) > 3 else "")
+
         bad = [names[j] for j in range(m.shape[1]) if not np.isin(m[:, j], (0, 1)).all()]
         if bad:
-            fails.append("columns hold values other than 0 and 1: " + ", ".join(bad[:6]))
+            fails.append("columns hold values other than 0 and 1: " + some(bad))
         empty = [names[j] for j in range(m.shape[1]) if not (mo[:, j] == 1).any()]
         if empty:
-            fails.append("columns with no 1 in an observed cell: " + ", ".join(empty[:6]))
+            fails.append("columns with no 1 in an observed cell: " + some(empty))
         rows = [f"({self.cells[i].label})" for i in np.flatnonzero(observed) if (m[i] == 1).sum() != 1]
         if rows:
-            fails.append("cells whose row does not have exactly one 1: " + ", ".join(rows[:6]))
+            fails.append("cells whose row does not have exactly one 1: " + some(rows))
         return IndicatorCheck(holds=not fails, failures=tuple(fails))
 
 
