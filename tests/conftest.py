@@ -59,3 +59,18 @@ ONEWAY_DATA = "height_mm,medium\n" + "".join(
     }.items()
     for v in vals
 )
+
+
+def pytest_terminal_summary(terminalreporter):
+    """Print the NIST StRD log-relative-error table when the NIST tests ran."""
+    import sys
+
+    module = next((m for name, m in sys.modules.items() if name.endswith("test_nist") and hasattr(m, "LRE_TABLE")), None)
+    table = getattr(module, "LRE_TABLE", None)
+    if not table:
+        return
+    keys = ["ss_between", "ss_within", "F", "r_squared", "residual_sd"]
+    terminalreporter.section("NIST StRD ANOVA: log relative error (15 = all certified digits)")
+    terminalreporter.write_line(f"{'dataset':<9}" + "".join(f"{k:>13}" for k in keys))
+    for name, scores in table.items():
+        terminalreporter.write_line(f"{name:<9}" + "".join(f"{scores[k]:>13.1f}" for k in keys))
