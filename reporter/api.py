@@ -51,3 +51,41 @@ def prepare(plan: Plan | str | Path, data: Any = None) -> Prepared:
     counts = tuple(int(c) for c in np.bincount(cell, minlength=design.k))
     contrasts = compile_hypotheses(plan, design, counts)
     return Prepared(plan, dataset, design, cell, counts, contrasts)
+
+
+@dataclass(frozen=True)
+class Report:
+    """A fitted plan: the prepared inputs, the analysis, and ways to render it."""
+
+    prepared: Prepared
+    analysis: Any
+
+    def document(self):
+        """The document model of the report (built on demand; nothing is cached)."""
+        from reporter.narrative.build import build_document
+        from reporter.provenance import collect_provenance
+
+        return build_document(self.prepared, self.analysis, collect_provenance(self.prepared))
+
+    def render(self, fmt: str) -> bytes:
+        """The bytes of one format: "html", "json", "md" or "pdf"."""
+        from reporter.run import render_outputs
+
+        return render_outputs(self.prepared, self.analysis, (fmt,))[fmt]
+
+    def write(self, out: str | Path, formats=("html", "json")) -> list[Path]:
+        """Write the report files, as ``anova-report run`` does."""
+        from reporter.run import write_files
+
+        return write_files(self.prepared, self.analysis, Path(out), tuple(formats))
+
+    def _repr_html_(self) -> str:
+        return self.render("html").decode("utf-8")
+
+
+def build_report(plan: Plan | str | Path, data: Any = None) -> Report:
+    """Prepare and fit a plan."""
+    from reporter.run import analyse
+
+    prep = prepare(plan, data)
+    return Report(prep, analyse(prep))
