@@ -73,6 +73,14 @@ def _num(x, d=2) -> str:
     return N.format_number(x, d)
 
 
+def _interval(ci, bounded: bool = False) -> str:
+    """A table cell for an interval: [low, high], or — when there is none."""
+    if ci is None:
+        return N.MISSING
+    fmt = (lambda v: N.format_bounded(v, 2)) if bounded else _num
+    return f"[{fmt(ci[0])}, {fmt(ci[1])}]"
+
+
 def _words_list(items: Sequence[str]) -> str:
     items = list(items)
     if len(items) <= 1:
@@ -299,7 +307,7 @@ class _Builder:
         ]
         rows = []
         for c, s in zip(d.cells, a.summaries):
-            ci = "—" if s.ci is None else f"[{_num(s.ci[0])}, {_num(s.ci[1])}]"
+            ci = _interval(s.ci)
             rows.append(tuple(runs_of(lv) for lv in c.levels) + (
                 runs_of(str(s.n)), runs_of(_num(s.mean)), runs_of(_num(s.sd)), runs_of(_num(s.se)), runs_of(ci)))
         table = Table(
@@ -393,7 +401,7 @@ class _Builder:
                 Column(runs_of(f"{N.format_confidence_level(self.level)} ", N.symbol("CI")), "right"))
         rows = []
         for m in a.marginal_means:
-            ci = "—" if m.ci is None else f"[{_num(m.ci[0])}, {_num(m.ci[1])}]"
+            ci = _interval(m.ci)
             rows.append((runs_of(m.factor), runs_of(m.level), runs_of(_num(m.mean) if m.mean is not None else "not estimable"),
                          runs_of(_num(m.se)), runs_of(ci)))
         table = Table("marginal-means", runs_of("Unweighted marginal means (each cell counted once)"), cols, tuple(rows),
@@ -595,7 +603,7 @@ class _Builder:
             es = extras[i].effect_sizes if i < len(extras) else None
             pe = N.format_bounded(es.partial_eta_squared.value, 2) if es else "—"
             ci = es.partial_eta_squared.ci if es else None
-            ci_txt = f"[{N.format_bounded(ci[0], 2)}, {N.format_bounded(ci[1], 2)}]" if ci else "—"
+            ci_txt = _interval(ci, bounded=True)
             po = N.format_number(es.partial_omega_squared.value, 2, leading_zero=False) if es else "—"
             rows.append((runs_of(r.source), runs_of(str(r.df)), runs_of(_num(r.ss)), runs_of(_num(r.ms)),
                          runs_of(_num(r.F)), runs_of(N.format_p_cell(r.p)), runs_of(pe), runs_of(ci_txt), runs_of(po)))
@@ -863,7 +871,7 @@ class _Builder:
             rows = []
             for c in res.comparisons:
                 rows.append((runs_of(f"{labels[c.first]} − {labels[c.second]}"), runs_of(_num(c.difference)),
-                             runs_of(_num(c.se)), runs_of(f"[{_num(c.ci_low)}, {_num(c.ci_high)}]"),
+                             runs_of(_num(c.se)), runs_of(_interval((c.ci_low, c.ci_high))),
                              runs_of(N.format_p_cell(c.p_adjusted))))
             cols = (Column(runs_of("difference")), Column(runs_of("estimate"), "right"), Column(runs_of(N.symbol("SE")), "right"),
                     Column(runs_of(f"{N.format_confidence_level(1 - res.alpha)} simultaneous ", N.symbol("CI")), "right"),
