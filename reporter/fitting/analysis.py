@@ -8,10 +8,10 @@ from fractions import Fraction
 from typing import Sequence
 
 import numpy as np
-from scipy import stats
 
 from reporter.fitting.anova import AnovaTable, fit_anova
 from reporter.fitting.cellstats import CellStats, describe_cells
+from reporter.fitting.distributions import t_ppf
 from reporter.fitting.inference import HypothesisExtras, Inference, describe_inference
 from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model
 from reporter.fitting.multiplicity import adjust_p
@@ -81,7 +81,7 @@ class Analysis:
 
 def describe_cell_summaries(cells: CellStats, fit: ModelFit, alpha: float) -> tuple[CellSummary, ...]:
     out = []
-    q_pooled = float(stats.t.ppf(1 - alpha / 2, fit.df_error))
+    q_pooled = float(t_ppf(1 - alpha / 2, fit.df_error))
     for c in range(cells.k):
         n = int(cells.n[c])
         if n == 0:
@@ -92,7 +92,7 @@ def describe_cell_summaries(cells: CellStats, fit: ModelFit, alpha: float) -> tu
         if n > 1:
             sd = float(cells.sd[c])
             se = sd / math.sqrt(n)
-            half = float(stats.t.ppf(1 - alpha / 2, n - 1)) * se
+            half = float(t_ppf(1 - alpha / 2, n - 1)) * se
             ci = (mean - half, mean + half)
         else:
             sd = se = None
@@ -103,7 +103,7 @@ def describe_cell_summaries(cells: CellStats, fit: ModelFit, alpha: float) -> tu
 
 def describe_marginal_means(design: Design, cells: CellStats, fit: ModelFit, alpha: float) -> tuple[MarginalMean, ...]:
     """Unweighted marginal means of every level of every factor, with CIs at 1 − α."""
-    q = float(stats.t.ppf(1 - alpha / 2, fit.df_error))
+    q = float(t_ppf(1 - alpha / 2, fit.df_error))
     out = []
     for f in design.factors:
         for level in f.levels:

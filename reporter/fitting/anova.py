@@ -24,8 +24,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
+from reporter.fitting.distributions import f_sf
 from reporter.fitting.linear import ModelFit, fit_contrast
 from reporter.model.design import Design, build_design
 from reporter.model.hypotheses import effect_weights
@@ -141,7 +141,7 @@ def _nested_rows(design: Design, fit: ModelFit, ss_type: str) -> list[AnovaRow]:
 def _row(term, df, ss, fit, note=None) -> AnovaRow:
     ms = ss / df
     F = ms / fit.mse
-    return AnovaRow(_source(term), term, df, ss, ms, F, float(stats.f.sf(F, df, fit.df_error)), note)
+    return AnovaRow(_source(term), term, df, ss, ms, F, float(f_sf(F, df, fit.df_error)), note)
 
 
 def _type3_rows(design: Design, fit: ModelFit) -> list[AnovaRow]:

@@ -10,12 +10,14 @@ reported as such).
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 from reporter.errors import FitError
+from reporter.fitting.distributions import f_sf, norm_cdf, norm_ppf
 from reporter.fitting.robust import _cell_stats_from_rows, _rows
 
 __all__ = [
@@ -172,7 +174,7 @@ def _deviation_f(y, codes, k, center: str, method: str) -> HomogeneityResult:
         statistic=f,
         df1=df1,
         df2=df2,
-        p=float(stats.f.sf(f, df1, df2)),
+        p=float(f_sf(f, df1, df2)),
         n_groups=g,
     )
 
@@ -244,9 +246,9 @@ def studentized_residuals(y, codes, k: int | None = None) -> StudentizedResidual
 def shapiro_wilk(y, codes, k: int | None = None) -> NormalityResult:
     """Shapiro-Wilk test of the residuals (rows of one-row cells left out).
 
-    Shapiro & Wilk (1965), Biometrika 52, 591-611, with Royston's (1995) algorithm AS R94
-    (Applied Statistics 44, 547-551) as implemented by ``scipy.stats.shapiro``; the p value
-    approximation holds for 3 <= n <= 5000, so outside that range the test is skipped.
+    Shapiro & Wilk (1965), Biometrika 52, 591-611, computed by Royston's (1995) algorithm
+    AS R94 (see :func:`_royston_shapiro_wilk`); the p value approximation holds for
+    3 <= n <= 5000, so outside that range the test is skipped.
     """
     y, codes, k = _rows(y, codes, k)
     n, mean, _ = _cell_stats_from_rows(y, codes, k)
@@ -259,10 +261,99 @@ def shapiro_wilk(y, codes, k: int | None = None) -> NormalityResult:
         return NormalityResult("Shapiro-Wilk", m, True, "too-many-rows", None, None)
     if not np.ptp(e) > 1e-12 * max(1.0, float(np.max(np.abs(y)))):
         return NormalityResult("Shapiro-Wilk", m, True, "no-spread", None, None)
-    res = stats.shapiro(e)
-    return NormalityResult(
-        "Shapiro-Wilk", m, False, None, float(res.statistic), float(res.pvalue)
-    )
+    w, p = _royston_shapiro_wilk(e)
+    return NormalityResult("Shapiro-Wilk", m, False, None, w, p)
+
+
+# Polynomial coefficients of Royston (1995), AS R94, lowest power first: corrections of the last
+# two coefficients in u = 1/sqrt(n) (C1, C2); mean and log-sd of the normalized statistic for
+# 4 <= n <= 11 in n (C3, C4, with the bound G) and for n >= 12 in log(n) (C5, C6).
+_SW_C1 = (0.0, 0.221157, -0.147981, -2.071190, 4.434685, -2.706056)
+_SW_C2 = (0.0, 0.042981, -0.293762, -1.752461, 5.682633, -3.582633)
+_SW_C3 = (0.5440, -0.39978, 0.025054, -6.714e-4)
+_SW_C4 = (1.3822, -0.77857, 0.062767, -2.0322e-3)
+_SW_C5 = (-1.5861, -0.31082, -0.083751, 3.8915e-3)
+_SW_C6 = (-0.4803, -0.082676, 3.0302e-3)
+_SW_G = (-2.273, 0.459)
+
+
+def _poly(coefficients: tuple[float, ...], x: float) -> float:
+    """sum_j coefficients[j] x^j, by Horner's rule."""
+    value = 0.0
+    for c in reversed(coefficients):
+        value = value * x + c
+    return value
+
+
+def _shapiro_wilk_coefficients(n: int) -> np.ndarray:
+    """The n // 2 largest Shapiro-Wilk coefficients a_n, a_(n-1), ... (positive), n >= 3.
+
+    Royston (1995), AS R94: m_i = Phi^-1((i - 3/8) / (n + 1/4)); the two extreme coefficients
+    (one when n <= 5) are the polynomial approximations in u = 1/sqrt(n), and the others are
+    -m_i / phi with phi chosen so that the full antisymmetric vector has unit length. For n = 3
+    the coefficient is sqrt(1/2) exactly.
+    """
+    if n == 3:
+        return np.array([math.sqrt(0.5)])
+    i = np.arange(1, n // 2 + 1)
+    m = special.ndtri((i - 0.375) / (n + 0.25))
+    summ2 = 2.0 * math.fsum((m * m).tolist())
+    rsn = 1.0 / math.sqrt(n)
+    a1 = _poly(_SW_C1, rsn) - m[0] / math.sqrt(summ2)
+    if n > 5:
+        a2 = _poly(_SW_C2, rsn) - m[1] / math.sqrt(summ2)
+        phi = (summ2 - 2.0 * m[0] ** 2 - 2.0 * m[1] ** 2) / (1.0 - 2.0 * a1**2 - 2.0 * a2**2)
+        a = -m / math.sqrt(phi)
+        a[0], a[1] = a1, a2
+    else:
+        phi = (summ2 - 2.0 * m[0] ** 2) / (1.0 - 2.0 * a1**2)
+        a = -m / math.sqrt(phi)
+        a[0] = a1
+    return a
+
+
+def _royston_shapiro_wilk(x: np.ndarray) -> tuple[float, float]:
+    """Shapiro-Wilk W and its p value for 3 <= n <= 5000 values with some spread.
+
+    Royston (1995), "Remark AS R94: A remark on algorithm AS 181: The W-test for normality",
+    Applied Statistics 44(4), 547-551. W is the squared correlation of the sorted values with
+    the antisymmetric coefficient vector; 1 - W is formed directly so that log(1 - W) keeps its
+    precision near W = 1. p values: for n = 3 the exact
+    (6/pi)(asin(sqrt(W)) - asin(sqrt(3/4))); for 4 <= n <= 11, -log(gamma - log(1 - W)) with
+    gamma = -2.273 + 0.459 n is taken as normal with mean C3(n) and sd exp(C4(n)); for n >= 12,
+    log(1 - W) is taken as normal with mean C5(log n) and sd exp(C6(log n)).
+    """
+    xs = np.sort(np.asarray(x, dtype=np.float64))
+    n = xs.size
+    xs = xs - xs[n // 2]
+    xs = xs / (xs[-1] - xs[0])
+    a = _shapiro_wilk_coefficients(n)
+    coef = np.zeros(n)
+    coef[: a.size] = -a
+    coef[n - a.size :] = a[::-1]
+    xc = xs - xs.mean()
+    ssa = float(coef @ coef)
+    ssx = float(xc @ xc)
+    sax = float(coef @ xc)
+    root = math.sqrt(ssa * ssx)
+    one_minus_w = (root - sax) * (root + sax) / (ssa * ssx)
+    if not one_minus_w > 0.0:  # the values lie exactly on the coefficients (up to rounding)
+        return 1.0, 1.0
+    w = 1.0 - one_minus_w
+    if n == 3:
+        p = 6.0 / math.pi * (math.asin(math.sqrt(w)) - math.pi / 3.0)
+        return w, min(max(p, 0.0), 1.0)
+    y = math.log(one_minus_w)
+    if n <= 11:
+        gamma = _poly(_SW_G, n)
+        if y >= gamma:  # beyond the range of the transformation: far in the lower tail
+            return w, 0.0
+        y = -math.log(gamma - y)
+        mean, sd = _poly(_SW_C3, n), math.exp(_poly(_SW_C4, n))
+    else:
+        log_n = math.log(n)
+        mean, sd = _poly(_SW_C5, log_n), math.exp(_poly(_SW_C6, log_n))
+    return w, float(norm_cdf(-(y - mean) / sd))
 
 
 def qq_points(y, codes, k: int | None = None) -> QQData:
@@ -277,7 +368,7 @@ def qq_points(y, codes, k: int | None = None) -> QQData:
     order = usable[np.argsort(res.internal[usable], kind="stable")]
     m = order.size
     positions = (np.arange(1, m + 1) - 0.375) / (m + 0.25)
-    theoretical = stats.norm.ppf(positions)
+    theoretical = norm_ppf(positions)
     return QQData(
         theoretical=tuple(float(v) for v in theoretical),
         sample=tuple(float(v) for v in res.internal[order]),

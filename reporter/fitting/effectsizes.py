@@ -41,9 +41,10 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from scipy import optimize, special, stats
+from scipy import optimize, special
 
 from reporter.errors import FitError, PlanError
+from reporter.fitting.distributions import f_sf, ncf_sf
 
 __all__ = [
     "AnovaEffectSizes",
@@ -168,12 +169,14 @@ def noncentral_f_cdf(x: float, df1: float, df2: float, nc: float) -> float:
 def noncentral_f_sf(x: float, df1: float, df2: float, nc: float) -> float:
     """P(F' > x) for the noncentral F(df1, df2, nc); the central F at (near) zero noncentrality.
 
-    ``scipy.stats.ncf.sf`` returns ``-cdf`` at ``nc == 0`` (scipy issue 26188), hence the switch
-    to ``scipy.stats.f.sf`` there.
+    Boost's complement behind ``scipy.stats.ncf.sf`` returns ``-cdf`` at ``nc == 0`` (scipy
+    issue 26188), hence the switch to the central F survival function at and near zero
+    (:func:`reporter.fitting.distributions.f_sf` and ``ncf_sf``, the ``scipy.stats`` values
+    computed without importing ``scipy.stats``).
     """
     if nc <= _TINY_NONCENTRALITY:
-        return float(stats.f.sf(x, df1, df2))
-    return float(stats.ncf.sf(x, df1, df2, nc))
+        return float(f_sf(x, df1, df2))
+    return float(ncf_sf(x, df1, df2, nc))
 
 
 def noncentral_t_cdf(x: float, df: float, nc: float) -> float:

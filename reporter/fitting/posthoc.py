@@ -33,9 +33,10 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize
 
 from reporter.errors import FitError
+from reporter.fitting.distributions import f_isf, f_sf, t_cdf, t_isf, t_sf
 
 __all__ = [
     "Comparison",
@@ -240,10 +241,13 @@ def tukey_kramer(
     ``df_error`` of the full cell-means model; ``weights`` (g, k) maps cell means to group
     means (default: the groups are the cells).
     """
+    # Imported here: scipy.stats is slow to import and only post-hoc families need it.
+    from scipy.stats import studentized_range
+
     alpha = _check_alpha(alpha)
     est, v, mse, df_error = _group_structure(estimates, n, mse, df_error, weights)
     g = est.size
-    q_crit = float(stats.studentized_range.ppf(1.0 - alpha, g, df_error))
+    q_crit = float(studentized_range.ppf(1.0 - alpha, g, df_error))
     crit = q_crit / np.sqrt(2.0)
     out = []
     for i in range(g):
@@ -251,7 +255,7 @@ def tukey_kramer(
             se = _pair_se(v, mse, i, j)
             diff = float(est[i] - est[j])
             t = diff / se
-            p = float(stats.studentized_range.sf(abs(t) * np.sqrt(2.0), g, df_error))
+            p = float(studentized_range.sf(abs(t) * np.sqrt(2.0), g, df_error))
             out.append(
                 Comparison(
                     first=i,
@@ -313,11 +317,14 @@ def _mvt_exceedance(
     if m == 1:
         x = float(values[0])
         if alternative == "two-sided":
-            return float(2.0 * stats.t.sf(abs(x), df))
+            return float(2.0 * t_sf(abs(x), df))
         if alternative == "greater":
-            return float(stats.t.sf(x, df))
-        return float(stats.t.cdf(x, df))
-    dist = stats.multivariate_t(shape=corr, df=df)
+            return float(t_sf(x, df))
+        return float(t_cdf(x, df))
+    # Imported here: scipy.stats is slow to import and only post-hoc families need it.
+    from scipy.stats import multivariate_t
+
+    dist = multivariate_t(shape=corr, df=df)
     if alternative == "two-sided":
         upper = np.abs(values)
         lower = -upper
@@ -342,15 +349,15 @@ def _dunnett_critical(
     m = corr.shape[0]
     sides = 2.0 if alternative == "two-sided" else 1.0
     if m == 1:
-        return float(stats.t.isf(alpha / sides, df))
+        return float(t_isf(alpha / sides, df))
 
     def excess(c: float) -> float:
         level = np.full(m, c) if alternative != "less" else np.full(m, -c)
         return _mvt_exceedance(corr, df, level, alternative, seed, maxpts) - alpha
 
     # A single comparison's quantile bounds c from below, Bonferroni's from above.
-    low = float(stats.t.isf(alpha / sides, df)) * 0.9
-    high = float(stats.t.isf(alpha / (sides * m), df)) * 1.1 + 0.1
+    low = float(t_isf(alpha / sides, df)) * 0.9
+    high = float(t_isf(alpha / (sides * m), df)) * 1.1 + 0.1
     return float(optimize.brentq(excess, low, high, xtol=1e-7))
 
 
@@ -458,11 +465,11 @@ def dunnett(
 
 
 def _scheffe_critical(family_df: int, df_error: float, alpha: float) -> float:
-    return float(np.sqrt(family_df * stats.f.isf(alpha, family_df, df_error)))
+    return float(np.sqrt(family_df * f_isf(alpha, family_df, df_error)))
 
 
 def _scheffe_p(t: float, family_df: int, df_error: float) -> float:
-    return float(stats.f.sf(t * t / family_df, family_df, df_error))
+    return float(f_sf(t * t / family_df, family_df, df_error))
 
 
 def scheffe_pairs(

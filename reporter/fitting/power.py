@@ -19,9 +19,10 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from scipy import optimize, stats
+from scipy import optimize
 
 from reporter.errors import FitError, PlanError
+from reporter.fitting.distributions import f_isf
 from reporter.fitting.effectsizes import noncentral_f_sf
 
 __all__ = [
@@ -117,7 +118,7 @@ def _resolve_df_error(df1: float, n_total: float, df_error: float | None) -> flo
 
 
 def _power_at(lam: float, df1: float, df2: float, alpha: float) -> float:
-    crit = stats.f.isf(alpha, df1, df2)
+    crit = f_isf(alpha, df1, df2)
     return noncentral_f_sf(crit, df1, df2, lam)
 
 
@@ -169,7 +170,7 @@ def solve_detectable_f(
     if not (math.isfinite(n_total) and n_total > 0):
         raise FitError(f"'n_total' must be a positive number of observations (got {n_total:g}).")
     df1, df2 = _check_df(df1, _resolve_df_error(df1, n_total, df_error))
-    crit = stats.f.isf(alpha, df1, df2)
+    crit = f_isf(alpha, df1, df2)
 
     def func(lam: float) -> float:
         return noncentral_f_sf(crit, df1, df2, lam) - power

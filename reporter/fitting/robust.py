@@ -16,9 +16,9 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from scipy import stats
 
 from reporter.errors import FitError
+from reporter.fitting.distributions import chi2_sf, f_sf, t_cdf, t_isf, t_sf
 from reporter.fitting.posthoc import Comparison, ComparisonFamily, _check_alpha
 
 __all__ = [
@@ -261,7 +261,7 @@ def welch_anova(n, mean, ss) -> WelchAnovaResult:
     df1 = float(g - 1)
     df2 = (g * g - 1.0) / (3.0 * lam)
     return WelchAnovaResult(
-        statistic=f, df1=df1, df2=df2, p=float(stats.f.sf(f, df1, df2)), n_groups=g
+        statistic=f, df1=df1, df2=df2, p=float(f_sf(f, df1, df2)), n_groups=g
     )
 
 
@@ -317,16 +317,16 @@ def welch_contrast(
     h = float(h)
     t = (estimate - h) / se
     if alternative == "two-sided":
-        p = float(2.0 * stats.t.sf(abs(t), df))
-        q = float(stats.t.isf(alpha / 2.0, df))
+        p = float(2.0 * t_sf(abs(t), df))
+        q = float(t_isf(alpha / 2.0, df))
         low, high = estimate - q * se, estimate + q * se
     elif alternative == "greater":
-        p = float(stats.t.sf(t, df))
-        q = float(stats.t.isf(alpha, df))
+        p = float(t_sf(t, df))
+        q = float(t_isf(alpha, df))
         low, high = estimate - q * se, np.inf
     else:
-        p = float(stats.t.cdf(t, df))
-        q = float(stats.t.isf(alpha, df))
+        p = float(t_cdf(t, df))
+        q = float(t_isf(alpha, df))
         low, high = -np.inf, estimate + q * se
     return WelchContrastResult(
         estimate=estimate,
@@ -355,6 +355,9 @@ def games_howell(n, mean, ss, *, alpha: float = 0.05) -> ComparisonFamily:
     d -/+ q_(1-alpha; g, nu)/sqrt(2) * se (Games & Howell 1976, Journal of Educational
     Statistics 1, 113-125). Every cell must have at least 2 rows.
     """
+    # Imported here: scipy.stats is slow to import and only post-hoc families need it.
+    from scipy.stats import studentized_range
+
     alpha = _check_alpha(alpha)
     n, mean, ss = _cell_stats(n, mean, ss)
     g = n.size
@@ -380,8 +383,8 @@ def games_howell(n, mean, ss, *, alpha: float = 0.05) -> ComparisonFamily:
             se = float(np.sqrt(se2))
             diff = float(mean[i] - mean[j])
             t = diff / se
-            crit = float(stats.studentized_range.ppf(1.0 - alpha, g, df)) / np.sqrt(2.0)
-            p = float(stats.studentized_range.sf(abs(t) * np.sqrt(2.0), g, df))
+            crit = float(studentized_range.ppf(1.0 - alpha, g, df)) / np.sqrt(2.0)
+            p = float(studentized_range.sf(abs(t) * np.sqrt(2.0), g, df))
             out.append(
                 Comparison(
                     first=i,
@@ -409,6 +412,23 @@ def games_howell(n, mean, ss, *, alpha: float = 0.05) -> ComparisonFamily:
 # Kruskal-Wallis
 
 
+def _average_ranks(y: np.ndarray) -> np.ndarray:
+    """Ranks 1..N of ``y``, tied values sharing the mean of the ranks they occupy (mid-ranks).
+
+    Sorts once; a tie group occupying sorted positions s+1 .. s+t gets the rank s + (t + 1) / 2
+    (Kruskal & Wallis 1952). Equals ``scipy.stats.rankdata(y, method="average")``.
+    """
+    order = np.argsort(y, kind="stable")
+    ys = y[order]
+    starts_group = np.concatenate(([True], ys[1:] != ys[:-1]))
+    group = np.cumsum(starts_group) - 1
+    starts = np.flatnonzero(starts_group)
+    sizes = np.diff(np.append(starts, ys.size))
+    ranks = np.empty(ys.size)
+    ranks[order] = (starts + (sizes + 1) / 2.0)[group]
+    return ranks
+
+
 def kruskal_wallis(y, codes, k: int | None = None) -> KruskalWallisResult:
     """Kruskal-Wallis rank test over the observed cells, corrected for ties.
 
@@ -425,7 +445,7 @@ def kruskal_wallis(y, codes, k: int | None = None) -> KruskalWallisResult:
             f"Kruskal-Wallis compares at least 2 observed cells (got {g}); check the factor "
             "levels present in the data."
         )
-    ranks = stats.rankdata(y)
+    ranks = _average_ranks(y)
     rank_sums = np.bincount(codes, weights=ranks, minlength=k)
     obs = n > 0
     h = 12.0 / (big_n * (big_n + 1.0)) * float(np.sum(rank_sums[obs] ** 2 / n[obs])) - 3.0 * (
@@ -443,7 +463,7 @@ def kruskal_wallis(y, codes, k: int | None = None) -> KruskalWallisResult:
     return KruskalWallisResult(
         statistic=float(h),
         df=df,
-        p=float(stats.chi2.sf(h, df)),
+        p=float(chi2_sf(h, df)),
         tie_correction=correction,
         n_groups=g,
     )
@@ -509,5 +529,5 @@ def hc3_wald(C, n, mean, ss, *, h=None) -> RobustWaldResult:
     q = cm.shape[0]
     f = float(z @ z) / q
     return RobustWaldResult(
-        statistic=f, df1=q, df2=df2, p=float(stats.f.sf(f, q, df2)), method="HC3"
+        statistic=f, df1=q, df2=df2, p=float(f_sf(f, q, df2)), method="HC3"
     )

@@ -11,6 +11,8 @@ from scipy import stats
 
 from reporter.errors import FitError
 from reporter.fitting.assumptions import (
+    _royston_shapiro_wilk,
+    _shapiro_wilk_coefficients,
     brown_forsythe,
     find_outliers,
     levene,
@@ -84,6 +86,89 @@ def test_shapiro_matches_scipy_on_residuals(name):
     assert not res.skipped and res.n == y.size
     assert res.statistic == pytest.approx(ref.statistic, rel=1e-6)
     assert res.p == pytest.approx(ref.pvalue, rel=1e-5)
+
+
+def _sample(kind: str, n: int, seed: int) -> np.ndarray:
+    """Seeded samples: normal, skewed, heavily tied (rounded), and far from zero (shifted)."""
+    rng = np.random.default_rng(seed)
+    if kind == "normal":
+        return rng.normal(size=n)
+    if kind == "exponential":
+        return rng.exponential(size=n)
+    if kind == "ties":
+        return np.round(rng.normal(size=n) * 2.0)
+    return rng.uniform(size=n) ** 3 * 100.0 + 1e6
+
+
+SW_SIZES = [3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 17, 20, 31, 50, 100, 250, 500, 1000, 2000, 4999, 5000]
+SW_KINDS = ["normal", "exponential", "ties", "shifted"]
+
+
+@pytest.mark.parametrize("kind", SW_KINDS, ids=SW_KINDS)
+@pytest.mark.parametrize("n", SW_SIZES, ids=[f"n{n}" for n in SW_SIZES])
+def test_royston_shapiro_wilk_matches_scipy_on_seeded_samples(n, kind):
+    """W to 1e-8 and p to 1e-5 relative of scipy.stats.shapiro (reference library), 5 seeds each.
+
+    scipy's coefficients differ from exact Phi^-1 ones by up to ~1e-7 relative (it evaluates the
+    normal quantile approximately), which moves W by up to ~1e-9 and, through log(1 - W) near
+    W = 1 at large n, p by up to ~1e-6. The absolute 1e-14 on p covers samples of three values
+    with a tie, whose W is 3/4 and p exactly 0 but both computations leave rounding noise.
+    """
+    for seed in range(5):
+        x = _sample(kind, n, 1000 * n + seed)
+        if np.ptp(x) == 0:
+            continue
+        ref = stats.shapiro(x)
+        w, p = _royston_shapiro_wilk(x)
+        assert w == pytest.approx(ref.statistic, rel=1e-8)
+        assert p == pytest.approx(ref.pvalue, rel=1e-5, abs=1e-14)
+
+
+@pytest.mark.parametrize("n", [4, 5, 6, 9, 12, 50], ids=lambda n: f"n{n}")
+def test_shapiro_wilk_of_the_coefficients_themselves_is_one(n):
+    """Values equal to the coefficient vector give W = 1 and p = 1 (scipy.stats.shapiro agrees),
+    though rounding can put the computed 1 - W at or below zero."""
+    a = _shapiro_wilk_coefficients(n)
+    x = np.concatenate([-a, np.zeros(n % 2), a[::-1]])
+    ref = stats.shapiro(x)
+    w, p = _royston_shapiro_wilk(x)
+    assert w == pytest.approx(ref.statistic, abs=1e-14) and w <= 1.0
+    assert p == pytest.approx(ref.pvalue, abs=1e-10)
+
+
+@pytest.mark.parametrize(
+    ("x", "w", "p"),
+    [([0.0, 1.0, 2.0], 1.0, 1.0), ([0.0, 0.0, 1.0], 0.75, 0.0), ([3.0, 1.0, 1.5], None, None)],
+    ids=["equally-spaced", "two-tied", "general"],
+)
+def test_shapiro_wilk_of_three_values(x, w, p):
+    """n = 3: a = sqrt(1/2), W >= 3/4 and p = (6/pi)(asin(sqrt(W)) - pi/3) exactly (Royston 1995);
+    checked against scipy.stats.shapiro and, for the two limiting samples, against W = 1, p = 1
+    and W = 3/4, p = 0."""
+    assert _shapiro_wilk_coefficients(3).tolist() == [np.sqrt(0.5)]
+    ours = _royston_shapiro_wilk(np.array(x))
+    ref = stats.shapiro(x)
+    assert ours[0] == pytest.approx(ref.statistic, rel=1e-12)
+    assert ours[1] == pytest.approx(ref.pvalue, rel=1e-10, abs=1e-14)
+    if w is not None:
+        assert ours == pytest.approx((w, p), abs=1e-14)
+
+
+def test_shapiro_wilk_on_the_weights_example_of_shapiro_and_wilk():
+    """Eleven weights (lb) from Shapiro & Wilk (1965), Biometrika 52, 591-611, with W = 0.79 there
+    (sample and value from memory, not checked against the printed paper)."""
+    w, p = _royston_shapiro_wilk(np.array([148, 154, 158, 160, 161, 162, 166, 170, 182, 195, 236.0]))
+    assert w == pytest.approx(0.79, abs=0.005)
+    assert p < 0.01
+
+
+def test_shapiro_wilk_is_invariant_to_order_shift_and_scale():
+    """W and p do not change when the values are shuffled or transformed by a -> 3a + 7 (identity)."""
+    x = _sample("exponential", 40, 7)
+    rng = np.random.default_rng(8)
+    base = _royston_shapiro_wilk(x)
+    assert _royston_shapiro_wilk(rng.permutation(x)) == pytest.approx(base, rel=1e-12)
+    assert _royston_shapiro_wilk(3.0 * x + 7.0) == pytest.approx(base, rel=1e-12)
 
 
 @pytest.mark.parametrize(

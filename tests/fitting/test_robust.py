@@ -11,6 +11,7 @@ from scipy import stats
 
 from reporter.errors import FitError
 from reporter.fitting.robust import (
+    _average_ranks,
     games_howell,
     hc3_wald,
     kruskal_wallis,
@@ -174,6 +175,22 @@ def test_kruskal_wallis_matches_scipy(name):
     assert res.statistic == pytest.approx(ref.statistic, rel=1e-10)
     assert res.p == pytest.approx(ref.pvalue, rel=1e-8)
     assert res.df == k - 1
+
+
+RANK_CASES = {
+    "distinct": np.random.default_rng(11).normal(size=37),
+    "ties": np.round(np.random.default_rng(12).normal(size=200), 1),
+    "all-equal": np.full(9, 2.5),
+    "one-value": np.array([4.0]),
+    "signed-zero-and-runs": np.array([0.0, -0.0, 3.0, 3.0, 3.0, -1.0, 3.0, -1.0]),
+}
+
+
+@pytest.mark.parametrize("name", list(RANK_CASES), ids=list(RANK_CASES))
+def test_average_ranks_match_scipy_rankdata(name):
+    """Mid-ranks equal scipy.stats.rankdata(method='average') exactly (reference library)."""
+    y = RANK_CASES[name]
+    np.testing.assert_array_equal(_average_ranks(y), stats.rankdata(y, method="average"))
 
 
 def test_kruskal_wallis_ties_change_the_correction():
