@@ -565,7 +565,7 @@ class _Builder:
             bound = t.ci[0] if c.alternative == "greater" else t.ci[1]
             side = "lower" if c.alternative == "greater" else "upper"
             return (f"Reading: the estimate, {est}, lies in the stated direction, and the one-sided test rejects the "
-                    f"null ({_unquote(c.null_text())}) at α = {alpha} ({adj} p). The one-sided "
+                    f"null hypothesis H0: {_unquote(c.null_text())}, at α = {alpha} ({adj} p). The one-sided "
                     f"{N.format_confidence_level(self.level)} {side} bound, {N.format_number(bound, 2)}, marks the "
                     f"edge of the values compatible with the data; whether a difference of this size matters is a "
                     f"substantive judgement, not a statistical one.{explor}")
