@@ -41,10 +41,11 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from scipy import optimize, special
+from scipy import special
 
 from reporter.errors import FitError, PlanError
 from reporter.fitting.distributions import f_sf, ncf_sf
+from reporter.fitting.roots import find_root
 
 __all__ = [
     "AnovaEffectSizes",
@@ -234,7 +235,7 @@ def _solve_decreasing(func, start: float, lower: float | None) -> float:
     """Root of a decreasing function known to be positive at ``start``, searching upwards.
 
     Expands the bracket by doubling the step until the function turns negative, then refines
-    with Brent's method (``scipy.optimize.brentq``). ``lower`` is a floor the search may reuse as
+    with Brent's method (:func:`reporter.fitting.roots.find_root`). ``lower`` is a floor the search may reuse as
     the bracket's left end.
     """
     lo = start if lower is None else lower
@@ -242,7 +243,7 @@ def _solve_decreasing(func, start: float, lower: float | None) -> float:
     hi = start + step
     for _ in range(_MAX_DOUBLINGS):
         if func(hi) < 0:
-            return float(optimize.brentq(func, lo, hi, xtol=_ROOT_XTOL, rtol=_ROOT_RTOL))
+            return float(find_root(func, lo, hi, xtol=_ROOT_XTOL, rtol=_ROOT_RTOL))
         lo = hi
         step *= 2.0
         hi = start + step
@@ -259,7 +260,7 @@ def _solve_decreasing_downwards(func, start: float) -> float:
     lo = start - step
     for _ in range(_MAX_DOUBLINGS):
         if func(lo) > 0:
-            return float(optimize.brentq(func, lo, hi, xtol=_ROOT_XTOL, rtol=_ROOT_RTOL))
+            return float(find_root(func, lo, hi, xtol=_ROOT_XTOL, rtol=_ROOT_RTOL))
         hi = lo
         step *= 2.0
         lo = start - step
@@ -294,7 +295,7 @@ def f_noncentrality_ci(F: float, df1: float, df2: float, level: float = 0.90) ->
 
         if func(start) > 0:
             return _solve_decreasing(func, start, lower=start)
-        return float(optimize.brentq(func, 0.0, start, xtol=_ROOT_XTOL, rtol=_ROOT_RTOL))
+        return float(find_root(func, 0.0, start, xtol=_ROOT_XTOL, rtol=_ROOT_RTOL))
 
     return bound(1.0 - a), bound(a)
 

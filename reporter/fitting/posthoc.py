@@ -33,10 +33,10 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from scipy import optimize
 
 from reporter.errors import FitError
 from reporter.fitting.distributions import f_isf, f_sf, t_cdf, t_isf, t_sf
+from reporter.fitting.roots import find_root
 
 __all__ = [
     "Comparison",
@@ -358,7 +358,7 @@ def _dunnett_critical(
     # A single comparison's quantile bounds c from below, Bonferroni's from above.
     low = float(t_isf(alpha / sides, df)) * 0.9
     high = float(t_isf(alpha / (sides * m), df)) * 1.1 + 0.1
-    return float(optimize.brentq(excess, low, high, xtol=1e-7))
+    return float(find_root(excess, low, high, xtol=1e-7))
 
 
 def dunnett(

@@ -19,11 +19,10 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from scipy import optimize
-
 from reporter.errors import FitError, PlanError
 from reporter.fitting.distributions import f_isf
 from reporter.fitting.effectsizes import noncentral_f_sf
+from reporter.fitting.roots import find_root
 
 __all__ = [
     "CellSizePlan",
@@ -148,7 +147,7 @@ def _solve_increasing_from_zero(func, start: float) -> float:
     lo, hi = 0.0, max(start, 1.0)
     for _ in range(_MAX_DOUBLINGS):
         if func(hi) >= 0:
-            return float(optimize.brentq(func, lo, hi, xtol=1e-12, rtol=1e-12))
+            return float(find_root(func, lo, hi, xtol=1e-12, rtol=1e-12))
         lo, hi = hi, hi * 2.0
     raise FitError(f"the power equation could not be bracketed (searched up to {hi:.3g}).")
 
