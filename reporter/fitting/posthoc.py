@@ -219,6 +219,33 @@ def _pair_se(v: np.ndarray, mse: float, i: int, j: int) -> float:
 # Tukey-Kramer
 
 
+def pairwise_comparison(i: int, j: int, diff: float, se: float, df: float, p: float, crit: float) -> Comparison:
+    """One pair i < j: statistic diff/se, p clipped to [0, 1], interval diff -/+ crit * se."""
+    return Comparison(
+        first=i,
+        second=j,
+        difference=diff,
+        se=se,
+        statistic=diff / se,
+        df=float(df),
+        p_adjusted=min(max(p, 0.0), 1.0),
+        critical_value=crit,
+        ci_low=diff - crit * se,
+        ci_high=diff + crit * se,
+    )
+
+
+def two_sided_family(method: str, alpha: float, comparisons, n_groups: int) -> ComparisonFamily:
+    """A family of two-sided pairwise comparisons."""
+    return ComparisonFamily(
+        method=method,
+        alpha=alpha,
+        alternative="two-sided",
+        comparisons=tuple(comparisons),
+        n_groups=n_groups,
+    )
+
+
 def tukey_kramer(
     estimates,
     n,
@@ -256,27 +283,8 @@ def tukey_kramer(
             diff = float(est[i] - est[j])
             t = diff / se
             p = float(studentized_range.sf(abs(t) * np.sqrt(2.0), g, df_error))
-            out.append(
-                Comparison(
-                    first=i,
-                    second=j,
-                    difference=diff,
-                    se=se,
-                    statistic=t,
-                    df=df_error,
-                    p_adjusted=min(max(p, 0.0), 1.0),
-                    critical_value=crit,
-                    ci_low=diff - crit * se,
-                    ci_high=diff + crit * se,
-                )
-            )
-    return ComparisonFamily(
-        method="Tukey-Kramer",
-        alpha=alpha,
-        alternative="two-sided",
-        comparisons=tuple(out),
-        n_groups=g,
-    )
+            out.append(pairwise_comparison(i, j, diff, se, df_error, p, crit))
+    return two_sided_family("Tukey-Kramer", alpha, out, g)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -500,28 +508,9 @@ def scheffe_pairs(
         for j in range(i + 1, g):
             se = _pair_se(v, mse, i, j)
             diff = float(est[i] - est[j])
-            t = diff / se
-            out.append(
-                Comparison(
-                    first=i,
-                    second=j,
-                    difference=diff,
-                    se=se,
-                    statistic=t,
-                    df=df_error,
-                    p_adjusted=_scheffe_p(t, family_df, df_error),
-                    critical_value=crit,
-                    ci_low=diff - crit * se,
-                    ci_high=diff + crit * se,
-                )
-            )
-    return ComparisonFamily(
-        method="Scheffe",
-        alpha=alpha,
-        alternative="two-sided",
-        comparisons=tuple(out),
-        n_groups=g,
-    )
+            p = _scheffe_p(diff / se, family_df, df_error)
+            out.append(pairwise_comparison(i, j, diff, se, df_error, p, crit))
+    return two_sided_family("Scheffe", alpha, out, g)
 
 
 def scheffe_contrast(

@@ -19,7 +19,7 @@ import numpy as np
 
 from reporter.errors import FitError
 from reporter.fitting.distributions import chi2_sf, f_sf, t_cdf, t_isf, t_sf
-from reporter.fitting.posthoc import Comparison, ComparisonFamily, _check_alpha
+from reporter.fitting.posthoc import ComparisonFamily, _check_alpha, pairwise_comparison, two_sided_family
 
 __all__ = [
     "KruskalWallisResult",
@@ -385,27 +385,8 @@ def games_howell(n, mean, ss, *, alpha: float = 0.05) -> ComparisonFamily:
             t = diff / se
             crit = float(studentized_range.ppf(1.0 - alpha, g, df)) / np.sqrt(2.0)
             p = float(studentized_range.sf(abs(t) * np.sqrt(2.0), g, df))
-            out.append(
-                Comparison(
-                    first=i,
-                    second=j,
-                    difference=diff,
-                    se=se,
-                    statistic=t,
-                    df=float(df),
-                    p_adjusted=min(max(p, 0.0), 1.0),
-                    critical_value=crit,
-                    ci_low=diff - crit * se,
-                    ci_high=diff + crit * se,
-                )
-            )
-    return ComparisonFamily(
-        method="Games-Howell",
-        alpha=alpha,
-        alternative="two-sided",
-        comparisons=tuple(out),
-        n_groups=g,
-    )
+            out.append(pairwise_comparison(i, j, diff, se, df, p, crit))
+    return two_sided_family("Games-Howell", alpha, out, g)
 
 
 # ---------------------------------------------------------------------------------------------
