@@ -197,18 +197,7 @@ def _draw_means(ax, data: dict) -> None:
     points = _groups_of_numbers(data, "points", k)
     ci_label = str(data.get("ci_label") or "CI")
 
-    rng = _rng()
-    empty = []
-    for i, values in enumerate(points):
-        offsets = rng.uniform(-_JITTER_HALF_WIDTH, _JITTER_HALF_WIDTH, len(values))
-        if values:
-            ax.plot(
-                i + offsets, values, linestyle="none", marker="o", markersize=3.6,
-                markeredgewidth=0, color=PALETTE[i % len(PALETTE)],
-                alpha=_alpha(len(values), 0.5), gid=f"points-{i}", zorder=2,
-            )
-        if means[i] is None and not values:
-            empty.append(i)
+    empty = [i for i in _jittered_points(ax, points, 0.5) if means[i] is None]
     for i in range(k):
         if means[i] is None:
             continue
@@ -319,19 +308,7 @@ def _draw_residuals(ax, data: dict) -> None:
     k = len(groups)
     residuals = _groups_of_numbers(data, "residuals", k)
     ax.axhline(0, color=MUTED, linewidth=1, zorder=1, gid="zero")
-    rng = _rng()
-    empty = []
-    for i, values in enumerate(residuals):
-        offsets = rng.uniform(-_JITTER_HALF_WIDTH, _JITTER_HALF_WIDTH, len(values))
-        if values:
-            ax.plot(
-                i + offsets, values, linestyle="none", marker="o", markersize=3.6,
-                markeredgewidth=0, color=PALETTE[i % len(PALETTE)],
-                alpha=_alpha(len(values), 0.6), gid=f"points-{i}", zorder=2,
-            )
-        else:
-            empty.append(i)
-    _no_data_labels(ax, empty)
+    _no_data_labels(ax, _jittered_points(ax, residuals, 0.6))
     _category_axis(ax, groups, data.get("x_label"))
     ax.set_ylabel(_y_label(data, "y_label", "Residual"))
     _ensure_ylim(ax, symmetric=True)
@@ -346,6 +323,24 @@ _DRAWERS = {
 
 
 # ---------------------------------------------------------------- look
+
+
+def _jittered_points(ax, groups, base_alpha: float) -> list[int]:
+    """Draw each group's values as jittered dots at x = group index (seeded jitter, so a group's
+    dots sit at the same offsets in every figure); return the indices of empty groups."""
+    rng = _rng()
+    empty = []
+    for i, values in enumerate(groups):
+        offsets = rng.uniform(-_JITTER_HALF_WIDTH, _JITTER_HALF_WIDTH, len(values))
+        if values:
+            ax.plot(
+                i + offsets, values, linestyle="none", marker="o", markersize=3.6,
+                markeredgewidth=0, color=PALETTE[i % len(PALETTE)],
+                alpha=_alpha(len(values), base_alpha), gid=f"points-{i}", zorder=2,
+            )
+        else:
+            empty.append(i)
+    return empty
 
 
 def _style_axes(ax) -> None:
