@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import difflib
 import hashlib
+import itertools
 import math
 import re
 import tomllib
@@ -458,6 +459,17 @@ def _read_analysis(doc, ck: _Checker, factors) -> AnalysisSpec:
         if not isinstance(control, (str, int, float)) or isinstance(control, bool):
             raise ck.fail("analysis.control", f"must be a level name (got {_show(control)}).", key="control", **loc)
         control = level_text(control)
+    if control is not None and factors:
+        if on == "cells":
+            groups = ["/".join(combo) for combo in itertools.product(*(f.levels for f in factors))]
+        else:
+            groups = list(next(f for f in factors if f.name == on).levels)
+        if _level_key(control) not in {_level_key(g) for g in groups}:
+            hint = difflib.get_close_matches(control, groups, n=1, cutoff=0.5)
+            fix = f" Did you mean \"{hint[0]}\"?" if hint else ""
+            shown = ", ".join(f'"{g}"' for g in groups[:12])
+            raise ck.fail("analysis.control", f"must be one of the compared groups ({shown}) (got \"{control}\").{fix}",
+                          key="control", **loc)
     if "versus-control" in posthoc and control is None:
         raise ck.fail("analysis.control", 'is required by posthoc "versus-control": name the control level, e.g. control = "placebo".', key="posthoc", **loc)
     uv = ck.choice(t, "unequal_variances", "analysis.unequal_variances", D.UNEQUAL_VARIANCES, a["unequal_variances"], **loc)

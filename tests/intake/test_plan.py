@@ -55,9 +55,12 @@ def test_numeric_levels_become_text(project):
         (("[[hypotheses]]", "[analysis]\nss_type = \"IV\"\n[[hypotheses]]"), "'analysis.ss_type' must be one of"),
         (("[[hypotheses]]", "[analysis]\nposthoc = [\"all-pairs\", \"versus-control\"]\n[[hypotheses]]"),
          "'analysis.control' is required by posthoc \"versus-control\""),
+        (("[[hypotheses]]", "[analysis]\nposthoc = [\"versus-control\"]\ncontrol = \"pete\"\n[[hypotheses]]"),
+         "'analysis.control' must be one of the compared groups"),
     ],
     ids=["unknown-data-key", "unknown-top-key", "bad-role", "wrong-type", "means-and-effect", "duplicate-level",
-         "duplicate-numeric-level", "missing-outcome", "bad-suffix", "alpha-range", "ss-type", "control-missing"],
+         "duplicate-numeric-level", "missing-outcome", "bad-suffix", "alpha-range", "ss-type", "control-missing",
+         "control-unknown"],
 )
 def test_bad_plans_name_the_key(project, change, expected):
     """Each broken rule is reported with its key path and the rule it broke."""
