@@ -93,14 +93,18 @@ def _check_out_dir(out: Path, plan, data_path: Path) -> None:
 
 
 def write_outputs(prep, out: Path, formats) -> list[Path]:
-    """Fit, render every format in memory, then write the files atomically."""
-    _check_out_dir(out, prep.plan, prep.plan.data.path)
-    return write_files(prep, analyse(prep), out, formats)
+    """Check the output folder, fit, render every format in memory, then write the files atomically."""
+    _check_out_dir(out, prep.plan, prep.plan.data.path)  # before fitting: fail fast
+    return _write(prep, analyse(prep), out, formats)
 
 
 def write_files(prep, analysis: Analysis, out: Path, formats) -> list[Path]:
     """Render every format of a fitted analysis in memory, then write the files atomically."""
     _check_out_dir(out, prep.plan, prep.plan.data.path)
+    return _write(prep, analysis, out, formats)
+
+
+def _write(prep, analysis: Analysis, out: Path, formats) -> list[Path]:
     blobs = render_outputs(prep, analysis, formats)
     try:
         out.mkdir(parents=True, exist_ok=True)

@@ -155,7 +155,7 @@ def fit_analysis(
         inf = describe_inference(design, y, cell, cells, fit, table, contrasts, tests, alpha=alpha,
                                  policy=unequal_variances, posthoc=posthoc, posthoc_on=posthoc_on,
                                  control=control, permutations=permutations, seed=seed)
-    confirm_p = [t.p if inf is None else e.confirmatory_p for t, e in zip(tests, inf.hypotheses if inf else tests)]
+    confirm_p = [t.p for t in tests] if inf is None else [e.confirmatory_p for e in inf.hypotheses]
     adjusted: dict[int, float | None] = {}
     for family in ("planned", "exploratory"):
         idx = [i for i, c in enumerate(contrasts) if c.role == family]

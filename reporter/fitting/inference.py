@@ -17,7 +17,7 @@ effect, and an HC3 Wald F otherwise.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -103,7 +103,6 @@ class Inference:
     games_howell: P.ComparisonFamily | None
     outlier_sensitivity: OutlierSensitivity | None
     policy: str
-    notes: tuple[str, ...]
 
 
 def _observed(cells: CellStats):
@@ -129,7 +128,10 @@ def check_assumptions(y, cell, cells: CellStats, alpha: float) -> AssumptionChec
         notes.append(f"Variance checks not possible: {exc}")
     sw = A.shapiro_wilk(y, codes, k)
     qq = A.qq_points(y, codes, k)
-    out = A.find_outliers(y, codes, k)
+    scan = A.find_outliers(y, codes, k)
+    # The scan numbers cells among the observed ones; give each outlier its design cell index.
+    observed = np.flatnonzero(o)
+    out = replace(scan, outliers=tuple(replace(x, cell=int(observed[x.cell])) for x in scan.outliers))
     resid = y - cells.offset_mean[cell]
     by_cell = tuple(tuple(float(v) for v in resid[cell == c]) for c in range(cells.k))
     hetero = bool(bf is not None and bf.p is not None and bf.p < alpha)
@@ -153,20 +155,10 @@ def _robust_for(contrast, cells: CellStats, one_way_effect: bool, alpha: float) 
         return RobustTest("not available", contrast.test, float("nan"), (), float("nan"), note=str(exc))
 
 
-def _clean_ci(ci):
-    if ci is None:
-        return None
-    lo, hi = ci
-    lo = None if lo is None or not np.isfinite(lo) else float(lo)
-    hi = None if hi is None or not np.isfinite(hi) else float(hi)
-    return (lo, hi)
-
-
 def describe_inference(design, y, cell, cells: CellStats, fit: ModelFit, table, contrasts, tests, *, alpha: float,
                        policy: str = "classical", posthoc=(), posthoc_on="cells", control=None,
                        permutations: int = 10_000, seed: int = 0) -> Inference:
     """Collect effect sizes, checks, robust tests, post-hoc families and power for one fit."""
-    notes = []
     checks = check_assumptions(y, cell, cells, alpha)
     o, n_obs, mean_obs, ss_obs = _observed(cells)
     codes = _compact_codes(cell, o)
@@ -231,7 +223,7 @@ def describe_inference(design, y, cell, cells: CellStats, fit: ModelFit, table, 
         gh = R.games_howell(cells.n, cells.mean, cells.ss, alpha=alpha)
 
     sens = _outlier_sensitivity(design, y, cell, cells, checks, contrasts, alpha)
-    return Inference(tuple(rows), tuple(extras), checks, kw, welch, tuple(families), gh, sens, policy, tuple(notes))
+    return Inference(tuple(rows), tuple(extras), checks, kw, welch, tuple(families), gh, sens, policy)
 
 
 def _posthoc_family(fam, design, cells, fit, alpha, on, control, seed):

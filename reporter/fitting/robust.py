@@ -13,13 +13,12 @@ Inputs follow the fitting layer's conventions: per-cell sufficient statistics ``
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Literal
 
 import numpy as np
 
 from reporter.errors import FitError
 from reporter.fitting.distributions import chi2_sf, f_sf, t_cdf, t_isf, t_sf
-from reporter.fitting.posthoc import ComparisonFamily, _check_alpha, pairwise_comparison, two_sided_family
+from reporter.fitting.posthoc import Alternative, ComparisonFamily, _check_alpha, pairwise_comparison, two_sided_family
 
 __all__ = [
     "KruskalWallisResult",
@@ -32,9 +31,6 @@ __all__ = [
     "welch_anova",
     "welch_contrast",
 ]
-
-Alternative = Literal["two-sided", "greater", "less"]
-
 
 @dataclass(frozen=True)
 class WelchAnovaResult:

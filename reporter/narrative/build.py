@@ -757,7 +757,7 @@ class _Builder:
         outl = a.outliers.outliers
         rows_file = self.prep.data.rows
         if outl:
-            listed = "; ".join(f"row {int(rows_file[o.row])} ({self.design.cells[self._cell(o.cell)].short}, "
+            listed = "; ".join(f"row {int(rows_file[o.row])} ({self.design.cells[o.cell].short}, "
                                f"studentized residual {_num(o.external)})" for o in outl)
             items.append((runs_of("Outliers (|studentized residual| > 3)"), runs_of(listed)))
         else:
@@ -781,10 +781,6 @@ class _Builder:
         for fam in self.posthoc_tables():
             blocks.append(fam)
         return Section("assumptions", "Checking the assumptions", tuple(blocks))
-
-    def _cell(self, compact: int) -> int:
-        observed = [i for i, n in enumerate(self.prep.counts) if n > 0]
-        return observed[compact]
 
     def qq_figure(self) -> Figure:
         qq = self.inf.assumptions.qq

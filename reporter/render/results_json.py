@@ -102,7 +102,7 @@ def _inference_dict(prep, analysis) -> dict[str, Any]:
             "outliers": {
                 "threshold": a.outliers.threshold,
                 "rule": "externally studentized residual beyond ±threshold",
-                "rows": [{"row": int(rows[o.row]), "cell": analysis.design.cells[_cell_of(analysis, o.cell)].as_dict(),
+                "rows": [{"row": int(rows[o.row]), "cell": analysis.design.cells[o.cell].as_dict(),
                           "residual": _num(o.residual), "studentized": _num(o.external)} for o in a.outliers.outliers],
             },
             "notes": list(a.notes),
@@ -129,11 +129,6 @@ def _inference_dict(prep, analysis) -> dict[str, Any]:
                       for name, t, note in s.tests],
         }
     return out
-
-
-def _cell_of(analysis, compact_index: int) -> int:
-    observed = [i for i, n in enumerate(analysis.cells.n) if n > 0]
-    return observed[compact_index]
 
 
 def results_dict(prep, analysis, provenance) -> dict[str, Any]:
