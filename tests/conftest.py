@@ -10,6 +10,15 @@ import pytest
 DATA_DIR = Path(__file__).parent / "data"
 
 
+def plant_growth_codes():
+    """PlantGrowth (Dobson 1983) as (weights, group codes ctrl=0 trt1=1 trt2=2, number of groups)."""
+    import numpy as np
+
+    rows = [line.split(",") for line in (DATA_DIR / "PlantGrowth.csv").read_text().splitlines()[1:] if line]
+    levels = ["ctrl", "trt1", "trt2"]
+    return np.array([float(w) for w, _ in rows]), np.array([levels.index(g) for _, g in rows]), 3
+
+
 @pytest.fixture
 def data_dir() -> Path:
     return DATA_DIR

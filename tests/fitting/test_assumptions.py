@@ -21,17 +21,12 @@ from reporter.fitting.assumptions import (
     studentized_residuals,
 )
 
+from conftest import plant_growth_codes
+
 pd = pytest.importorskip("pandas")
 sm = pytest.importorskip("statsmodels.api")
 
 DATA = Path(__file__).parents[1] / "data"
-
-
-def _plant_growth():
-    frame = pd.read_csv(DATA / "PlantGrowth.csv")
-    levels = ["ctrl", "trt1", "trt2"]
-    codes = frame["group"].map({lv: i for i, lv in enumerate(levels)}).to_numpy()
-    return frame["weight"].to_numpy(float), codes, 3
 
 
 def _tooth_growth():
@@ -52,7 +47,7 @@ def _random_unbalanced():
     return y[perm], codes[perm], 4
 
 
-DATASETS = {"PlantGrowth": _plant_growth, "ToothGrowth": _tooth_growth, "random-unbalanced": _random_unbalanced}
+DATASETS = {"PlantGrowth": plant_growth_codes, "ToothGrowth": _tooth_growth, "random-unbalanced": _random_unbalanced}
 
 
 @pytest.mark.parametrize("name", list(DATASETS), ids=list(DATASETS))
@@ -186,7 +181,7 @@ def test_shapiro_skipped_outside_its_range(size, reason):
 
 def test_shapiro_skips_leverage_one_rows():
     """Rows alone in their cell are left out of the residuals tested."""
-    y, codes, k = _plant_growth()
+    y, codes, k = plant_growth_codes()
     y2 = np.append(y, 100.0)
     codes2 = np.append(codes, 3)
     assert shapiro_wilk(y2, codes2) == shapiro_wilk(y, codes)
@@ -226,7 +221,7 @@ def test_outlier_found_at_its_row():
 
 def test_outlier_scan_skips_leverage_one_rows():
     """Rows alone in their cell are skipped with a note, not flagged (leverage 1)."""
-    y, codes, k = _plant_growth()
+    y, codes, k = plant_growth_codes()
     y2 = np.append(y, 100.0)
     codes2 = np.append(codes, 3)
     scan = find_outliers(y2, codes2)

@@ -12,6 +12,8 @@ from scipy import stats
 from reporter.errors import FitError
 from reporter.fitting.posthoc import dunnett, scheffe_contrast, scheffe_pairs, tukey_kramer
 
+from conftest import plant_growth_codes
+
 pd = pytest.importorskip("pandas")
 sm = pytest.importorskip("statsmodels.api")
 
@@ -28,13 +30,6 @@ def _groups(y, codes, k):
     return samples, n, means, sse / df, df
 
 
-def _plant_growth():
-    frame = pd.read_csv(DATA / "PlantGrowth.csv")
-    levels = ["ctrl", "trt1", "trt2"]
-    codes = frame["group"].map({lv: i for i, lv in enumerate(levels)}).to_numpy()
-    return frame["weight"].to_numpy(float), codes, 3
-
-
 def _random_unbalanced():
     rng = np.random.default_rng(20240611)
     sizes = [7, 12, 5, 9, 15]
@@ -43,7 +38,7 @@ def _random_unbalanced():
     return y, codes, 5
 
 
-DATASETS = {"PlantGrowth": _plant_growth, "random-unbalanced": _random_unbalanced}
+DATASETS = {"PlantGrowth": plant_growth_codes, "random-unbalanced": _random_unbalanced}
 
 
 @pytest.mark.parametrize("name", list(DATASETS), ids=list(DATASETS))
@@ -66,7 +61,7 @@ def test_tukey_kramer_matches_scipy_tukey_hsd(name):
 def test_tukey_kramer_plant_growth_published_values():
     """trt2 - trt1: difference 0.865, 95% CI [0.174, 1.556], p = .012 (published PlantGrowth
     Tukey HSD values as given in the project brief; the usual R TukeyHSD output, from memory)."""
-    y, codes, k = _plant_growth()
+    y, codes, k = plant_growth_codes()
     _, n, means, mse, df = _groups(y, codes, k)
     comp = tukey_kramer(means, n, mse, df).comparison(1, 2)  # trt1 - trt2
     assert -comp.difference == pytest.approx(0.865, abs=5e-4)
@@ -161,7 +156,7 @@ def test_dunnett_critical_value_consistent_with_p():
 
 def test_dunnett_two_groups_is_the_t_test():
     """With one comparison Dunnett's test is the two-sided pooled t test (scipy.stats.t)."""
-    y, codes, k = _plant_growth()
+    y, codes, k = plant_growth_codes()
     _, n, means, mse, df = _groups(y, codes, k)
     w = np.array([[1.0, 0, 0], [0, 0.5, 0.5]])
     comp = dunnett(w @ means, n, mse, df, weights=w, seed=1).comparisons[0]

@@ -19,6 +19,8 @@ from reporter.fitting.robust import (
     welch_contrast,
 )
 
+from conftest import plant_growth_codes
+
 pd = pytest.importorskip("pandas")
 sm = pytest.importorskip("statsmodels.api")
 oneway = pytest.importorskip("statsmodels.stats.oneway")
@@ -32,13 +34,6 @@ def _stats(y, codes, k):
     mean = np.array([y[codes == c].mean() if n[c] else 0.0 for c in range(k)])
     ss = np.array([((y[codes == c] - mean[c]) ** 2).sum() for c in range(k)])
     return n, mean, ss
-
-
-def _plant_growth():
-    frame = pd.read_csv(DATA / "PlantGrowth.csv")
-    levels = ["ctrl", "trt1", "trt2"]
-    codes = frame["group"].map({lv: i for i, lv in enumerate(levels)}).to_numpy()
-    return frame["weight"].to_numpy(float), codes, 3
 
 
 def _random_unbalanced():
@@ -60,7 +55,7 @@ def _random_2x3():
     return rng.normal(mu, sd), codes, 6
 
 
-DATASETS = {"PlantGrowth": _plant_growth, "random-unbalanced": _random_unbalanced}
+DATASETS = {"PlantGrowth": plant_growth_codes, "random-unbalanced": _random_unbalanced}
 
 
 @pytest.mark.parametrize("name", list(DATASETS), ids=list(DATASETS))
@@ -78,7 +73,7 @@ def test_welch_anova_matches_statsmodels(name):
 def test_welch_anova_plant_growth_published():
     """PlantGrowth: Welch F(2, 17.13) = 5.18, p = .017 (published value as given in the project
     brief; R oneway.test output, from memory)."""
-    res = welch_anova(*_stats(*_plant_growth()))
+    res = welch_anova(*_stats(*plant_growth_codes()))
     assert res.statistic == pytest.approx(5.18, abs=5e-3)
     assert res.df2 == pytest.approx(17.13, abs=5e-3)
     assert res.p == pytest.approx(0.017, abs=5e-4)
@@ -163,7 +158,7 @@ def _tied_data():
     return y, codes, 4
 
 
-KW_CASES = {"PlantGrowth": _plant_growth, "random-unbalanced": _random_unbalanced, "ties": _tied_data}
+KW_CASES = {"PlantGrowth": plant_growth_codes, "random-unbalanced": _random_unbalanced, "ties": _tied_data}
 
 
 @pytest.mark.parametrize("name", list(KW_CASES), ids=list(KW_CASES))
