@@ -10,7 +10,7 @@ from typing import Sequence
 import numpy as np
 
 from reporter.fitting.anova import AnovaTable, fit_anova
-from reporter.fitting.cellstats import CellStats, describe_cells
+from reporter.intake.cells import CellStats, describe_cells
 from reporter.fitting.distributions import t_ppf
 from reporter.fitting.inference import HypothesisExtras, Inference, describe_inference
 from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model

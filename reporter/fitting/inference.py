@@ -25,7 +25,7 @@ from reporter.errors import FitError
 from reporter.fitting import assumptions as A
 from reporter.fitting import posthoc as P
 from reporter.fitting import robust as R
-from reporter.fitting.cellstats import CellStats, describe_cells
+from reporter.intake.cells import CellStats, describe_cells
 from reporter.fitting.effectsizes import AnovaEffectSizes, EffectSize, describe_anova_effect_sizes, standardized_contrast
 from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model
 from reporter.fitting.permutation import PermutationResult, permutation_f_test

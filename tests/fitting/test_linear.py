@@ -12,7 +12,7 @@ from scipy import stats
 
 from reporter.errors import FitError
 from reporter.fitting.analysis import fit_analysis
-from reporter.fitting.cellstats import describe_cells
+from reporter.intake.cells import describe_cells
 from reporter.fitting.linear import fit_contrast, fit_model
 from reporter.model.design import Factor, build_design
 from reporter.model.hypotheses import compile_effect, compile_statement
