@@ -1,0 +1,142 @@
+"""How the whole run scales with the number of rows, against bare pipelines on the same files.
+
+One table, measured in one run. Every figure comes from its own child process, started as a user
+starts it (imports included) and measured from outside: wall time around the process, peak
+resident memory from ``os.wait4`` (the child's own ``ru_maxrss``), and the sizes of the files it
+wrote.
+
+Rows of the table:
+
+* the default plan (one directional and one omnibus hypothesis over 4 groups, default
+  ``[analysis]``), ``--format html,json``, on Parquet files of 10^3 … 10^7 rows;
+* at 10^7 rows, ``--format json``, beside a bare DuckDB GROUP BY script (count, avg, var_samp)
+  and pandas + statsmodels (ols + anova_lm) on the same Parquet and CSV files;
+* 10^8 rows of Parquet (``--huge``; written by the script, never committed): peak memory.
+
+Targets (read the ratios, not the seconds: these machines are noisy):
+
+* 10^7 rows, Parquet and CSV, ``--format json``: ≤ 4× the bare DuckDB script, RSS ≤ 400 MB;
+* 10^6 rows ``--format html,json``: ≤ 2× the same plan at 10^3 rows;
+* 10^8 rows Parquet: RSS ≤ 1 GB;
+* report.html ≤ 1.5 MB, results.json ≤ 1 MB, report.pdf ≤ 3 MB at every size.
+
+The data are simulated (seeded) by ``make_scale_data.py`` beside this script.
+
+    python benchmarks/bench_scale.py [--folder DIR] [--max-rows 10000000] [--huge] [--repeat 1]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE))
+
+from make_scale_data import write_plan, write_rows  # noqa: E402
+
+BARE_DUCKDB = """
+import sys, duckdb
+path = sys.argv[1]
+src = f"read_parquet('{path}')" if path.endswith('.parquet') else f"read_csv('{path}')"
+rows = duckdb.sql(f"SELECT g, count(*), avg(y), var_samp(y) FROM {src} GROUP BY g ORDER BY g").fetchall()
+assert len(rows) == 4
+"""
+
+PANDAS_STATSMODELS = """
+import sys
+import pandas as pd
+import statsmodels.formula.api as smf
+from statsmodels.stats.anova import anova_lm
+path = sys.argv[1]
+df = pd.read_parquet(path) if path.endswith('.parquet') else pd.read_csv(path)
+table = anova_lm(smf.ols("y ~ C(g)", df).fit(), typ=2)
+assert table.shape[0] == 2
+"""
+
+
+def measure(cmd: list[str]) -> tuple[float, float]:
+    """Wall seconds and peak RSS (MB) of one child process."""
+    t0 = time.perf_counter()
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(proc.pid, 0)
+    elapsed = time.perf_counter() - t0
+    err = proc.stderr.read().decode(errors="replace") if proc.stderr else ""
+    if status != 0:
+        raise SystemExit(f"failed ({status}): {' '.join(cmd)}\n{err}")
+    return elapsed, usage.ru_maxrss / 1024
+
+
+def ours(plan: Path, out: Path, formats: str) -> list[str]:
+    return [sys.executable, "-m", "reporter", "run", str(plan), "--out", str(out), "--format", formats, "--quiet"]
+
+
+def size_mb(path: Path) -> str:
+    return f"{path.stat().st_size / 1e6:.2f}" if path.exists() else "-"
+
+
+def row(label: str, n: int, t: float, rss: float, out: Path | None = None, ref: float | None = None) -> None:
+    sizes = ["-", "-", "-"]
+    if out is not None:
+        sizes = [size_mb(out / name) for name in ("report.html", "results.json", "report.pdf")]
+    ratio = f"{t / ref:6.2f}" if ref else "     -"
+    print(f"| {label:<42} | {n:>11,} | {t:8.2f} | {ratio} | {rss:8.0f} | {sizes[0]:>7} | {sizes[1]:>7} |", flush=True)
+
+
+def median_measure(cmd: list[str], repeat: int) -> tuple[float, float]:
+    runs = [measure(cmd) for _ in range(repeat)]
+    return statistics.median(t for t, _ in runs), max(m for _, m in runs)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--folder", type=Path, default=None, help="where to write the data (default: a temporary folder)")
+    ap.add_argument("--max-rows", type=int, default=10**7)
+    ap.add_argument("--huge", action="store_true", help="also 10^8 rows of Parquet (about 1 GB of disk)")
+    ap.add_argument("--repeat", type=int, default=1, help="runs per figure (median time, max memory)")
+    args = ap.parse_args()
+    folder = args.folder or Path(tempfile.mkdtemp(prefix="anova-report-bench-"))
+    folder.mkdir(parents=True, exist_ok=True)
+    print(f"data in {folder}; python {sys.version.split()[0]}; {os.cpu_count()} cores")
+    print("| what | rows | wall s | ratio | peak MB | html MB | json MB |")
+    print("|---|---|---|---|---|---|---|")
+    sizes = [n for n in (10**3, 10**4, 10**5, 10**6, 10**7) if n <= args.max_rows]
+    base = None
+    for n in sizes:
+        data = write_rows(folder, n, "parquet")
+        plan = write_plan(folder, data)
+        out = folder / f"out-{n}"
+        t, m = median_measure(ours(plan, out, "html,json"), args.repeat)
+        base = base or t
+        row("default plan, Parquet, html,json (÷ 10^3 run)", n, t, m, out, base)
+    big = sizes[-1]
+    for fmt in ("parquet", "csv"):
+        data = write_rows(folder, big, fmt)
+        plan = write_plan(folder, data)
+        out = folder / f"out-json-{fmt}"
+        t_bare, m_bare = median_measure([sys.executable, "-c", BARE_DUCKDB, str(data)], args.repeat)
+        t_ours, m_ours = median_measure(ours(plan, out, "json"), args.repeat)
+        t_sm, m_sm = median_measure([sys.executable, "-c", PANDAS_STATSMODELS, str(data)], args.repeat)
+        row(f"bare DuckDB GROUP BY, {fmt}", big, t_bare, m_bare, None, t_bare)
+        row(f"default plan, {fmt}, json (÷ DuckDB)", big, t_ours, m_ours, out, t_bare)
+        row(f"pandas + statsmodels, {fmt} (÷ DuckDB)", big, t_sm, m_sm, None, t_bare)
+    if args.huge:
+        n = 10**8
+        data = write_rows(folder, n, "parquet")
+        plan = write_plan(folder, data)
+        out = folder / "out-huge"
+        t, m = measure(ours(plan, out, "json"))
+        row("default plan, Parquet, json (10^8)", n, t, m, out)
+    if args.folder is None:
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    main()
