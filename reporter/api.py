@@ -77,7 +77,7 @@ class Report:
         """Write the report files, as ``anova-report run`` does."""
         from reporter.run import write_files
 
-        return write_files(self.prepared, self.analysis, Path(out), tuple(formats))
+        return write_files(self.prepared, self.analysis, out, tuple(formats))
 
     def _repr_html_(self) -> str:
         return self.render("html").decode("utf-8")

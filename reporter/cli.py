@@ -1,22 +1,55 @@
-"""The ``anova-report`` command.
+"""The ``anova-report`` command: ``check`` and ``run``.
 
-Exit codes: 0 ok; 1 a check failed (``verify`` found a difference); 2 bad input (plan, data or
-options), with one clear line and no traceback unless ``--debug``; 3 an internal error (a short
-message; the traceback is saved to a file whose path is printed).
+Exit codes (:data:`EXIT_CODES`; the same list is in ``--help``, README.md and DEVELOPERS.md):
+
+* 0: done.
+* 1: reserved for a check that finds a difference (a planned ``verify`` command, not yet
+  available); no command returns it yet.
+* 2: bad input (plan, data, options or output folder), with one clear message and no
+  traceback unless ``--debug``.
+* 3: internal error: a one-line message naming the file that holds the traceback (a new file
+  made by :func:`tempfile.mkstemp` in the temporary folder, readable only by the user).
+* 130 and 143: stopped by SIGINT (Ctrl-C) or SIGTERM (128 plus the signal number, as shells
+  report a process killed by a signal). Files in ``--out`` are left as they were before the run.
+* 141: standard output was closed before everything was printed (a broken pipe, as in
+  ``anova-report check PLAN | head -1``); the command stops quietly, as a program killed by
+  SIGPIPE would (128 + 13). Files already written by ``run`` stay written.
+
+Everything the command prints passes through :func:`reporter.render.visible.show_controls`,
+so control and bidirectional characters from a plan or a path are shown, never obeyed.
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
+import os
+import signal
 import sys
 import tempfile
-import time
+import threading
 import traceback
-from pathlib import Path
 
 from reporter.errors import OptionError, ReporterError
+from reporter.render.visible import show_controls
 
 FORMATS = ("json", "html", "pdf", "md")
+
+EXIT_OK, EXIT_CHECK_FAILED, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
+EXIT_BROKEN_PIPE = 128 + 13
+
+#: Every exit code with its meaning, as --help prints it.
+EXIT_CODES = (
+    (0, "done"),
+    (1, "reserved for a check that finds a difference (a 'verify' command, not yet available)"),
+    (2, "bad input: plan, data, options or output folder"),
+    (3, "internal error (the message names the file holding the traceback)"),
+    (130, "stopped by SIGINT (Ctrl-C)"),
+    (143, "stopped by SIGTERM"),
+    (141, "output closed early (a broken pipe, as in 'check PLAN | head -1')"),
+)
+
+_STOP_SIGNALS = (signal.SIGINT, signal.SIGTERM)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -31,7 +64,8 @@ def _parser() -> argparse.ArgumentParser:
             "Turn a plan file (TOML) and a data file into a checkable ANOVA report: design matrix, "
             "contrasts, tests, effect sizes, prose and provenance."
         ),
-        epilog="Exit codes: 0 ok, 1 a check failed, 2 bad input, 3 internal error.",
+        epilog="Exit codes: " + "; ".join(f"{code} {what}" for code, what in EXIT_CODES)
+        + ". A run that is stopped leaves the files in --out as they were.",
     )
     p.add_argument("--debug", action="store_true", help="show the full traceback of any error")
     p.add_argument("--version", action="version", version=f"anova-report {_version()}")
@@ -52,7 +86,9 @@ def _parser() -> argparse.ArgumentParser:
         "run",
         help="fit the plan's model and write the report",
         description="Fit PLAN to its data and write the requested report files into --out: "
-        "report.html, report.pdf (PDF/A-3b with the plan and results attached), report.md, results.json.",
+        "report.html, report.pdf (PDF/A-3b with the plan and results attached), report.md, results.json. "
+        "The folder is checked before the fit; the files are replaced all together or not at all, "
+        "also when the run is stopped by Ctrl-C (exit 130) or SIGTERM (exit 143).",
         epilog="Example: anova-report run demo_project/oneway.toml --out report --format html,pdf. "
         "Set SOURCE_DATE_EPOCH for byte-identical reruns.",
     )
@@ -88,6 +124,73 @@ def _formats(text: str) -> tuple[str, ...]:
     return tuple(dict.fromkeys(items))
 
 
+class Stopped(KeyboardInterrupt):
+    """Raised in the main thread by SIGINT or SIGTERM while the command runs."""
+
+    def __init__(self, signum: int):
+        super().__init__(signal.Signals(signum).name)
+        self.signum = signum
+
+
+@contextlib.contextmanager
+def _stop_on_signals():
+    """Turn SIGINT and SIGTERM into :class:`Stopped` (once: a second signal while the first is
+    being handled is ignored, so the clean-up it triggers runs to the end)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    fired: list[int] = []
+
+    def stop(signum, frame):
+        if fired:
+            return
+        fired.append(signum)
+        raise Stopped(signum)
+
+    previous = {s: signal.getsignal(s) for s in _STOP_SIGNALS}
+    for s in _STOP_SIGNALS:
+        signal.signal(s, stop)
+    try:
+        yield
+    finally:
+        for s, handler in previous.items():
+            signal.signal(s, handler if handler is not None else signal.SIG_DFL)
+
+
+def _say(text: str, keep: str = "") -> None:
+    """One message on stderr, hidden characters shown; a closed stderr is not an error."""
+    with contextlib.suppress(OSError, ValueError):
+        print(f"anova-report: {show_controls(text, keep)}", file=sys.stderr)
+        sys.stderr.flush()
+
+
+def _one_line(text: str, limit: int = 300) -> str:
+    text = " ".join(show_controls(text, keep="\n").split())
+    return text if len(text) <= limit else text[: limit - 1] + "…"
+
+
+def _save_traceback(text: str) -> str | None:
+    """The traceback in a new file (unique name, created exclusively, never through a link)."""
+    try:
+        fd, path = tempfile.mkstemp(prefix="anova-report-crash-", suffix=".txt")
+    except OSError:
+        return None
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+    except OSError:
+        return None
+    return path
+
+
+def _quiet_stdout() -> None:
+    """After a broken pipe, point stdout at the null device so that the flush at exit is quiet."""
+    with contextlib.suppress(OSError, ValueError, AttributeError):
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+
+
 def _cmd_check(args) -> int:
     from reporter.api import prepare
     from reporter.render.console import render_check
@@ -102,41 +205,51 @@ def _cmd_run(args) -> int:
     from reporter.api import prepare
     from reporter.run import write_outputs
 
-    prep = prepare(args.plan)
-    written = write_outputs(prep, Path(args.out), formats)
+    try:
+        prep = prepare(args.plan)
+        written = write_outputs(prep, args.out, formats)
+    except KeyboardInterrupt as exc:
+        if not getattr(exc, "__notes__", None):
+            exc.add_note("no file was written")
+        raise
     for path in written:
-        print(f"wrote {path}")
+        print(show_controls(f"wrote {path}"))
     return 0
 
 
 def main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     debug = "--debug" in argv
-    try:
-        args = _parser().parse_args(argv)
-        if args.command is None:
-            _parser().print_help()
-            return 2
-        return {"check": _cmd_check, "run": _cmd_run}[args.command](args)
-    except ReporterError as exc:
-        if debug:
-            traceback.print_exc()
-        print(f"anova-report: error: {exc}", file=sys.stderr)
-        return exc.exit_code
-    except KeyboardInterrupt:
-        print("anova-report: interrupted", file=sys.stderr)
-        return 3
-    except Exception as exc:  # an internal error: short message, traceback to a file
-        if debug:
-            traceback.print_exc()
-        path = Path(tempfile.gettempdir()) / f"anova-report-crash-{time.strftime('%Y%m%d-%H%M%S')}.txt"
+    with _stop_on_signals():
         try:
-            path.write_text(traceback.format_exc(), encoding="utf-8")
-            where = f" The traceback is in {path}."
-        except OSError:
-            where = ""
-        print(f"anova-report: internal error ({type(exc).__name__}: {exc}).{where} Please report it.", file=sys.stderr)
-        return 3
+            args = _parser().parse_args(argv)
+            if args.command is None:
+                _parser().print_help()
+                code = EXIT_BAD_INPUT
+            else:
+                code = {"check": _cmd_check, "run": _cmd_run}[args.command](args)
+            sys.stdout.flush()  # a closed pipe shows here, not at exit
+            return code
+        except ReporterError as exc:
+            if debug:
+                traceback.print_exc()
+            _say(f"error: {exc}", keep="\n")
+            return exc.exit_code
+        except BrokenPipeError:
+            _quiet_stdout()
+            return EXIT_BROKEN_PIPE
+        except KeyboardInterrupt as exc:
+            signum = getattr(exc, "signum", signal.SIGINT)
+            notes = getattr(exc, "__notes__", None)
+            _say(f"stopped by {signal.Signals(signum).name}" + (f"; {notes[-1]}." if notes else "."))
+            return 128 + signum
+        except Exception as exc:  # an internal error: short message, traceback to a file
+            if debug:
+                traceback.print_exc()
+            path = _save_traceback(traceback.format_exc())
+            where = f" The traceback is in {path}; please report it with that file." if path else " Please report it."
+            _say(f"internal error ({type(exc).__name__}: {_one_line(str(exc))}).{where}")
+            return EXIT_INTERNAL
 
 
 if __name__ == "__main__":

@@ -1,10 +1,18 @@
-"""Plain-text view of a prepared analysis for the terminal (``anova-report check``)."""
+"""Plain-text view of a prepared analysis for the terminal (``anova-report check``).
+
+Control and bidirectional-formatting characters in user text (a terminal obeys escape
+sequences; an override reverses what follows) are written as ``\\uXXXX``
+(:mod:`reporter.render.visible`): in each table cell before the columns are measured, and
+over the whole view at the end, where only the newlines between lines are kept.
+"""
 
 from __future__ import annotations
 
 from fractions import Fraction
 
 import numpy as np
+
+from reporter.render.visible import show_controls
 
 
 def _fr(x: Fraction) -> str:
@@ -14,6 +22,8 @@ def _fr(x: Fraction) -> str:
 
 
 def _table(header: list[str], rows: list[list[str]], right: set[int] = frozenset()) -> list[str]:
+    header = [show_controls(str(v)) for v in header]
+    rows = [[show_controls(str(v)) for v in r] for r in rows]
     widths = [max(len(str(r[i])) for r in [header, *rows]) for i in range(len(header))]
     def fmt(r):
         return "  ".join(str(v).rjust(w) if i in right else str(v).ljust(w) for i, (v, w) in enumerate(zip(r, widths))).rstrip()
@@ -23,7 +33,8 @@ def _table(header: list[str], rows: list[list[str]], right: set[int] = frozenset
 def render_check(prep) -> str:
     """Cells with n, the design matrix, coefficient meanings and every compiled contrast."""
     plan, data, design = prep.plan, prep.data, prep.design
-    out: list[str] = [plan.title, "=" * min(len(plan.title), 78), ""]
+    title = show_controls(plan.title)
+    out: list[str] = [title, "=" * min(len(title), 78), ""]
     out.append(f"Plan   {plan.source or '(built in Python)'}")
     out.append(f"Data   {data.source}  ({data.format}, {data.n_read} rows read, {data.n} analysed)")
     for e in data.exclusions:
@@ -88,4 +99,4 @@ def render_check(prep) -> str:
         out += ["        " + line for line in _table([c.symbol for c in coefs] + ["", "h"], beta_rows, right=set(range(len(coefs) + 2)))]
     out.append("")
     out.append("Nothing was written. Run 'anova-report run' to fit and write the report.")
-    return "\n".join(out)
+    return show_controls("\n".join(out), keep="\n")

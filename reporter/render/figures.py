@@ -20,6 +20,11 @@ What :func:`draw_svg` returns, and why:
   with matplotlib: the figure looks the same in every browser and in WeasyPrint whatever fonts
   the reader's machine has, at the price of text that cannot be selected. The figure's caption
   and alternative text live in the document model, not in the drawing;
+* user text (level, factor and outcome names, legend entries) drawn literally: the maths
+  parser and TeX are off for every text of the figure (``text.parse_math`` and
+  ``text.usetex`` in the style, read by each label, tick label and legend entry when it is
+  created), so ``$x$``, backslashes and braces are drawn as typed; control and bidirectional
+  characters are shown as ``\\uXXXX`` (:mod:`reporter.render.visible`);
 * byte-identical output for the same spec in any process: fixed ``svg.hashsalt``, no metadata,
   seeded jitter, ids derived from the content.
 
@@ -88,6 +93,7 @@ from xml.sax.saxutils import escape
 
 from reporter.errors import RenderError
 from reporter.narrative.document import FigureSpec
+from reporter.render.visible import show_controls
 
 PALETTE: tuple[str, ...] = ("#0D4687", "#E0731D", "#7C2E06", "#1A9FB5", "#5F444B", "#A57BFF")
 """Series colours, in the order they are used (see the module docstring for why)."""
@@ -112,6 +118,8 @@ _MARKERS = ("o", "s", "^", "D", "v", "p")
 _DASHES = ("-", "--", ":", "-.")
 
 _RC = {
+    "text.parse_math": False,
+    "text.usetex": False,
     "svg.fonttype": "path",
     "svg.hashsalt": "anova-report figures",
     "svg.id": None,
@@ -164,7 +172,7 @@ def draw_svg(spec: FigureSpec, *, id_prefix: str | None = None, title: str | Non
             f"'id_prefix' must start with a letter and hold only letters, digits, '_', '.' "
             f"and '-' (got {id_prefix!r})."
         )
-    data = dict(spec.data)
+    data = {key: _plain(value) for key, value in dict(spec.data).items()}
 
     import matplotlib
     from matplotlib.backends.backend_svg import FigureCanvasSVG
@@ -435,6 +443,15 @@ def _rng():
 
 
 # ---------------------------------------------------------------- reading the spec
+
+
+def _plain(value):
+    """``value`` with hidden characters in every string inside it made visible."""
+    if isinstance(value, str):
+        return show_controls(value, keep="\t\n")
+    if isinstance(value, tuple):
+        return tuple(_plain(v) for v in value)
+    return value
 
 
 def _strings(data: dict, key: str) -> tuple[str, ...]:

@@ -17,6 +17,11 @@ Two environments:
   of CommonMark, section 2.4); nothing reaches the output unescaped unless it is a
   :class:`MarkdownText`: text escaped by :func:`markdown_escape`, or the output of a template
   macro, which templates mark with the ``rendered`` filter.
+
+In both, control and bidirectional-formatting characters in user text are written visibly as
+``\\uXXXX`` (:mod:`reporter.render.visible`) before escaping: the HTML environment's
+``finalize`` hook and :func:`keep_numbers` do it for HTML (tab and newline kept, since HTML
+treats them as spaces), :func:`markdown_escape` for Markdown.
 """
 
 from __future__ import annotations
@@ -30,6 +35,7 @@ import jinja2
 from markupsafe import Markup, escape
 
 from reporter.errors import RenderError
+from reporter.render.visible import show_controls
 from reporter.narrative.document import (
     BulletList,
     DefinitionList,
@@ -240,6 +246,7 @@ def markdown_escape(value: object) -> MarkdownText:
         return value
     text = "" if value is None else str(value)
     text = re.sub(r"\s*[\r\n]+\s*", " ", text)
+    text = show_controls(text, keep="\t")
     text = _MD_INLINE.sub(r"\\\1", text)
     text = _MD_ENTITY.sub(r"\\&", text)
     text = _MD_LINE_START.sub(
@@ -271,8 +278,16 @@ _DECIMAL = re.compile(r"((?:=|&lt;|&gt;|≤|≥)\s)?[−-]?(?:\d[\d,]*)?\.\d+")
 def keep_numbers(text: str) -> Markup:
     """Escape ``text`` and keep each decimal number (with a relation before it, as in
     ``= .012``) on one line: some line breakers allow a break after a leading decimal point."""
-    escaped = str(escape(text))
+    escaped = str(escape(_html_text(text)))
     return Markup(_DECIMAL.sub(lambda m: f'<span class="nb">{m.group(0)}</span>', escaped))
+
+
+def _html_text(value):
+    """The HTML environment's ``finalize``: user text with hidden characters made visible;
+    markup (our CSS, the drawn SVG, macro output) passes through, and autoescape follows."""
+    if isinstance(value, str) and not isinstance(value, Markup):
+        return show_controls(value, keep="\t\n")
+    return value
 
 
 def _common(env: jinja2.Environment) -> jinja2.Environment:
@@ -287,6 +302,7 @@ def html_environment() -> jinja2.Environment:
     env = jinja2.Environment(
         loader=jinja2.PackageLoader(TEMPLATE_PACKAGE, "."),
         autoescape=True,
+        finalize=_html_text,
         undefined=jinja2.StrictUndefined,
         trim_blocks=True,
         lstrip_blocks=True,
