@@ -118,21 +118,21 @@ def check_out_dir(out: str | os.PathLike, prep, formats) -> Path:
             "(--out . for the current folder)."
         )
     if "\0" in str(text):
-        raise OptionError(f"--out {text!r}: a path cannot hold a NUL character; give a plain folder name.")
+        raise OptionError(f"--out {_shown(repr(text))}: a path cannot hold a NUL character; give a plain folder name.")
     path = Path(text)
     try:
         _check_folder(path, prep, formats)
     except OSError as exc:
-        raise OptionError(f"--out {path}: cannot be used ({_reason(exc)}); choose another folder.") from None
+        raise OptionError(f"--out {_shown(path)}: cannot be used ({_reason(exc)}); choose another folder.") from None
     return path
 
 
 def _check_folder(out: Path, prep, formats) -> None:
     if os.path.lexists(out) and not out.exists():
-        raise OptionError(f"--out {out}: is a symbolic link to nothing; remove it or choose another folder.")
+        raise OptionError(f"--out {_shown(out)}: is a symbolic link to nothing; remove it or choose another folder.")
     if out.exists():
         if not out.is_dir():
-            raise OptionError(f"--out {out}: exists and is not a folder; give a folder for the report files.")
+            raise OptionError(f"--out {_shown(out)}: exists and is not a folder; give a folder for the report files.")
         inputs = _input_files(prep)
         for fmt in formats:
             _check_target(out, out / FILE_NAMES[fmt], inputs)
@@ -142,7 +142,7 @@ def _check_folder(out: Path, prep, formats) -> None:
     while not os.path.lexists(parent) and parent != parent.parent:
         parent = parent.parent
     if not parent.is_dir():
-        raise OptionError(f"--out {out}: cannot create the folder, because {parent} is not a folder.")
+        raise OptionError(f"--out {_shown(out)}: cannot create the folder, because {_shown(parent)} is not a folder.")
     _check_writable(out, parent, make_folder=True)
 
 
@@ -161,16 +161,16 @@ def _check_target(out: Path, target: Path, inputs) -> None:
     st = os.lstat(target)
     if stat.S_ISDIR(st.st_mode):
         raise OptionError(
-            f"--out {out}: {target} is a folder, so the report file cannot be written there; "
+            f"--out {_shown(out)}: {_shown(target)} is a folder, so the report file cannot be written there; "
             "remove or rename it, or choose another folder."
         )
     if target.exists() and any(os.path.samestat(os.stat(target), i) for i in inputs):
         raise OptionError(
-            f"--out {out}: writing {target.name} there would overwrite an input file; choose another folder."
+            f"--out {_shown(out)}: writing {target.name} there would overwrite an input file; choose another folder."
         )
     if stat.S_ISREG(st.st_mode) and (not st.st_mode & 0o222 or not os.access(target, os.W_OK)):
         raise OptionError(
-            f"--out {out}: {target} is read-only, so it would not be replaced; make it writable "
+            f"--out {_shown(out)}: {_shown(target)} is read-only, so it would not be replaced; make it writable "
             "(chmod u+w) or choose another folder."
         )
 
@@ -183,9 +183,9 @@ def _check_writable(out: Path, folder: Path, *, make_folder: bool) -> None:
     """
     what = "create the folder" if make_folder else "write into the folder"
     if not os.stat(folder).st_mode & 0o222:
-        where = "" if folder == out else f", because {folder} is read-only"
+        where = "" if folder == out else f", because {_shown(folder)} is read-only"
         raise OptionError(
-            f"--out {out}: cannot {what}{where or ': it is read-only'}; make it writable "
+            f"--out {_shown(out)}: cannot {what}{where or ': it is read-only'}; make it writable "
             "(chmod u+w) or choose another folder."
         )
     try:
@@ -196,10 +196,16 @@ def _check_writable(out: Path, folder: Path, *, make_folder: bool) -> None:
             os.close(fd)
             os.unlink(probe)
     except OSError as exc:
-        where = "" if folder == out else f" in {folder}"
+        where = "" if folder == out else f" in {_shown(folder)}"
         raise OptionError(
-            f"--out {out}: cannot {what} ({_reason(exc)}{where}); choose another folder."
+            f"--out {_shown(out)}: cannot {what} ({_reason(exc)}{where}); choose another folder."
         ) from None
+
+
+def _shown(path) -> str:
+    """A path for a message: a very long one keeps its start and end, so the line stays readable."""
+    text = str(path)
+    return text if len(text) <= 120 else f"{text[:60]}…{text[-50:]}"
 
 
 def _reason(exc: OSError) -> str:
@@ -267,7 +273,7 @@ def commit(out: Path, files: dict[Path, bytes]) -> list[Path]:
                 for t, b in lost.items()
             )
         if isinstance(exc, OSError):
-            raise OptionError(f"--out {out}: cannot write the report files ({_reason(exc)}); {state}.") from None
+            raise OptionError(f"--out {_shown(out)}: cannot write the report files ({_reason(exc)}); {state}.") from None
         exc.add_note(state)
         raise
     return list(temps)

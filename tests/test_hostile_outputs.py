@@ -130,6 +130,14 @@ def _output_links_to_the_data_file(tmp):
     return tmp / "out", "would overwrite an input file"
 
 
+def _name_too_long(tmp):
+    return tmp / ("x" * 5000), "cannot be used (File name too long)"
+
+
+def _nul_in_name(tmp):
+    return "out\0x", "cannot hold a NUL character"
+
+
 def _dangling_link(tmp):
     (tmp / "link").symlink_to(tmp / "nowhere")
     return tmp / "link", "symbolic link to nothing"
@@ -138,7 +146,7 @@ def _dangling_link(tmp):
 @pytest.mark.parametrize(
     "make",
     [_out_is_a_file, _results_json_is_a_folder, _report_html_is_read_only, _folder_is_read_only,
-     _parent_is_read_only, _parent_is_a_file, _empty, _blank, _output_links_to_the_data_file, _dangling_link],
+     _parent_is_read_only, _parent_is_a_file, _empty, _blank, _output_links_to_the_data_file, _name_too_long, _nul_in_name, _dangling_link],
     ids=lambda f: f.__name__.strip("_"),
 )
 def test_unusable_target_is_refused_before_the_fit(make, oneway, tmp_path, no_fit, capsys):
@@ -154,7 +162,8 @@ def test_unusable_target_is_refused_before_the_fit(make, oneway, tmp_path, no_fi
     finally:
         (tmp_path / "out").chmod(0o755)
     assert code == 2, err
-    assert expected in one_line(err)
+    line = one_line(err)
+    assert expected in line and len(line) < 400
     assert after == before
 
 
@@ -234,6 +243,36 @@ def test_interrupted_first_run_removes_the_folder_it_made(oneway, tmp_path, monk
     code = main(["run", str(oneway), "--out", str(tmp_path / "new" / "out"), "--format", "json,md"])
     assert code == 143 and "stopped by SIGTERM" in one_line(capsys.readouterr().err)
     assert not (tmp_path / "new").exists()
+
+
+def test_rollback_without_hard_links(oneway, tmp_path, monkeypatch, capsys):
+    """Where the file system refuses hard links, the previous files are kept aside as copies,
+    and an interruption still puts them back and leaves nothing else."""
+
+    def no_links(*args, **kwargs):
+        raise PermissionError(1, "Operation not permitted")
+
+    monkeypatch.setattr(os, "link", no_links)
+    out = tmp_path / "out"
+    before = previous_outputs(out)
+    monkeypatch.setattr(run_module, "after_rename", _hook(_send(signal.SIGTERM), 2))
+    assert main(["run", str(oneway), "--out", str(out), "--format", "json,md,html"]) == 143
+    assert "the output folder was left as it was" in one_line(capsys.readouterr().err)
+    assert snapshot(out) == before
+
+
+def test_python_api_write_rolls_back_on_keyboard_interrupt(oneway, tmp_path, monkeypatch):
+    """Report.write, outside the command, also restores the folder on Ctrl-C and says so."""
+    import reporter
+
+    report = reporter.report(str(oneway))
+    out = tmp_path / "out"
+    before = previous_outputs(out)
+    monkeypatch.setattr(run_module, "after_rename", _hook(_raise(KeyboardInterrupt()), 1))
+    with pytest.raises(KeyboardInterrupt) as info:
+        report.write(out, formats=("json", "md"))
+    assert info.value.__notes__ == ["the output folder was left as it was"]
+    assert snapshot(out) == before
 
 
 def test_completed_run_replaces_everything_and_leaves_no_temporary_file(oneway, tmp_path, capsys):
