@@ -3,28 +3,38 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from reporter.errors import DataError
+from reporter.intake.cells import CellStats, describe_cells
 from reporter.intake.data import Dataset, data_from_frame, load_data
+from reporter.intake.memory_rows import MemoryRows
 from reporter.intake.plan import Plan, load_plan
+from reporter.intake.rows import RowAccess
 from reporter.model.design import Design, design_from_plan
 from reporter.model.hypotheses import Contrast, compile_hypotheses
 
 
 @dataclass(frozen=True)
 class Prepared:
-    """A plan matched to its data: design, cell of each row, cell counts, compiled hypotheses."""
+    """A plan matched to its data: design, cell counts, compiled hypotheses, the cell table
+    (``cells``) and the row access of the row-level steps (``rows``; None for a summary table).
+
+    ``cell`` gives each row's cell while the rows are held in memory (None otherwise).
+    """
 
     plan: Plan
     data: Dataset
     design: Design
-    cell: np.ndarray
+    cell: np.ndarray | None
     counts: tuple[int, ...]
     contrasts: tuple[Contrast, ...]
+    cells: CellStats
+    rows: RowAccess | None
 
     @property
     def empty_cells(self) -> tuple[int, ...]:
@@ -39,18 +49,26 @@ def prepare(plan: Plan | str | Path, data: Any = None) -> Prepared:
     if not isinstance(plan, Plan):
         plan = load_plan(plan)
     dataset = load_data(plan) if data is None else data_from_frame(plan, data)
-    if dataset.n == 0:
+    n_rows = dataset.cells.n_total if dataset.cells is not None else dataset.n
+    if n_rows == 0:
         raise DataError(
             f"{dataset.source}: no row is left to analyse ({dataset.n_read} read; "
             + "; ".join(f"{e.count} {e.reason}" for e in dataset.exclusions)
             + ")."
         )
     design = design_from_plan(plan)
-    cell = design.cell_index(dataset.levels)
-    cell.setflags(write=False)
-    counts = tuple(int(c) for c in np.bincount(cell, minlength=design.k))
+    cell = None
+    if dataset.cells is not None:
+        cells, rows = dataset.cells, dataset.row_access
+    else:
+        cell = design.cell_index(dataset.levels)
+        cell.setflags(write=False)
+        pivot_exact = Fraction(dataset.pivot_text) if dataset.exact_decimal else Fraction(dataset.pivot)
+        cells = describe_cells(dataset.y, cell, design.k, dataset.pivot, pivot_exact)
+        rows = MemoryRows(dataset.y, cell, design.k, dataset.rows)
+    counts = tuple(int(c) for c in cells.n)
     contrasts = compile_hypotheses(plan, design, counts)
-    return Prepared(plan, dataset, design, cell, counts, contrasts)
+    return Prepared(plan, dataset, design, cell, counts, contrasts, cells, rows)
 
 
 @dataclass(frozen=True)

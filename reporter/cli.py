@@ -100,6 +100,7 @@ def _parser() -> argparse.ArgumentParser:
         default="html,json",
         help="comma-separated formats among json, html, pdf, md (default: %(default)s)",
     )
+    r.add_argument("--quiet", action="store_true", help="print no progress or notices on stderr, only errors")
     r.add_argument("--debug", action="store_true", help=argparse.SUPPRESS)
     return p
 
@@ -207,7 +208,7 @@ def _cmd_run(args) -> int:
 
     try:
         prep = prepare(args.plan)
-        written = write_outputs(prep, args.out, formats)
+        written = write_outputs(prep, args.out, formats, quiet=args.quiet)
     except KeyboardInterrupt as exc:
         if not getattr(exc, "__notes__", None):
             exc.add_note("no file was written")

@@ -20,8 +20,8 @@ import secrets
 import shutil
 import signal
 import stat
+import sys
 import tempfile
-from fractions import Fraction
 from pathlib import Path
 from typing import Callable
 
@@ -39,28 +39,32 @@ TEMP_PREFIX = ".anova-report-"
 after_rename: Callable[[Path], None] | None = None
 
 
-def analyse(prep) -> Analysis:
-    """Fit everything for a prepared plan."""
+def analyse(prep, *, quiet: bool = False) -> Analysis:
+    """Fit everything for a prepared plan; unless ``quiet``, long steps say so on stderr (and
+    show progress when stderr is a terminal)."""
     a = prep.plan.analysis
-    data = prep.data
-    pivot_exact = Fraction(data.pivot_text) if data.exact_decimal else Fraction(data.pivot)
     return fit_analysis(
         prep.design,
-        data.y,
-        prep.cell,
+        prep.cells,
+        prep.rows,
         prep.contrasts,
         alpha=a.alpha,
         ss_type=a.ss_type,
         correction=a.correction,
-        pivot=data.pivot,
-        pivot_exact=pivot_exact,
         unequal_variances=a.unequal_variances,
         posthoc=a.posthoc,
         posthoc_on=a.posthoc_on,
         control=a.control,
         permutations=a.permutations,
         seed=a.seed,
+        permutation_max_rows=a.permutation_max_rows,
+        progress=not quiet,
+        notify=None if quiet else _notify,
     )
+
+
+def _notify(message: str) -> None:
+    print(f"anova-report: {message}", file=sys.stderr, flush=True)
 
 
 def render_outputs(prep, analysis: Analysis, formats) -> dict[str, bytes]:
@@ -212,11 +216,11 @@ def _reason(exc: OSError) -> str:
     return exc.strerror or type(exc).__name__
 
 
-def write_outputs(prep, out: str | os.PathLike, formats) -> list[Path]:
+def write_outputs(prep, out: str | os.PathLike, formats, *, quiet: bool = False) -> list[Path]:
     """Check the output folder, fit, render every format in memory, then write the files
     all or nothing."""
     path = check_out_dir(out, prep, formats)  # before fitting: fail fast
-    return _write(prep, analyse(prep), path, formats)
+    return _write(prep, analyse(prep, quiet=quiet), path, formats)
 
 
 def write_files(prep, analysis: Analysis, out: str | os.PathLike, formats) -> list[Path]:

@@ -5,18 +5,24 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from fractions import Fraction
-from typing import Sequence
+from typing import Callable, Sequence
 
 import numpy as np
 
 from reporter.fitting.anova import AnovaTable, fit_anova
 from reporter.intake.cells import CellStats, describe_cells
 from reporter.fitting.distributions import t_ppf
-from reporter.fitting.inference import HypothesisExtras, Inference, describe_inference
+from reporter.fitting.inference import ROWS_UNAVAILABLE, HypothesisExtras, Inference, describe_inference
+from reporter.fitting.permutation import PERMUTATION_MAX_ROWS
+from reporter.intake.memory_rows import MemoryRows
+from reporter.intake.rows import CellPoints, RowAccess
 from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model
 from reporter.fitting.multiplicity import adjust_p
 from reporter.model.design import Design
 from reporter.model.hypotheses import Contrast
+
+
+CELL_POINTS = 200
 
 
 @dataclass(frozen=True)
@@ -77,6 +83,9 @@ class Analysis:
     hypotheses: tuple[HypothesisResult, ...]
     marginal_means: tuple[MarginalMean, ...] = ()
     inference: "Inference | None" = None
+    # Per cell, the values to draw (offsets from the pivot): every value up to CELL_POINTS per
+    # cell, else CELL_POINTS evenly spaced quantiles; None without row access.
+    points: tuple[CellPoints, ...] | None = None
 
 
 def describe_cell_summaries(cells: CellStats, fit: ModelFit, alpha: float) -> tuple[CellSummary, ...]:
@@ -122,15 +131,13 @@ def describe_marginal_means(design: Design, cells: CellStats, fit: ModelFit, alp
 
 def fit_analysis(
     design: Design,
-    y: np.ndarray,
-    cell: np.ndarray,
+    cells: CellStats,
+    rows: RowAccess | None,
     contrasts: Sequence[Contrast],
     *,
     alpha: float = 0.05,
     ss_type: str = "III",
     correction: str = "holm",
-    pivot: float = 0.0,
-    pivot_exact: Fraction | None = None,
     inference: bool = True,
     unequal_variances: str = "classical",
     posthoc: Sequence[str] = (),
@@ -138,23 +145,33 @@ def fit_analysis(
     control: str | None = None,
     permutations: int = 10_000,
     seed: int = 0,
+    permutation_max_rows: int = PERMUTATION_MAX_ROWS,
+    progress: bool = False,
+    notify: Callable[[str], None] | None = None,
+    rows_unavailable: str = ROWS_UNAVAILABLE,
 ) -> Analysis:
-    """Cell statistics, the full-model fit, the ANOVA table and a test of every hypothesis,
+    """The full-model fit from the cell table, the ANOVA table and a test of every hypothesis,
     with (unless ``inference=False``) effect sizes, checks, robust tests and post-hoc families.
+
+    ``cells`` is the cell table (:class:`reporter.intake.cells.CellStats`); ``rows`` answers the
+    row-level steps (:class:`reporter.intake.rows.RowAccess`), or is None when there are no rows
+    (those steps are then skipped, saying ``rows_unavailable``). ``progress`` and ``notify``
+    govern what the permutation F says on stderr (see :mod:`reporter.fitting.permutation`).
 
     p-values are adjusted within two families: the planned hypotheses (the confirmatory family)
     and, separately, the exploratory ones, each with ``correction``. The p that enters the
     adjustment is that of the confirmatory test chosen by ``unequal_variances``.
     """
-    cells = describe_cells(y, cell, design.k, pivot, pivot_exact)
     fit = fit_model(cells, design.matrix)
     table = fit_anova(design, fit, ss_type)
     tests = [fit_contrast(fit, c.weights, c.rhs, c.alternative, alpha, c.test) for c in contrasts]
     inf = None
     if inference:
-        inf = describe_inference(design, y, cell, cells, fit, table, contrasts, tests, alpha=alpha,
+        inf = describe_inference(design, cells, rows, fit, table, contrasts, tests, alpha=alpha,
                                  policy=unequal_variances, posthoc=posthoc, posthoc_on=posthoc_on,
-                                 control=control, permutations=permutations, seed=seed)
+                                 control=control, permutations=permutations, seed=seed,
+                                 permutation_max_rows=permutation_max_rows, progress=progress, notify=notify,
+                                 rows_unavailable=rows_unavailable)
     confirm_p = [t.p for t in tests] if inf is None else [e.confirmatory_p for e in inf.hypotheses]
     adjusted: dict[int, float | None] = {}
     for family in ("planned", "exploratory"):
@@ -184,4 +201,16 @@ def fit_analysis(
         hypotheses=tuple(results),
         marginal_means=describe_marginal_means(design, cells, fit, alpha),
         inference=inf,
+        points=None if rows is None else rows.cell_points(CELL_POINTS),
     )
+
+
+def fit_analysis_on_rows(design: Design, y, cell, contrasts: Sequence[Contrast], *, pivot: float = 0.0,
+                         pivot_exact: Fraction | None = None, row_numbers=None, **options) -> Analysis:
+    """:func:`fit_analysis` on row arrays (offsets ``y`` from ``pivot``, the cell of each row),
+    held in memory; rows are numbered 0..N-1 unless ``row_numbers`` are given."""
+    y = np.asarray(y, dtype=np.float64)
+    cell = np.asarray(cell)
+    cells = describe_cells(y, cell, design.k, pivot, pivot_exact)
+    numbers = np.arange(y.size, dtype=np.int64) if row_numbers is None else np.asarray(row_numbers)
+    return fit_analysis(design, cells, MemoryRows(y, cell, design.k, numbers), contrasts, **options)

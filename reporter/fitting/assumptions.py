@@ -1,11 +1,16 @@
 """Checks of the assumptions behind the cell-means ANOVA: equal variances, normal errors, no
 gross outliers.
 
-All functions take the row data ``y`` and ``codes`` (the cell index of each row) and work with
-the residuals e_i = y_i - ybar_(cell of i) of the full cell-means model, whose rows in cell c all
-have leverage h_i = 1/n_c. Rows of a cell with one row have leverage 1 and a residual of exactly
-zero: they carry no information about the errors and are left out of the row diagnostics (and
-reported as such).
+The checks work with the residuals e_i = y_i - ybar_(cell of i) of the full cell-means model,
+whose rows in cell c all have leverage h_i = 1/n_c. Rows of a cell with one row have leverage 1
+and a residual of exactly zero: they carry no information about the errors and are left out of
+the row diagnostics (and reported as such).
+
+The report path asks a :class:`reporter.intake.rows.RowAccess` for what each check needs (per-cell
+medians, absolute-deviation statistics, quantiles, a sample, the rows beyond a bound) and the
+cell table for the rest, so each check costs at most one sort of the rows and its answer has a
+size bounded independently of N. The functions that take row arrays ``(y, codes, k)`` run the
+same code through :class:`reporter.intake.memory_rows.MemoryRows`.
 """
 
 from __future__ import annotations
@@ -19,6 +24,9 @@ from scipy import special
 from reporter.errors import FitError
 from reporter.fitting.distributions import f_sf, norm_cdf, norm_ppf
 from reporter.fitting.robust import _cell_stats_from_rows, _rows
+from reporter.intake.cells import CellStats, describe_cells
+from reporter.intake.memory_rows import MemoryRows
+from reporter.intake.rows import FlaggedRows, RowAccess
 
 __all__ = [
     "HomogeneityResult",
@@ -28,15 +36,22 @@ __all__ = [
     "QQData",
     "StudentizedResiduals",
     "brown_forsythe",
+    "cells_without",
     "find_outliers",
+    "homogeneity",
     "levene",
+    "normality",
+    "outlier_bound",
     "qq_points",
+    "qq_quantiles",
+    "screen_outliers",
     "shapiro_wilk",
     "studentized_residuals",
 ]
 
 SHAPIRO_MIN_N = 3
 SHAPIRO_MAX_N = 5000
+QQ_MAX_POINTS = 1000
 
 
 @dataclass(frozen=True)
@@ -57,9 +72,11 @@ class NormalityResult:
     """Shapiro-Wilk test of the residuals, or the reason it was not run.
 
     ``skipped`` is True when the test was not run; ``reason`` is then one of
-    "too-few-rows" (fewer than 3 usable residuals), "too-many-rows" (more than 5000, beyond the
-    range of the p-value approximation) or "no-spread" (all residuals equal), and
-    ``statistic`` and ``p`` are None. ``n`` counts the residuals used (or available).
+    "too-few-rows" (fewer than 3 usable residuals), "no-spread" (all residuals equal) or a
+    sentence starting "not available: " (no row-level data), and ``statistic`` and ``p`` are
+    None. ``n`` counts the residuals tested; ``n_available`` the residuals there are. When
+    there are more than 5,000 (the range of the p value approximation), the test runs on a
+    seeded simple random sample of 5,000 rows: ``sampled`` is True and ``seed`` reproduces it.
     """
 
     method: str
@@ -68,18 +85,25 @@ class NormalityResult:
     reason: str | None
     statistic: float | None
     p: float | None
+    n_available: int | None = None
+    sampled: bool = False
+    seed: int | None = None
 
 
 @dataclass(frozen=True)
 class QQData:
-    """Points of a normal Q-Q plot: Blom quantiles against sorted standardized residuals.
+    """Points of a normal Q-Q plot: Blom quantiles against order statistics of the internally
+    studentized residuals.
 
-    ``rows`` gives, for each point, the 0-based index into ``y`` of the row it shows.
+    ``n_residuals`` residuals enter; up to 1,000 of them every one is a point, beyond that the
+    points are 1,000 order statistics at evenly spaced ranks from the smallest to the largest
+    (``summarized`` is True).
     """
 
     theoretical: tuple[float, ...]
     sample: tuple[float, ...]
-    rows: tuple[int, ...]
+    n_residuals: int = 0
+    summarized: bool = False
 
 
 @dataclass(frozen=True, eq=False)
@@ -100,7 +124,10 @@ class StudentizedResiduals:
 
 @dataclass(frozen=True)
 class Outlier:
-    """One row whose externally studentized residual exceeds the threshold in absolute value."""
+    """One row whose externally studentized residual exceeds the threshold in absolute value.
+
+    ``row`` is the row's number as the row access gives it (as a person finds it in the input).
+    """
 
     row: int
     cell: int
@@ -113,8 +140,10 @@ class Outlier:
 class OutlierScan:
     """Rows flagged by |t_i| > threshold, and the rows that could not be checked.
 
-    ``skipped_rows`` are rows of one-row cells (leverage 1: the residual is 0 by construction
-    and cannot be studentized); ``note`` says so in words when there are any.
+    ``outliers`` lists at most the scan's limit of rows, largest |t_i| first; ``total`` counts
+    every flagged row. ``skipped_rows`` are (at most the limit of) the rows of one-row cells
+    (leverage 1: the residual is 0 by construction and cannot be studentized), ``n_skipped``
+    counts them all; ``note`` says so in words when there are any.
     """
 
     threshold: float
@@ -122,44 +151,32 @@ class OutlierScan:
     n_checked: int
     skipped_rows: tuple[int, ...]
     note: str | None
+    total: int = 0
+    n_skipped: int = 0
 
 
 # ---------------------------------------------------------------------------------------------
 # homogeneity of variance
 
 
-def _group_medians(y: np.ndarray, codes: np.ndarray, n: np.ndarray) -> np.ndarray:
-    order = np.lexsort((y, codes))
-    ys = y[order]
-    starts = np.concatenate(([0], np.cumsum(n)[:-1]))
-    med = np.zeros(n.size)
-    obs = n > 0
-    lo = starts[obs] + (n[obs] - 1) // 2
-    hi = starts[obs] + n[obs] // 2
-    med[obs] = (ys[lo] + ys[hi]) / 2.0
-    return med
-
-
-def _deviation_f(y, codes, k, center: str, method: str) -> HomogeneityResult:
-    y, codes, k = _rows(y, codes, k)
-    n, mean, _ = _cell_stats_from_rows(y, codes, k)
+def homogeneity(rows: RowAccess, cells: CellStats, center: str) -> HomogeneityResult:
+    """One-way F on |y_i - centre of its cell| with centre "mean" (Levene) or "median"
+    (Brown-Forsythe), from the row access's deviation statistics."""
+    method = "Levene" if center == "mean" else "Brown-Forsythe"
+    n = cells.n
     g = int(np.count_nonzero(n))
-    big_n = y.size
+    big_n = cells.n_total
     if g < 2:
-        raise FitError(
-            f"{method} compares the spread of at least 2 observed cells (got {g})."
-        )
+        raise FitError(f"{method} compares the spread of at least 2 observed cells (got {g}).")
     if big_n - g < 1:
-        raise FitError(
-            f"{method} needs more rows than cells (got {big_n} rows in {g} cells)."
-        )
-    centre = mean if center == "mean" else _group_medians(y, codes, n)
-    z = np.abs(y - centre[codes])
-    zn, zmean, zss = _cell_stats_from_rows(z, codes, k)
-    obs = zn > 0
-    grand = float(np.sum(zn[obs] * zmean[obs]) / big_n)
-    between = float(np.sum(zn[obs] * (zmean[obs] - grand) ** 2))
-    within = float(zss.sum())
+        raise FitError(f"{method} needs more rows than cells (got {big_n} rows in {g} cells).")
+    centre = cells.offset_mean if center == "mean" else rows.medians()
+    zn, zmean, zss = rows.deviation_stats(centre)
+    obs = np.asarray(zn) > 0
+    zn, zmean, zss = np.asarray(zn, np.float64)[obs], np.asarray(zmean)[obs], np.asarray(zss)[obs]
+    grand = math.fsum((zn * zmean).tolist()) / big_n
+    between = math.fsum((zn * (zmean - grand) ** 2).tolist())
+    within = math.fsum(zss.tolist())
     if not within > 0.0:
         raise FitError(
             f"{method} is undefined here: within every cell the absolute deviations from the "
@@ -168,15 +185,15 @@ def _deviation_f(y, codes, k, center: str, method: str) -> HomogeneityResult:
         )
     df1, df2 = g - 1, big_n - g
     f = (between / df1) / (within / df2)
-    return HomogeneityResult(
-        method=method,
-        center=center,
-        statistic=f,
-        df1=df1,
-        df2=df2,
-        p=float(f_sf(f, df1, df2)),
-        n_groups=g,
-    )
+    return HomogeneityResult(method=method, center=center, statistic=f, df1=df1, df2=df2,
+                             p=float(f_sf(f, df1, df2)), n_groups=g)
+
+
+def _memory(y, codes, k, numbered_from: int = 0):
+    """Row arrays as (MemoryRows, CellStats); rows numbered from ``numbered_from``."""
+    y, codes, k = _rows(y, codes, k)
+    rows = MemoryRows(y, codes, k, np.arange(y.size, dtype=np.int64) + numbered_from)
+    return rows, describe_cells(y, codes, k)
 
 
 def levene(y, codes, k: int | None = None) -> HomogeneityResult:
@@ -185,7 +202,8 @@ def levene(y, codes, k: int | None = None) -> HomogeneityResult:
     Levene (1960), in Olkin et al. (eds.), *Contributions to Probability and Statistics*,
     Stanford University Press, 278-292.
     """
-    return _deviation_f(y, codes, k, "mean", "Levene")
+    rows, cells = _memory(y, codes, k)
+    return homogeneity(rows, cells, "mean")
 
 
 def brown_forsythe(y, codes, k: int | None = None) -> HomogeneityResult:
@@ -193,7 +211,8 @@ def brown_forsythe(y, codes, k: int | None = None) -> HomogeneityResult:
 
     Brown & Forsythe (1974), JASA 69, 364-367; robust to skewed errors.
     """
-    return _deviation_f(y, codes, k, "median", "Brown-Forsythe")
+    rows, cells = _memory(y, codes, k)
+    return homogeneity(rows, cells, "median")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -201,7 +220,8 @@ def brown_forsythe(y, codes, k: int | None = None) -> HomogeneityResult:
 
 
 def studentized_residuals(y, codes, k: int | None = None) -> StudentizedResiduals:
-    """Residuals and their internally and externally studentized forms.
+    """Residuals and their internally and externally studentized forms (one per row; a library
+    function, not used on the report path).
 
     With h_i = 1/n_c, r_i = e_i / sqrt(MSE (1 - h_i)) and
     t_i = r_i sqrt((df_e - 1) / (df_e - r_i^2)), df_e = N - g (Cook & Weisberg 1982,
@@ -211,19 +231,7 @@ def studentized_residuals(y, codes, k: int | None = None) -> StudentizedResidual
     y, codes, k = _rows(y, codes, k)
     n, mean, ss = _cell_stats_from_rows(y, codes, k)
     g = int(np.count_nonzero(n))
-    df_e = y.size - g
-    if df_e < 2:
-        raise FitError(
-            f"studentized residuals need at least 2 residual degrees of freedom (N - cells = "
-            f"{df_e}); collect more rows per cell."
-        )
-    sse = float(ss.sum())
-    if not sse > 0.0:
-        raise FitError(
-            "the residuals are all zero (every cell's values are equal), so they cannot be "
-            "studentized."
-        )
-    mse = sse / df_e
+    mse, df_e = _mse(float(ss.sum()), y.size - g)
     e = y - mean[codes]
     lev = 1.0 / n[codes]
     ok = lev < 1.0
@@ -231,11 +239,7 @@ def studentized_residuals(y, codes, k: int | None = None) -> StudentizedResidual
     internal = np.full(y.size, np.nan)
     internal[ok] = e[ok] / np.sqrt(mse * (1.0 - lev[ok]))
     external = np.full(y.size, np.nan)
-    r = internal[ok]
-    denom = df_e - r * r
-    with np.errstate(divide="ignore", invalid="ignore"):
-        t = r * np.sqrt((df_e - 1.0) / np.maximum(denom, 0.0))
-    external[ok] = t
+    external[ok] = _external(internal[ok], df_e)
     for arr in (e, lev, internal, external):
         arr.flags.writeable = False
     return StudentizedResiduals(
@@ -243,26 +247,66 @@ def studentized_residuals(y, codes, k: int | None = None) -> StudentizedResidual
     )
 
 
-def shapiro_wilk(y, codes, k: int | None = None) -> NormalityResult:
+def _mse(sse: float, df_e: int) -> tuple[float, int]:
+    if df_e < 2:
+        raise FitError(
+            f"studentized residuals need at least 2 residual degrees of freedom (N - cells = "
+            f"{df_e}); collect more rows per cell."
+        )
+    if not sse > 0.0:
+        raise FitError(
+            "the residuals are all zero (every cell's values are equal), so they cannot be "
+            "studentized."
+        )
+    return sse / df_e, df_e
+
+
+def _external(r, df_e: int):
+    """t_i = r_i sqrt((df_e - 1) / (df_e - r_i^2)) (Cook & Weisberg 1982, section 2.2)."""
+    r = np.asarray(r, dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return r * np.sqrt((df_e - 1.0) / np.maximum(df_e - r * r, 0.0))
+
+
+def _internal_scale(cells: CellStats, mse: float) -> np.ndarray:
+    """sqrt(MSE (1 - 1/n_c)) per cell; NaN for cells of fewer than 2 rows."""
+    n = cells.n.astype(np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(cells.n > 1, np.sqrt(mse * (1.0 - 1.0 / np.maximum(n, 1.0))), np.nan)
+
+
+def normality(rows: RowAccess, cells: CellStats, *, seed: int = 0, max_n: int = SHAPIRO_MAX_N) -> NormalityResult:
     """Shapiro-Wilk test of the residuals (rows of one-row cells left out).
 
     Shapiro & Wilk (1965), Biometrika 52, 591-611, computed by Royston's (1995) algorithm
-    AS R94 (see :func:`_royston_shapiro_wilk`); the p value approximation holds for
-    3 <= n <= 5000, so outside that range the test is skipped.
+    AS R94 (see :func:`_royston_shapiro_wilk`), whose p value approximation holds for
+    3 <= n <= 5000. Up to 5,000 residuals every one is tested; beyond that a simple random
+    sample of 5,000 rows drawn with ``seed`` (the residuals still use the cell means of all rows),
+    and the result says so.
     """
-    y, codes, k = _rows(y, codes, k)
-    n, mean, _ = _cell_stats_from_rows(y, codes, k)
-    keep = n[codes] > 1
-    e = (y - mean[codes])[keep]
-    m = int(e.size)
+    usable = cells.n > 1
+    m = int(cells.n[usable].sum())
     if m < SHAPIRO_MIN_N:
-        return NormalityResult("Shapiro-Wilk", m, True, "too-few-rows", None, None)
-    if m > SHAPIRO_MAX_N:
-        return NormalityResult("Shapiro-Wilk", m, True, "too-many-rows", None, None)
-    if not np.ptp(e) > 1e-12 * max(1.0, float(np.max(np.abs(y)))):
-        return NormalityResult("Shapiro-Wilk", m, True, "no-spread", None, None)
+        return NormalityResult("Shapiro-Wilk", m, True, "too-few-rows", None, None, m)
+    sampled = m > max_n
+    y, cc = rows.sample(max_n if sampled else rows.n, seed)
+    cc = np.asarray(cc)
+    keep = usable[cc]
+    e = (np.asarray(y, np.float64) - cells.offset_mean[cc])[keep]
+    used = int(e.size)
+    if used < SHAPIRO_MIN_N:
+        return NormalityResult("Shapiro-Wilk", used, True, "too-few-rows", None, None, m, sampled, seed if sampled else None)
+    scale = max(1.0, float(np.max(np.abs(cells.offset_mean[usable]))), float(np.max(np.abs(e))))
+    if not np.ptp(e) > 1e-12 * scale:
+        return NormalityResult("Shapiro-Wilk", used, True, "no-spread", None, None, m, sampled, seed if sampled else None)
     w, p = _royston_shapiro_wilk(e)
-    return NormalityResult("Shapiro-Wilk", m, False, None, w, p)
+    return NormalityResult("Shapiro-Wilk", used, False, None, w, p, m, sampled, seed if sampled else None)
+
+
+def shapiro_wilk(y, codes, k: int | None = None, *, seed: int = 0) -> NormalityResult:
+    """:func:`normality` on row arrays."""
+    rows, cells = _memory(y, codes, k)
+    return normality(rows, cells, seed=seed)
 
 
 # Polynomial coefficients of Royston (1995), AS R94, lowest power first: corrections of the last
@@ -356,62 +400,117 @@ def _royston_shapiro_wilk(x: np.ndarray) -> tuple[float, float]:
     return w, float(norm_cdf(-(y - mean) / sd))
 
 
-def qq_points(y, codes, k: int | None = None) -> QQData:
-    """Normal Q-Q points: Blom positions against sorted internally studentized residuals.
+def qq_quantiles(rows: RowAccess, cells: CellStats, mse: float, *, max_points: int = QQ_MAX_POINTS) -> QQData:
+    """Normal Q-Q points: Blom positions against order statistics of the internally studentized
+    residuals r_i = e_i / sqrt(MSE (1 - 1/n_c)) (rows of one-row cells left out).
 
     The i-th smallest of m residuals is paired with the normal quantile at (i - 3/8)/(m + 1/4)
-    (Blom 1958, *Statistical Estimates and Transformed Beta-Variables*, Wiley). Rows of one-row
-    cells are left out.
+    (Blom 1958, *Statistical Estimates and Transformed Beta-Variables*, Wiley). With m above
+    ``max_points`` only the order statistics at ``max_points`` evenly spaced ranks i (the first
+    and the last included) are drawn; the i-th order statistic is the type 7 sample quantile at
+    (i - 1)/(m - 1) (Hyndman & Fan 1996, The American Statistician 50, 361-365), which the row
+    access returns.
     """
-    res = studentized_residuals(y, codes, k)
-    usable = np.flatnonzero(np.isfinite(res.internal))
-    order = usable[np.argsort(res.internal[usable], kind="stable")]
-    m = order.size
-    positions = (np.arange(1, m + 1) - 0.375) / (m + 0.25)
-    theoretical = norm_ppf(positions)
-    return QQData(
-        theoretical=tuple(float(v) for v in theoretical),
-        sample=tuple(float(v) for v in res.internal[order]),
-        rows=tuple(int(i) for i in order),
-    )
+    m = int(cells.n[cells.n > 1].sum())
+    if m == 0:
+        return QQData((), (), 0, False)
+    if m <= max_points:
+        ranks = np.arange(1, m + 1, dtype=np.float64)
+    else:
+        ranks = np.unique(np.round(np.linspace(1.0, float(m), max_points)))
+    probs = (ranks - 1.0) / (m - 1.0) if m > 1 else np.array([0.5])
+    sample = np.asarray(rows.residual_quantiles(cells.offset_mean, _internal_scale(cells, mse), probs.tolist()))
+    theoretical = norm_ppf((ranks - 0.375) / (m + 0.25))
+    return QQData(tuple(float(v) for v in theoretical), tuple(float(v) for v in sample), m, m > max_points)
 
 
-def find_outliers(
-    y, codes, k: int | None = None, *, threshold: float = 3.0
-) -> OutlierScan:
-    """Rows whose externally studentized residual exceeds ``threshold`` in absolute value.
+def qq_points(y, codes, k: int | None = None) -> QQData:
+    """:func:`qq_quantiles` on row arrays, with the MSE of the cell-means model."""
+    rows, cells = _memory(y, codes, k)
+    mse, _ = _mse(cells.ss_within, cells.df_within)
+    return qq_quantiles(rows, cells, mse)
+
+
+def outlier_bound(cells: CellStats, mse: float, df_e: int, threshold: float) -> np.ndarray:
+    """Per cell, the bound on |e_i| equivalent to |t_i| > ``threshold``.
+
+    With r_i = e_i / sqrt(MSE (1 - 1/n_c)) and t_i^2 = r_i^2 (df_e - 1) / (df_e - r_i^2)
+    (Cook & Weisberg 1982, section 2.2; r_i^2 <= df_e always), t_i^2 increases with r_i^2, and
+    t_i^2 > c^2  <=>  r_i^2 (df_e - 1 + c^2) > c^2 df_e, so
+    |t_i| > c  <=>  |e_i| > c sqrt(MSE (1 - 1/n_c)) sqrt(df_e / (df_e - 1 + c^2)).
+    Cells of one row get NaN (leverage 1: not checked).
+    """
+    c = float(threshold)
+    return c * _internal_scale(cells, mse) * math.sqrt(df_e / (df_e - 1.0 + c * c))
+
+
+def screen_outliers(rows: RowAccess, cells: CellStats, *, threshold: float = 3.0,
+                    limit: int = 100) -> tuple[OutlierScan, FlaggedRows]:
+    """Rows whose externally studentized residual exceeds ``threshold`` in absolute value, found
+    in one pass through the per-cell bound of :func:`outlier_bound`.
 
     Under normal errors each t_i follows a t distribution with df_e - 1 degrees of freedom
-    (Cook & Weisberg 1982); the cut-off |t_i| > 3 is common practice, no source.
-    Rows are 0-based indices into ``y``.
+    (Cook & Weisberg 1982); the cut-off |t_i| > 3 is common practice, no source. At most
+    ``limit`` rows are listed (largest |t_i| first), ``total`` counts them all; the returned
+    :class:`FlaggedRows` carries the per-cell sums that :func:`cells_without` needs.
     """
     threshold = float(threshold)
     if not (np.isfinite(threshold) and threshold > 0.0):
         raise FitError(f"'threshold' must be a positive number (got {threshold!r}).")
-    y, codes, k = _rows(y, codes, k)
-    res = studentized_residuals(y, codes, k)
-    skipped = np.flatnonzero(~(res.leverage < 1.0))
-    flagged = np.flatnonzero(np.abs(np.nan_to_num(res.external, nan=0.0)) > threshold)
-    outliers = tuple(
-        Outlier(
-            row=int(i),
-            cell=int(codes[i]),
-            residual=float(res.residual[i]),
-            internal=float(res.internal[i]),
-            external=float(res.external[i]),
-        )
-        for i in flagged
-    )
+    g = int(np.count_nonzero(cells.n))
+    mse, df_e = _mse(cells.ss_within, cells.n_total - g)
+    flagged = rows.flagged(cells.offset_mean, outlier_bound(cells, mse, df_e, threshold), limit)
+    scale = _internal_scale(cells, mse)
+    outliers = []
+    for row, c, value in flagged.rows:
+        e = float(value - cells.offset_mean[c])
+        r = e / float(scale[c])
+        outliers.append(Outlier(row=int(row), cell=int(c), residual=e, internal=r, external=float(_external(r, df_e))))
+    single = cells.n == 1
+    skipped: tuple[int, ...] = ()
+    n_skipped = int(np.count_nonzero(single))
     note = None
-    if skipped.size:
+    if n_skipped:
+        # every row of a one-row cell: |x - mean| = 0 > -1
+        lone = rows.flagged(cells.offset_mean, np.where(single, -1.0, np.nan), limit)
+        skipped = tuple(sorted(r for r, _, _ in lone.rows))
         note = (
-            f"{skipped.size} row(s) are alone in their cell; such a row has leverage 1 and a "
+            f"{n_skipped} row(s) are alone in their cell; such a row has leverage 1 and a "
             "residual of zero by construction, so it cannot be checked."
         )
-    return OutlierScan(
-        threshold=threshold,
-        outliers=outliers,
-        n_checked=int(y.size - skipped.size),
-        skipped_rows=tuple(int(i) for i in skipped),
-        note=note,
-    )
+    scan = OutlierScan(threshold=threshold, outliers=tuple(outliers), n_checked=cells.n_total - n_skipped,
+                       skipped_rows=skipped, note=note, total=flagged.total, n_skipped=n_skipped)
+    return scan, flagged
+
+
+def find_outliers(y, codes, k: int | None = None, *, threshold: float = 3.0, limit: int = 100) -> OutlierScan:
+    """:func:`screen_outliers` on row arrays; rows are 0-based indices into ``y``."""
+    rows, cells = _memory(y, codes, k)
+    return screen_outliers(rows, cells, threshold=threshold, limit=limit)[0]
+
+
+def cells_without(cells: CellStats, flagged: FlaggedRows) -> CellStats:
+    """The cell table without the flagged rows, updated from their per-cell sums (no pass over
+    the rows).
+
+    With r_c rows removed from cell c, d = x - mean_c their deviations, and n' = n_c - r_c:
+    the remaining deviations sum to -sum d (all n_c deviations sum to 0), so
+    mean' = mean_c - sum d / n' and S' = (S_c - sum d^2) - (sum d)^2 / n' (the centred sum of
+    squares of the remaining rows about their own mean; Chan, Golub & LeVeque 1983, The American
+    Statistician 37, 242-247, eq. 1.7 applied to the remaining rows). The subtraction
+    S_c - sum d^2 loses about log10(S_c / S') digits when the removed rows dominate S_c.
+    """
+    count = np.asarray(flagged.count, dtype=np.int64)
+    n2 = cells.n - count
+    mean = cells.offset_mean.copy()
+    ss = cells.ss.copy()
+    for c in np.flatnonzero(count):
+        if n2[c] == 0:
+            mean[c] = ss[c] = np.nan
+            continue
+        sd, sd2 = float(flagged.sum_dev[c]), float(flagged.sum_dev2[c])
+        mean[c] = cells.offset_mean[c] - sd / n2[c]
+        ss[c] = max(math.fsum((float(cells.ss[c]), -sd2, -sd * sd / n2[c])), 0.0)
+    for arr in (n2, mean, ss):
+        arr.setflags(write=False)
+    return CellStats(n=n2, offset_mean=mean, ss=ss, pivot=cells.pivot, pivot_exact=cells.pivot_exact)

@@ -17,7 +17,7 @@ effect, and an HC3 Wald F otherwise.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -25,10 +25,11 @@ from reporter.errors import FitError
 from reporter.fitting import assumptions as A
 from reporter.fitting import posthoc as P
 from reporter.fitting import robust as R
-from reporter.intake.cells import CellStats, describe_cells
+from reporter.intake.cells import CellStats
 from reporter.fitting.effectsizes import AnovaEffectSizes, EffectSize, describe_anova_effect_sizes, standardized_contrast
 from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model
-from reporter.fitting.permutation import PermutationResult, permutation_f_test
+from reporter.fitting.permutation import (PERMUTATION_MAX_ROWS, SEQUENTIAL_EXCEEDANCES, PermutationResult,
+                                         permutation_f_test)
 from reporter.fitting.power import Sensitivity, describe_sensitivity
 from reporter.intake.plan import level_key
 from reporter.errors import PlanError
@@ -64,22 +65,31 @@ class HypothesisExtras:
 
 @dataclass(frozen=True)
 class AssumptionChecks:
+    """The row-level checks. Without row access (``unavailable`` holds the reason, starting
+    "not available: ") the variance checks, the Q–Q data and the outlier scan are None and the
+    Shapiro–Wilk result is skipped with that reason."""
+
     brown_forsythe: A.HomogeneityResult | None
     levene: A.HomogeneityResult | None
     shapiro: A.NormalityResult
-    qq: A.QQData
-    outliers: A.OutlierScan
-    residuals_by_cell: tuple[tuple[float, ...], ...]
+    qq: A.QQData | None
+    outliers: A.OutlierScan | None
     heterogeneous: bool
     notes: tuple[str, ...]
+    unavailable: str | None = None
 
 
 @dataclass(frozen=True)
 class OutlierSensitivity:
-    """Planned tests rerun without the flagged rows (reported beside, never substituted)."""
+    """Planned tests refitted without the flagged rows (reported beside, never substituted).
+
+    ``rows_removed`` lists at most the scan's limit of the removed rows (row numbers as in the
+    input); ``n_removed`` counts them all.
+    """
 
     rows_removed: tuple[int, ...]
     tests: tuple[tuple[str, ContrastTest | None, str | None], ...]
+    n_removed: int = 0
 
 
 @dataclass(frozen=True)
@@ -103,6 +113,8 @@ class Inference:
     games_howell: P.ComparisonFamily | None
     outlier_sensitivity: OutlierSensitivity | None
     policy: str
+    kruskal_note: str | None = None
+    permutation_note: str | None = None
 
 
 def _observed(cells: CellStats):
@@ -110,32 +122,33 @@ def _observed(cells: CellStats):
     return o, cells.n[o], cells.mean[o], cells.ss[o]
 
 
-def _compact_codes(cell: np.ndarray, observed: np.ndarray) -> np.ndarray:
-    remap = np.cumsum(observed) - 1
-    return remap[cell]
+OUTLIER_LIMIT = 100
+ROWS_UNAVAILABLE = "not available: the input gives one summary row per cell, not the rows"
 
 
-def check_assumptions(y, cell, cells: CellStats, alpha: float) -> AssumptionChecks:
-    o = cells.observed
-    codes = _compact_codes(cell, o)
-    k = int(o.sum())
+def check_assumptions(rows, cells: CellStats, fit: ModelFit, alpha: float, *, seed: int = 0,
+                      unavailable: str = ROWS_UNAVAILABLE) -> tuple[AssumptionChecks, object]:
+    """The row-level checks through the row access, and the flagged rows (for the sensitivity
+    rerun; None when not scanned)."""
+    if rows is None:
+        sw = A.NormalityResult("Shapiro-Wilk", 0, True, unavailable, None, None)
+        return AssumptionChecks(None, None, sw, None, None, False, (), unavailable), None
     notes = []
     try:
-        bf = A.brown_forsythe(y, codes, k)
-        lev = A.levene(y, codes, k)
+        bf = A.homogeneity(rows, cells, "median")
+        lev = A.homogeneity(rows, cells, "mean")
     except FitError as exc:
         bf = lev = None
         notes.append(f"Variance checks not possible: {exc}")
-    sw = A.shapiro_wilk(y, codes, k)
-    qq = A.qq_points(y, codes, k)
-    scan = A.find_outliers(y, codes, k)
-    # The scan numbers cells among the observed ones; give each outlier its design cell index.
-    observed = np.flatnonzero(o)
-    out = replace(scan, outliers=tuple(replace(x, cell=int(observed[x.cell])) for x in scan.outliers))
-    resid = y - cells.offset_mean[cell]
-    by_cell = tuple(tuple(float(v) for v in resid[cell == c]) for c in range(cells.k))
+    sw = A.normality(rows, cells, seed=seed)
+    qq = scan = flagged = None
+    try:
+        qq = A.qq_quantiles(rows, cells, fit.mse)
+        scan, flagged = A.screen_outliers(rows, cells, limit=OUTLIER_LIMIT)
+    except FitError as exc:
+        notes.append(f"Residual checks not possible: {exc}")
     hetero = bool(bf is not None and bf.p is not None and bf.p < alpha)
-    return AssumptionChecks(bf, lev, sw, qq, out, by_cell, hetero, tuple(notes))
+    return AssumptionChecks(bf, lev, sw, qq, scan, hetero, tuple(notes)), flagged
 
 
 def _robust_for(contrast, cells: CellStats, one_way_effect: bool, alpha: float) -> RobustTest | None:
@@ -155,32 +168,44 @@ def _robust_for(contrast, cells: CellStats, one_way_effect: bool, alpha: float) 
         return RobustTest("not available", contrast.test, float("nan"), (), float("nan"), note=str(exc))
 
 
-def describe_inference(design, y, cell, cells: CellStats, fit: ModelFit, table, contrasts, tests, *, alpha: float,
+def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, contrasts, tests, *, alpha: float,
                        policy: str = "classical", posthoc=(), posthoc_on="cells", control=None,
-                       permutations: int = 10_000, seed: int = 0) -> Inference:
-    """Collect effect sizes, checks, robust tests, post-hoc families and power for one fit."""
-    checks = check_assumptions(y, cell, cells, alpha)
-    o, n_obs, mean_obs, ss_obs = _observed(cells)
-    codes = _compact_codes(cell, o)
-    one_way = len(design.factors) == 1
+                       permutations: int = 10_000, seed: int = 0,
+                       permutation_max_rows: int = PERMUTATION_MAX_ROWS,
+                       progress: bool = False, notify=None,
+                       rows_unavailable: str = ROWS_UNAVAILABLE) -> Inference:
+    """Collect effect sizes, checks, robust tests, post-hoc families and power for one fit.
 
-    rows = []
+    ``rows`` (a :class:`reporter.intake.rows.RowAccess`, or None) answers every row-level step;
+    without it those steps are skipped with the reason ``rows_unavailable``.
+    """
+    checks, flagged = check_assumptions(rows, cells, fit, alpha, seed=seed, unavailable=rows_unavailable)
+    o, n_obs, mean_obs, ss_obs = _observed(cells)
+    one_way = len(design.factors) == 1
+    perm_arrays, perm_note = _permutation_rows(rows, cells, permutations, permutation_max_rows, rows_unavailable)
+
+    def permute(C, label):
+        if perm_arrays is None or np.any(C[:, ~o] != 0):
+            return None
+        y, cell = perm_arrays
+        return permutation_f_test(y, cell, cells.k, C, n_permutations=permutations, seed=seed,
+                                  stop_after=SEQUENTIAL_EXCEEDANCES, progress=progress, notify=notify,
+                                  label=label)
+
+    rows_out = []
     for r in table.rows:
         if not r.testable:
-            rows.append(RowExtras(None, None, None, None))
+            rows_out.append(RowExtras(None, None, None, None))
             continue
         es = describe_anova_effect_sizes(r.ss, r.df, fit.ss_error, fit.df_error, fit.ss_total, cells.n_total,
                                          alpha=alpha)
         eff = compile_effect(design, " x ".join(r.factors))
         sens = describe_sensitivity(r.df, cells.n_total, fit.df_error, alpha=alpha)
         if np.any(eff.C[:, ~o] != 0):  # the unweighted-means contrast needs an empty cell
-            rows.append(RowExtras(es, None, None, sens))
+            rows_out.append(RowExtras(es, None, None, sens))
             continue
         rob = _robust_for(eff, cells, one_way, alpha)
-        perm = None
-        if permutations > 0:
-            perm = permutation_f_test(y, codes, int(o.sum()), eff.C[:, o], n_permutations=permutations, seed=seed)
-        rows.append(RowExtras(es, rob, perm, sens))
+        rows_out.append(RowExtras(es, rob, permute(eff.C, r.source), sens))
 
     extras = []
     for c, t in zip(contrasts, tests):
@@ -196,13 +221,16 @@ def describe_inference(design, y, cell, cells: CellStats, fit: ModelFit, table, 
         is_oneway_effect = one_way and c.kind == "effect"
         rob = _robust_for(c, cells, is_oneway_effect, alpha)
         perm = None
-        if c.test == "F" and permutations > 0 and np.allclose(c.h, 0) and np.allclose(c.C.sum(axis=1), 0):
-            perm = permutation_f_test(y, codes, int(o.sum()), c.C[:, o], n_permutations=permutations, seed=seed)
+        if c.test == "F" and np.allclose(c.h, 0) and np.allclose(c.C.sum(axis=1), 0):
+            perm = permute(c.C, c.name)
         robust_ok = rob is not None and np.isfinite(rob.p)
         if policy == "always-robust" and robust_ok:
             choice, reason = "robust", "the plan makes the robust test confirmatory (always-robust)"
         elif policy == "robust-if-heterogeneous" and checks.heterogeneous and robust_ok:
             choice, reason = "robust", "the Brown–Forsythe test indicated unequal variances (robust-if-heterogeneous)"
+        elif policy == "robust-if-heterogeneous" and checks.brown_forsythe is None:
+            choice, reason = "classical", ("the Brown–Forsythe test was not available, so the classical test stays "
+                                           "confirmatory (robust-if-heterogeneous)")
         elif policy == "robust-if-heterogeneous":
             choice, reason = "classical", "the Brown–Forsythe test did not indicate unequal variances (robust-if-heterogeneous)"
         elif policy == "always-robust":
@@ -212,7 +240,14 @@ def describe_inference(design, y, cell, cells: CellStats, fit: ModelFit, table, 
         p = rob.p if choice == "robust" else t.p
         extras.append(HypothesisExtras(primary, sizes, rob, perm, choice, p, reason))
 
-    kw = R.kruskal_wallis(y, codes, int(o.sum())) if int(o.sum()) >= 2 else None
+    kw, kw_note = None, None
+    if rows is None:
+        kw_note = rows_unavailable
+    elif int(o.sum()) >= 2:
+        try:
+            kw = R.kruskal_wallis_ranked(rows.rank_sums(), cells.n)
+        except FitError as exc:
+            kw_note = f"not available: {exc}"
     welch = R.welch_anova(n_obs, mean_obs, ss_obs) if one_way else None
 
     families = []
@@ -222,8 +257,28 @@ def describe_inference(design, y, cell, cells: CellStats, fit: ModelFit, table, 
     if "all-pairs" in posthoc and posthoc_on == "cells" and np.all(cells.n > 1):
         gh = R.games_howell(cells.n, cells.mean, cells.ss, alpha=alpha)
 
-    sens = _outlier_sensitivity(design, y, cell, cells, checks, contrasts, alpha)
-    return Inference(tuple(rows), tuple(extras), checks, kw, welch, tuple(families), gh, sens, policy)
+    sens = _outlier_sensitivity(design, cells, flagged, contrasts, alpha)
+    return Inference(tuple(rows_out), tuple(extras), checks, kw, welch, tuple(families), gh, sens, policy,
+                     kw_note, perm_note)
+
+
+def _permutation_rows(rows, cells: CellStats, permutations: int, max_rows: int, unavailable: str):
+    """The row arrays the permutation F runs on, or None with the reason it does not run."""
+    if permutations <= 0:
+        return None, "not computed: the plan sets permutations = 0"
+    if rows is None:
+        return None, unavailable
+    n = cells.n_total
+    if n > max_rows:
+        return None, (
+            f"not computed by default: with {n:,} rows (more than {max_rows:,}) the F distribution is an "
+            f"accurate reference and {permutations:,} permutations would cost a great deal of time; to run it anyway, "
+            f"set permutation_max_rows = {n} (or more) under [analysis] in the plan"
+        )
+    arrays = rows.arrays()
+    if arrays is None:
+        return None, "not available: the rows are read from the data file by queries and are not held in memory"
+    return arrays, None
 
 
 def _posthoc_family(fam, design, cells, fit, alpha, on, control, seed):
@@ -263,17 +318,17 @@ def _control_index(labels, control, design, on) -> int:
     )
 
 
-def _outlier_sensitivity(design, y, cell, cells, checks, contrasts, alpha) -> OutlierSensitivity | None:
-    flagged = tuple(o.row for o in checks.outliers.outliers)
-    if not flagged:
+def _outlier_sensitivity(design, cells, flagged, contrasts, alpha) -> OutlierSensitivity | None:
+    """Planned tests on the cell table updated without the flagged rows (no pass over the rows)."""
+    if flagged is None or flagged.total == 0:
         return None
-    keep = np.ones(y.shape[0], bool)
-    keep[list(flagged)] = False
-    cs2 = describe_cells(y[keep], cell[keep], cells.k, cells.pivot, cells.pivot_exact)
+    removed = tuple(r for r, _, _ in flagged.rows)
+    cs2 = A.cells_without(cells, flagged)
     try:
         fit2 = fit_model(cs2, design.matrix)
     except FitError as exc:
-        return OutlierSensitivity(flagged, tuple((c.name, None, str(exc)) for c in contrasts if c.role == "planned"))
+        return OutlierSensitivity(removed, tuple((c.name, None, str(exc)) for c in contrasts if c.role == "planned"),
+                                  flagged.total)
     out = []
     for c in contrasts:
         if c.role != "planned":
@@ -283,4 +338,4 @@ def _outlier_sensitivity(design, y, cell, cells, checks, contrasts, alpha) -> Ou
             out.append((c.name, None, "removing the flagged rows empties a cell this hypothesis needs"))
             continue
         out.append((c.name, fit_contrast(fit2, c.weights, c.rhs, c.alternative, alpha, c.test), None))
-    return OutlierSensitivity(flagged, tuple(out))
+    return OutlierSensitivity(removed, tuple(out), flagged.total)

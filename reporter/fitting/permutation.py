@@ -19,22 +19,51 @@ from one ``np.add.reduceat`` over rows sorted by cell, with no per-permutation P
 random numbers come from numpy's SFC64 bit generator (Chris Doty-Humphrey's Small Fast Chaotic
 generator) seeded with ``seed``, which shuffled about a third faster than the default PCG64 in our
 benchmark. The stream does not depend on the block size.
+
+Cost. Each permutation costs a shuffle of the N rows, so a run costs O(m N). Two rules bound it:
+
+* sequential stopping (Besag & Clifford 1991, "Sequential Monte Carlo p-values", Biometrika 78,
+  301-304): the run stops as soon as ``stop_after`` = h permuted F reach the observed one, at
+  permutation l, with p = h / l; if fewer than h do in all m permutations, p = (b + 1)/(m + 1).
+  A large p is thus known after about h / p permutations, and the number used is reported;
+* above ``PERMUTATION_MAX_ROWS`` rows the report path does not run the test by default (see
+  ``benchmarks/bench_permutation_threshold.py`` for the measurement behind the value): there
+  the F reference distribution is accurate and the run would take minutes.
+
+Before a run estimated (from its first block) to exceed ``TIME_BUDGET`` seconds a line is
+passed to ``notify``; a progress bar (tqdm) is drawn on stderr for runs expected to take more
+than a second when ``progress`` is set and stderr is a terminal.
 """
 
 from __future__ import annotations
 
+import sys
+import time
 from dataclasses import dataclass
 
 import numpy as np
 
 from reporter.errors import FitError
+from reporter.intake.defaults import ANALYSIS_DEFAULTS
 from reporter.fitting.posthoc import _check_seed
 from reporter.fitting.robust import _cell_stats_from_rows, _reduce_rows, _rows
 
-__all__ = ["PermutationResult", "permutation_f_test"]
+__all__ = ["PERMUTATION_MAX_ROWS", "SEQUENTIAL_EXCEEDANCES", "TIME_BUDGET", "PermutationResult", "permutation_f_test"]
 
 _BLOCK_ELEMENTS = 1 << 16
 _MAX_BLOCK = 128
+
+# Rows above which the report path skips the permutation F by default (measured: see
+# benchmarks/bench_permutation_threshold.py).
+PERMUTATION_MAX_ROWS = int(ANALYSIS_DEFAULTS["permutation_max_rows"])
+# Besag & Clifford's h of the report path: stop once this many permuted F reach the observed F.
+# The relative Monte Carlo error of p = h / l is about 1 / sqrt(h), 14% for h = 50; a p of 0.05
+# or more is settled within about 1,000 permutations.
+SEQUENTIAL_EXCEEDANCES = 50
+# Seconds: a run estimated to take longer is announced on stderr before it goes on.
+TIME_BUDGET = 10.0
+# Seconds: a run expected to take longer shows a progress bar (when asked for and on a terminal).
+PROGRESS_AFTER = 1.0
 
 
 @dataclass(frozen=True)
@@ -56,16 +85,23 @@ class PermutationResult:
     n_extreme: int
     method: str
     seed: int
+    max_permutations: int = 0
+    stopped_early: bool = False
 
 
 @dataclass(frozen=True, eq=False)
 class _NullDistribution:
+    """The permuted F drawn (``null``; fewer than asked when the run stopped early) and the
+    number of them at or above the observed F (``n_extreme``)."""
+
     observed: float
     observed_by_sums: float
     null: np.ndarray
     df1: int
     df2: int
     method: str
+    n_extreme: int = 0
+    stopped: bool = False
 
 
 def _check_count(n_permutations) -> int:
@@ -82,7 +118,8 @@ def _check_count(n_permutations) -> int:
 
 
 def _null_distribution(
-    y, codes, k, C, n_permutations: int, seed: int, block: int | None = None
+    y, codes, k, C, n_permutations: int, seed: int, block: int | None = None, *,
+    stop_after: int | None = None, progress: bool = False, notify=None, label: str = ""
 ) -> _NullDistribution:
     y, codes, k = _rows(y, codes, k)
     n, mean, ss = _cell_stats_from_rows(y, codes, k)
@@ -163,6 +200,7 @@ def _null_distribution(
             return (ss_h / q) / (np.maximum(ss_w, 0.0) / df2)
 
     observed_by_sums = float(f_from_sums(np.add.reduceat(resid, starts)[:, None])[0])
+    cut = observed_by_sums - abs(observed_by_sums) * 100.0 * np.finfo(float).eps
 
     if block is None:
         block = int(min(_MAX_BLOCK, max(1, _BLOCK_ELEMENTS // max(big_n, 1))))
@@ -171,23 +209,63 @@ def _null_distribution(
     block = min(block, n_permutations)
     template = np.tile(resid, (block, 1))
     buffer = np.empty_like(template)
-    done = 0
-    while done < n_permutations:
-        size = min(block, n_permutations - done)
-        rows = buffer[:size]
-        np.copyto(rows, template[:size])
-        rng.permuted(rows, axis=1, out=rows)
-        sums = np.add.reduceat(rows, starts, axis=1)
-        null[done : done + size] = f_from_sums(sums.T)
-        done += size
+    done = extreme = 0
+    stopped = False
+    bar = None
+    started = time.perf_counter()
+    try:
+        while done < n_permutations:
+            size = min(block, n_permutations - done)
+            rows = buffer[:size]
+            np.copyto(rows, template[:size])
+            rng.permuted(rows, axis=1, out=rows)
+            sums = np.add.reduceat(rows, starts, axis=1)
+            f = f_from_sums(sums.T)
+            null[done : done + size] = f
+            hits = f >= cut
+            if stop_after is not None and extreme + int(hits.sum()) >= stop_after:
+                # the h-th exceedance: stop right after that permutation
+                at = int(np.flatnonzero(hits)[stop_after - extreme - 1])
+                done += at + 1
+                extreme = stop_after
+                stopped = done < n_permutations
+                break
+            extreme += int(hits.sum())
+            done += size
+            if done == size and done < n_permutations:
+                estimate = (time.perf_counter() - started) / size * n_permutations
+                bar = _announce(estimate, n_permutations, big_n, label, progress, notify)
+            if bar is not None:
+                bar.update(size)
+    finally:
+        if bar is not None:
+            bar.close()
     return _NullDistribution(
         observed=observed,
         observed_by_sums=observed_by_sums,
-        null=null,
+        null=null[:done],
         df1=q,
         df2=df2,
         method=method,
+        n_extreme=extreme,
+        stopped=stopped,
     )
+
+
+def _announce(estimate: float, m: int, big_n: int, label: str, progress: bool, notify):
+    """Say so before a long run; return a progress bar for one expected to take over a second."""
+    what = f"the permutation F test of {label}" if label else "the permutation F test"
+    if notify is not None and estimate > TIME_BUDGET:
+        notify(
+            f"{what} may take up to about {estimate:.0f} s ({m:,} permutations of {big_n:,} rows; it stops "
+            "early once the p value is clear). Lower 'permutations' under [analysis] in the plan to shorten it, "
+            "or set it to 0 to skip the test."
+        )
+    if progress and estimate > PROGRESS_AFTER and sys.stderr.isatty():
+        from tqdm import tqdm
+
+        return tqdm(total=m, desc=what, unit="perm", file=sys.stderr, leave=False, dynamic_ncols=True)
+    return None
 
 
 def permutation_f_test(
@@ -198,6 +276,10 @@ def permutation_f_test(
     *,
     n_permutations: int = 10_000,
     seed: int | None = None,
+    stop_after: int | None = None,
+    progress: bool = False,
+    notify=None,
+    label: str = "",
 ) -> PermutationResult:
     """Permutation p value of the F for C mu = 0 (default: all cell means equal).
 
@@ -213,21 +295,32 @@ def permutation_f_test(
     Applications in Genetics and Molecular Biology 9(1), article 39: this p is exact for a
     test that adds the observed arrangement to m random ones). The Monte Carlo standard error
     is sqrt(p (1 - p) / m). ``seed=None`` draws a seed and records it in the result.
+
+    With ``stop_after`` = h the run is sequential (Besag & Clifford 1991, Biometrika 78,
+    301-304): it stops at the permutation l where the h-th permuted F reaches the observed one,
+    with p = h / l (``stopped_early``; ``n_permutations`` = l, and ``mc_se`` uses l); if that
+    never happens within ``n_permutations`` the p above is reported. ``progress`` and ``notify``
+    are described in the module docstring; ``label`` names the test in those messages.
     """
     m = _check_count(n_permutations)
     seed = _check_seed(seed)
-    dist = _null_distribution(y, codes, k, C, m, seed)
-    cut = dist.observed_by_sums - abs(dist.observed_by_sums) * 100.0 * np.finfo(float).eps
-    b = int(np.count_nonzero(dist.null >= cut))
-    p = (b + 1.0) / (m + 1.0)
+    if stop_after is not None and (isinstance(stop_after, bool) or not isinstance(stop_after, (int, np.integer)) or stop_after < 1):
+        raise FitError(f"'stop_after' must be a positive whole number or None (got {stop_after!r}).")
+    dist = _null_distribution(y, codes, k, C, m, seed, stop_after=stop_after, progress=progress,
+                              notify=notify, label=label)
+    b = dist.n_extreme
+    used = int(dist.null.size)
+    p = b / used if dist.stopped else (b + 1.0) / (m + 1.0)
     return PermutationResult(
         statistic=dist.observed,
         df1=dist.df1,
         df2=dist.df2,
         p=p,
-        mc_se=float(np.sqrt(p * (1.0 - p) / m)),
-        n_permutations=m,
+        mc_se=float(np.sqrt(p * (1.0 - p) / used)),
+        n_permutations=used,
         n_extreme=b,
         method=dist.method,
         seed=seed,
+        max_permutations=m,
+        stopped_early=dist.stopped,
     )

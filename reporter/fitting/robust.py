@@ -18,6 +18,8 @@ import numpy as np
 
 from reporter.errors import FitError
 from reporter.fitting.distributions import chi2_sf, f_sf, t_cdf, t_isf, t_sf
+from reporter.intake.memory_rows import MemoryRows, average_ranks
+from reporter.intake.rows import RankSums
 from reporter.fitting.posthoc import Alternative, ComparisonFamily, _check_alpha, pairwise_comparison, two_sided_family
 
 __all__ = [
@@ -390,47 +392,39 @@ def games_howell(n, mean, ss, *, alpha: float = 0.05) -> ComparisonFamily:
 
 
 def _average_ranks(y: np.ndarray) -> np.ndarray:
-    """Ranks 1..N of ``y``, tied values sharing the mean of the ranks they occupy (mid-ranks).
-
-    Sorts once; a tie group occupying sorted positions s+1 .. s+t gets the rank s + (t + 1) / 2
-    (Kruskal & Wallis 1952). Equals ``scipy.stats.rankdata(y, method="average")``.
-    """
-    order = np.argsort(y, kind="stable")
-    ys = y[order]
-    starts_group = np.concatenate(([True], ys[1:] != ys[:-1]))
-    group = np.cumsum(starts_group) - 1
-    starts = np.flatnonzero(starts_group)
-    sizes = np.diff(np.append(starts, ys.size))
-    ranks = np.empty(ys.size)
-    ranks[order] = (starts + (sizes + 1) / 2.0)[group]
-    return ranks
+    """Ranks 1..N of ``y``, tied values sharing the mean of the ranks they occupy (mid-ranks);
+    see :func:`reporter.intake.memory_rows.average_ranks`."""
+    return average_ranks(y)[0]
 
 
 def kruskal_wallis(y, codes, k: int | None = None) -> KruskalWallisResult:
-    """Kruskal-Wallis rank test over the observed cells, corrected for ties.
+    """:func:`kruskal_wallis_ranked` on row arrays (mid-ranks from one sort of ``y``)."""
+    y, codes, k = _rows(y, codes, k)
+    return kruskal_wallis_ranked(MemoryRows(y, codes, k).rank_sums(), np.bincount(codes, minlength=k))
+
+
+def kruskal_wallis_ranked(ranks: RankSums, n) -> KruskalWallisResult:
+    """Kruskal-Wallis rank test over the observed cells, corrected for ties, from the per-cell
+    sums of mid-ranks and the tie term.
 
     With mid-ranks R, H = 12 / (N (N + 1)) sum_c R_c^2 / n_c - 3 (N + 1), divided by
     1 - sum (t^3 - t) / (N^3 - N) over tie groups of size t; p from chi-square with g - 1 df
-    (Kruskal & Wallis 1952, JASA 47, 583-621).
+    (Kruskal & Wallis 1952, JASA 47, 583-621). ``n`` gives the rows per cell.
     """
-    y, codes, k = _rows(y, codes, k)
-    n = np.bincount(codes, minlength=k)
+    n = np.asarray(n)
+    rank_sums = np.asarray(ranks.rank_sum, dtype=np.float64)
     g = int(np.count_nonzero(n))
-    big_n = y.size
+    big_n = int(ranks.n)
     if g < 2:
         raise FitError(
             f"Kruskal-Wallis compares at least 2 observed cells (got {g}); check the factor "
             "levels present in the data."
         )
-    ranks = _average_ranks(y)
-    rank_sums = np.bincount(codes, weights=ranks, minlength=k)
     obs = n > 0
     h = 12.0 / (big_n * (big_n + 1.0)) * float(np.sum(rank_sums[obs] ** 2 / n[obs])) - 3.0 * (
         big_n + 1.0
     )
-    _, tie_sizes = np.unique(y, return_counts=True)
-    t = tie_sizes.astype(np.float64)
-    correction = 1.0 - float(np.sum(t**3 - t)) / (big_n**3 - float(big_n))
+    correction = 1.0 - float(ranks.tie_term) / (big_n**3 - float(big_n))
     if correction <= 0.0:
         raise FitError(
             "Kruskal-Wallis needs at least two distinct values of 'y' (all values are equal)."

@@ -34,6 +34,8 @@ from typing import Any, Sequence
 import numpy as np
 
 from reporter.errors import DataError
+from reporter.intake.cells import CellStats
+from reporter.intake.rows import RowAccess
 from reporter.intake.plan import Plan, level_key
 
 _CTX = decimal.Context(prec=60, traps=[decimal.InvalidOperation])
@@ -59,6 +61,8 @@ class Dataset:
     (the header is line 1), the 1-based row number in a Parquet file or a DataFrame.
     ``excluded_levels`` holds the level indices of rows dropped for their outcome (-1 where
     unknown), so that missing outcomes can be counted by cell.
+    ``cells`` and ``row_access``, when a reader provides them, replace the cell table and the
+    row access that :func:`reporter.api.prepare` would otherwise build from ``y`` and ``levels``.
     """
 
     source: str
@@ -75,6 +79,11 @@ class Dataset:
     n_read: int
     exclusions: tuple[Exclusion, ...]
     dropped_outcome_levels: np.ndarray
+    # Optional, for sources that compute these themselves (an out-of-core reader, a summary
+    # table): the cell table (reporter.intake.cells.CellStats) and the row access
+    # (reporter.intake.rows.RowAccess). None means "build them from y and levels".
+    cells: CellStats | None = None
+    row_access: RowAccess | None = None
 
     @property
     def n(self) -> int:

@@ -30,6 +30,10 @@ ANALYSIS_DEFAULTS: dict[str, object] = {
     # Number of permutations of the permutation F test, and its random seed.
     "permutations": 10_000,
     "seed": 20261202,
+    # Rows above which the permutation F is skipped (the F distribution is then an accurate
+    # reference, and the permutations would take minutes); raise it to run the test anyway.
+    # Measured by benchmarks/bench_permutation_threshold.py.
+    "permutation_max_rows": 100_000,
 }
 
 DATA_DEFAULTS: dict[str, object] = {

@@ -78,6 +78,7 @@ class AnalysisSpec:
     unequal_variances: str = "classical"
     permutations: int = 10_000
     seed: int = 20261202
+    permutation_max_rows: int = 100_000
 
     @property
     def confidence(self) -> float:
@@ -479,6 +480,9 @@ def _read_analysis(doc, ck: _Checker, factors) -> AnalysisSpec:
     seed = t.get("seed", a["seed"])
     if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
         raise ck.fail("analysis.seed", f"must be a whole number ≥ 0 (got {_show(seed)}).", key="seed", **loc)
+    max_rows = t.get("permutation_max_rows", a["permutation_max_rows"])
+    if isinstance(max_rows, bool) or not isinstance(max_rows, int) or max_rows < 0:
+        raise ck.fail("analysis.permutation_max_rows", f"must be a whole number ≥ 0 of rows, above which the permutation F is skipped (got {_show(max_rows)}).", key="permutation_max_rows", **loc)
     return AnalysisSpec(
         alpha=float(alpha),
         parameterization=param,
@@ -490,6 +494,7 @@ def _read_analysis(doc, ck: _Checker, factors) -> AnalysisSpec:
         unequal_variances=uv,
         permutations=perms,
         seed=seed,
+        permutation_max_rows=max_rows,
     )
 
 

@@ -16,6 +16,7 @@ from __future__ import annotations
 from fractions import Fraction
 from typing import Sequence
 
+from reporter.fitting.permutation import SEQUENTIAL_EXCEEDANCES
 from reporter.narrative import numbers as N
 from reporter.narrative.document import (
     BulletList, Column, DefinitionList, Document, Figure, FigureSpec, Note, Paragraph, Section, Table, plain, runs_of,
@@ -89,6 +90,9 @@ def _words_list(items: Sequence[str]) -> str:
         return f"{items[0]} and {items[1]}"
     return ", ".join(items[:-1]) + f", and {items[-1]}"
 
+
+# Outlier rows listed in the report (results.json lists up to the scan's limit).
+OUTLIERS_SHOWN = 20
 
 _NUMBER_WORDS = ["no", "one", "two", "three", "four", "five", "six", "seven", "eight", "nine", "ten"]
 
@@ -323,27 +327,44 @@ class _Builder:
 
     def means_figure(self) -> Figure | None:
         d, a = self.design, self.a
-        y = self.prep.data.outcome_values()
-        cell = self.prep.cell
+        pivot = a.cells.pivot
         groups, means, lo, hi, points = [], [], [], [], []
         for c, s in zip(d.cells, a.summaries):
             groups.append(c.short)
             means.append(s.mean)
             lo.append(None if s.ci is None else s.ci[0])
             hi.append(None if s.ci is None else s.ci[1])
-            points.append(tuple(float(v) for v in y[cell == c.index]))
+            cp = None if a.points is None else a.points[c.index]
+            points.append(() if cp is None else tuple(v + pivot for v in cp.values))
         spec = FigureSpec("means", (
             ("groups", tuple(groups)), ("means", tuple(means)), ("ci_low", tuple(lo)), ("ci_high", tuple(hi)),
             ("points", tuple(points)), ("y_label", self.prep.data.outcome),
             ("ci_label", f"{N.format_confidence_level(self.level)} CI"),
         ))
-        alt = (f"Dot plot of {self.prep.data.outcome} for each of the {d.k} cells: every observation as a "
-               f"faint dot, the cell mean as a large marker with its {N.format_confidence_level(self.level)} "
-               "confidence interval. Means: " + "; ".join(
+        dots = self.points_phrase()
+        alt = (f"Dot plot of {self.prep.data.outcome} for each of the {d.k} cells: {dots['alt']}, the cell mean as a "
+               f"large marker with its {N.format_confidence_level(self.level)} confidence interval. Means: " + "; ".join(
                    f"{g} {_num(m)}" for g, m in zip(groups, means)) + ".")
         return Figure("fig-means", runs_of(
-            f"Observations (dots), cell means and {N.format_confidence_level(self.level)} confidence intervals "
-            f"of {self.prep.data.outcome}."), alt, spec)
+            f"{dots['caption']}, cell means and {N.format_confidence_level(self.level)} confidence intervals "
+            f"of {self.prep.data.outcome}.{dots['note']}"), alt, spec)
+
+    def points_phrase(self) -> dict[str, str]:
+        """How the figures' dots relate to the rows: every observation, or a quantile summary of
+        the larger cells."""
+        pts = self.a.points
+        if pts is None:
+            return {"alt": "no individual observations (the input holds cell summaries only)",
+                    "caption": "Cell means", "note": " Individual observations are not available."}
+        big = [p for p in pts if p.summarized]
+        if not big:
+            return {"alt": "every observation as a faint dot", "caption": "Observations (dots)", "note": ""}
+        m = len(big[0].values)
+        return {"alt": f"every observation as a faint dot in cells of up to {m} rows, and {m} evenly spaced "
+                       "quantiles of the values in larger cells",
+                "caption": "Observations (dots)",
+                "note": f" In cells of more than {m} rows the dots are {m} evenly spaced quantiles of the cell's "
+                        "values, not every observation."}
 
     def model_section(self) -> Section:
         d, a = self.design, self.a
@@ -748,30 +769,31 @@ class _Builder:
             name = "Brown–Forsythe (median-centred Levene)" if r.center == "median" else "Levene (mean-centred)"
             items.append((runs_of(name), runs_of(N.stat_f(r.statistic, r.df1, r.df2), ", ", N.stat_p(r.p))))
         sw = a.shapiro
-        if sw.skipped:
+        if sw.skipped and sw.reason.startswith("not available"):
+            items.append((runs_of("Shapiro–Wilk on residuals"), runs_of(sw.reason)))
+        elif sw.skipped:
             items.append((runs_of("Shapiro–Wilk on residuals"), runs_of(f"not computed ({sw.reason.replace('-', ' ')})")))
         else:
+            sample = (f" (a random sample of {N.format_count(sw.n)} of the {N.format_count(sw.n_available)} residuals, "
+                      f"seed {sw.seed}: the test is defined up to 5,000 values)" if sw.sampled else "")
             items.append((runs_of("Shapiro–Wilk on residuals"),
                           runs_of(N.symbol("W"), f" = {N.format_bounded(sw.statistic, 3)}, ", N.stat_p(sw.p),
-                                  ", ", N.stat_count(sw.n, "N"))))
-        outl = a.outliers.outliers
-        rows_file = self.prep.data.rows
-        if outl:
-            listed = "; ".join(f"row {int(rows_file[o.row])} ({self.design.cells[o.cell].short}, "
-                               f"studentized residual {_num(o.external)})" for o in outl)
-            items.append((runs_of("Outliers (|studentized residual| > 3)"), runs_of(listed)))
-        else:
-            items.append((runs_of("Outliers (|studentized residual| > 3)"), runs_of("none")))
+                                  ", ", N.stat_count(sw.n, "N"), sample)))
+        items.append((runs_of("Outliers (|studentized residual| > 3)"), runs_of(self.outlier_phrase(a))))
         blocks.append(DefinitionList(tuple(items)))
-        if a.heterogeneous:
+        if a.unavailable:
+            verdict = f"Residual checks, variance checks and the outlier screen are {a.unavailable}."
+        elif a.heterogeneous:
             verdict = ("The Brown–Forsythe test indicates unequal variances across cells; compare the classical and "
                        "robust results below.")
         else:
             verdict = ("The Brown–Forsythe test does not indicate unequal variances; with small cells such a test has "
                        "little power, so the robust results are shown beside the classical ones in any case.")
         blocks.append(Paragraph(runs_of(verdict)))
-        blocks.append(self.qq_figure())
-        blocks.append(self.residual_figure())
+        if a.qq is not None:
+            blocks.append(self.qq_figure())
+        if self.a.points is not None:
+            blocks.append(self.residual_figure())
         blocks.append(self.robust_table())
         other = self.distribution_free()
         if other:
@@ -782,19 +804,42 @@ class _Builder:
             blocks.append(fam)
         return Section("assumptions", "Checking the assumptions", tuple(blocks))
 
+    def outlier_phrase(self, a) -> str:
+        scan = a.outliers
+        if scan is None:
+            return a.unavailable or "not checked"
+        if not scan.outliers:
+            return "none"
+        shown = scan.outliers[:OUTLIERS_SHOWN]
+        listed = "; ".join(f"row {o.row} ({self.design.cells[o.cell].short}, studentized residual {_num(o.external)})"
+                           for o in shown)
+        if scan.total > len(shown):
+            listed = (f"{N.format_count(scan.total)} rows; the {len(shown)} largest: " + listed +
+                      f" (results.json lists up to {len(scan.outliers)})")
+        return listed
+
     def qq_figure(self) -> Figure:
         qq = self.inf.assumptions.qq
         spec = FigureSpec("qq", (("theoretical", tuple(qq.theoretical)), ("sample", tuple(qq.sample))))
+        note = ""
+        if qq.summarized:
+            note = (f" Of the {N.format_count(qq.n_residuals)} residuals, {N.format_count(len(qq.sample))} order "
+                    "statistics at evenly spaced ranks are drawn, the smallest and largest included.")
         return Figure("fig-qq", runs_of("Normal Q–Q plot of the standardized residuals; points near the line mean "
-                                        "the residuals are close to normal."),
-                      f"Normal quantile plot of {len(qq.sample)} standardized residuals against theoretical normal "
-                      "quantiles, with a reference line.", spec)
+                                        "the residuals are close to normal." + note),
+                      f"Normal quantile plot of {len(qq.sample)} standardized residuals"
+                      + (f" (quantiles of {qq.n_residuals})" if qq.summarized else "")
+                      + " against theoretical normal quantiles, with a reference line.", spec)
 
     def residual_figure(self) -> Figure:
+        a = self.a
         groups = tuple(c.short for c in self.design.cells)
-        spec = FigureSpec("residuals", (("groups", groups), ("residuals", self.inf.assumptions.residuals_by_cell)))
+        residuals = tuple(tuple(v - float(a.cells.offset_mean[i]) for v in p.values) if p.n else ()
+                          for i, p in enumerate(a.points))
+        spec = FigureSpec("residuals", (("groups", groups), ("residuals", residuals)))
+        dots = self.points_phrase()
         return Figure("fig-residuals", runs_of("Residuals by cell; similar spread across cells supports the "
-                                               "equal-variance assumption."),
+                                               "equal-variance assumption." + dots["note"]),
                       f"Strip plot of the residuals in each of the {len(groups)} cells around a line at zero.", spec)
 
     def robust_table(self) -> Table:
@@ -821,16 +866,26 @@ class _Builder:
         for h in self.a.hypotheses:
             if h.extras and h.extras.robust and h.extras.robust.note:
                 note.append(runs_of(f"{h.contrast.name}: robust test not available ({h.extras.robust.note})."))
-        if any(h.extras and h.extras.permutation for h in self.a.hypotheses):
-            perm = next(h.extras.permutation for h in self.a.hypotheses if h.extras and h.extras.permutation)
-            note.append(runs_of(f"Permutation p: {N.format_count(perm.n_permutations)} permutations (seed {perm.seed}), "
-                                "p = (b + 1)/(m + 1) (Phipson & Smyth, 2010); factorial effects permute residuals of the "
-                                "reduced model (Freedman & Lane, 1983)."))
+        perms = [(h.contrast.name, h.extras.permutation) for h in self.a.hypotheses if h.extras and h.extras.permutation]
+        if perms:
+            perm = perms[0][1]
+            used = "; ".join(f"{name}: {N.format_count(p.n_permutations)}" + (" (stopped early)" if p.stopped_early else "")
+                             for name, p in perms)
+            note.append(runs_of(f"Permutation p: up to {N.format_count(perm.max_permutations or perm.n_permutations)} "
+                                f"permutations (seed {perm.seed}), p = (b + 1)/(m + 1) (Phipson & Smyth, 2010); a run "
+                                f"stops once {SEQUENTIAL_EXCEEDANCES} permuted F reach the observed one, with p = "
+                                f"{SEQUENTIAL_EXCEEDANCES}/l after l permutations (Besag & Clifford, 1991). Permutations "
+                                f"used: {used}. Factorial effects permute residuals of the reduced model "
+                                "(Freedman & Lane, 1983)."))
+        elif self.inf.permutation_note:
+            note.append(runs_of(f"Permutation p: {self.inf.permutation_note}."))
         return Table("robust", runs_of("Classical and robust tests side by side"), cols, tuple(rows), notes=tuple(note))
 
     def distribution_free(self) -> Paragraph | None:
         kw, welch = self.inf.kruskal, self.inf.welch_oneway
         parts = []
+        if kw is None and self.inf.kruskal_note:
+            parts += [f"Kruskal–Wallis test across the cells: {self.inf.kruskal_note}. "]
         if welch is not None:
             parts += ["Welch's ANOVA across the cells: ", N.stat_f(welch.statistic, welch.df1, welch.df2), ", ",
                       N.stat_p(welch.p), ". "]
@@ -841,8 +896,10 @@ class _Builder:
 
     def outlier_table(self) -> Table:
         s = self.inf.outlier_sensitivity
-        rows_file = self.prep.data.rows
-        removed = ", ".join(str(int(rows_file[r])) for r in s.rows_removed)
+        shown = s.rows_removed[:OUTLIERS_SHOWN]
+        removed = "rows " + ", ".join(str(r) for r in shown)
+        if s.n_removed > len(shown):
+            removed = f"the {N.format_count(s.n_removed)} flagged rows (the first {len(shown)}: {removed[5:]}, …)"
         by_name = {h.contrast.name: h for h in self.a.hypotheses}
         rows = []
         for name, t, note in s.tests:
@@ -851,8 +908,10 @@ class _Builder:
             without = runs_of(note) if t is None else runs_of(self.test_stat(t), ", ", N.stat_p(t.p))
             rows.append((runs_of(name), with_, without))
         return Table("outlier-sensitivity", runs_of("Sensitivity: planned tests with and without the flagged rows"),
-                     (Column(runs_of("hypothesis")), Column(runs_of("all rows")), Column(runs_of(f"without rows {removed}"))),
-                     tuple(rows), notes=(runs_of("Reported for comparison only; the confirmatory results use all rows."),))
+                     (Column(runs_of("hypothesis")), Column(runs_of("all rows")), Column(runs_of(f"without {removed}"))),
+                     tuple(rows), notes=(runs_of("Reported for comparison only; the confirmatory results use all rows. "
+                                                 "The cell statistics without the flagged rows are updated from those "
+                                                 "rows' own sums."),))
 
     def posthoc_tables(self) -> list[Table]:
         out = []

@@ -60,7 +60,8 @@ def _perm(r) -> dict[str, Any] | None:
     if r is None:
         return None
     return {"method": r.method, "statistic": _num(r.statistic), "p": _num(r.p), "mc_se": _num(r.mc_se),
-            "n_permutations": r.n_permutations, "n_at_least_observed": r.n_extreme, "seed": r.seed}
+            "n_permutations": r.n_permutations, "max_permutations": r.max_permutations or r.n_permutations,
+            "stopped_early": r.stopped_early, "n_at_least_observed": r.n_extreme, "seed": r.seed}
 
 
 def _family(fam, on, res, labels) -> dict[str, Any]:
@@ -84,7 +85,6 @@ def _inference_dict(prep, analysis) -> dict[str, Any]:
     if inf is None:
         return {}
     a = inf.assumptions
-    rows = prep.data.rows
 
     def homog(r):
         return None if r is None else {"method": r.method, "center": r.center, "statistic": _num(r.statistic),
@@ -96,22 +96,30 @@ def _inference_dict(prep, analysis) -> dict[str, Any]:
             "brown_forsythe": homog(a.brown_forsythe),
             "levene": homog(a.levene),
             "unequal_variances_indicated": a.heterogeneous,
-            "shapiro_wilk": {"n": sw.n, "statistic": _num(sw.statistic), "p": _num(sw.p), "skipped": sw.skipped,
-                             **({"note": f"skipped: {sw.reason}"} if sw.skipped else {})},
-            "qq": {"theoretical": [_num(v) for v in a.qq.theoretical], "sample": [_num(v) for v in a.qq.sample]},
-            "outliers": {
+            "shapiro_wilk": _shapiro(sw),
+            "qq": None if a.qq is None else {
+                "theoretical": [_num(v) for v in a.qq.theoretical], "sample": [_num(v) for v in a.qq.sample],
+                "n_residuals": a.qq.n_residuals, "summarized": a.qq.summarized,
+                **({"note": f"{len(a.qq.sample)} order statistics at evenly spaced ranks of the "
+                            f"{a.qq.n_residuals} residuals"} if a.qq.summarized else {})},
+            "outliers": None if a.outliers is None else {
                 "threshold": a.outliers.threshold,
                 "rule": "externally studentized residual beyond ±threshold",
-                "rows": [{"row": int(rows[o.row]), "cell": analysis.design.cells[o.cell].as_dict(),
+                "total": a.outliers.total,
+                "listed": len(a.outliers.outliers),
+                "rows": [{"row": o.row, "cell": analysis.design.cells[o.cell].as_dict(),
                           "residual": _num(o.residual), "studentized": _num(o.external)} for o in a.outliers.outliers],
+                **({"note": f"the {len(a.outliers.outliers)} largest of {a.outliers.total} flagged rows are listed"}
+                   if a.outliers.total > len(a.outliers.outliers) else {}),
             },
-            "notes": list(a.notes),
+            "notes": list(a.notes) + ([a.unavailable] if a.unavailable else []),
         },
         "unequal_variances_policy": inf.policy,
         "robust": {
-            "kruskal_wallis": None if inf.kruskal is None else {
+            "kruskal_wallis": ({"note": inf.kruskal_note} if inf.kruskal_note else None) if inf.kruskal is None else {
                 "statistic": _num(inf.kruskal.statistic), "df": inf.kruskal.df, "p": _num(inf.kruskal.p),
                 "over": "cells"},
+            "permutation_note": inf.permutation_note,
             "welch_anova": None if inf.welch_oneway is None else {
                 "statistic": _num(inf.welch_oneway.statistic), "df": [_num(inf.welch_oneway.df1), _num(inf.welch_oneway.df2)],
                 "p": _num(inf.welch_oneway.p)},
@@ -123,11 +131,24 @@ def _inference_dict(prep, analysis) -> dict[str, Any]:
     if inf.outlier_sensitivity is not None:
         s = inf.outlier_sensitivity
         out["outlier_sensitivity"] = {
-            "rows_removed": [int(rows[r]) for r in s.rows_removed],
+            "rows_removed": list(s.rows_removed),
+            "n_removed": s.n_removed,
             "tests": [{"name": name, "statistic": None if t is None else _num(t.statistic),
                        "p": None if t is None else _num(t.p), **({"note": note} if note else {})}
                       for name, t, note in s.tests],
         }
+    return out
+
+
+def _shapiro(sw) -> dict[str, Any]:
+    out = {"n": sw.n, "n_available": sw.n_available, "statistic": _num(sw.statistic), "p": _num(sw.p),
+           "skipped": sw.skipped, "sampled": sw.sampled}
+    if sw.skipped:
+        out["note"] = sw.reason if sw.reason.startswith("not available") else f"skipped: {sw.reason}"
+    elif sw.sampled:
+        out["seed"] = sw.seed
+        out["note"] = (f"tested on a simple random sample of {sw.n} of the {sw.n_available} residuals (seed {sw.seed}): "
+                       "the test's p value approximation holds up to 5,000 values")
     return out
 
 
@@ -258,12 +279,13 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
             "posthoc_on": a.posthoc_on,
             "control": a.control,
             "permutations": a.permutations,
+            "permutation_max_rows": a.permutation_max_rows,
             "seed": a.seed,
         },
         "data": {
             "outcome": data.outcome,
             "n_read": data.n_read,
-            "n_analysed": data.n,
+            "n_analysed": analysis.cells.n_total,
             "exclusions": [
                 {"reason": e.reason, "count": e.count, "rows": list(e.rows), "detail": e.detail}
                 for e in data.exclusions

@@ -166,17 +166,28 @@ def test_shapiro_wilk_is_invariant_to_order_shift_and_scale():
     assert _royston_shapiro_wilk(3.0 * x + 7.0) == pytest.approx(base, rel=1e-12)
 
 
-@pytest.mark.parametrize(
-    ("size", "reason"),
-    [(2, "too-few-rows"), (5001, "too-many-rows")],
-    ids=["n=2", "n=5001"],
-)
-def test_shapiro_skipped_outside_its_range(size, reason):
-    """Outside 3 <= n <= 5000 (range of Royston's 1995 approximation) the test is skipped and says why."""
+def test_shapiro_skipped_below_its_range():
+    """Below n = 3 (range of Royston's 1995 approximation) the test is skipped and says why."""
+    res = shapiro_wilk(np.array([0.3, 1.2]), np.zeros(2, int))
+    assert res.skipped and res.reason == "too-few-rows" and res.p is None and res.n == 2
+
+
+def test_shapiro_above_5000_uses_a_seeded_sample():
+    """Above 5,000 residuals the test runs on a seeded simple random sample of 5,000 rows and says
+    so; W and p equal scipy.stats.shapiro on the same sampled residuals (reference library)."""
     rng = np.random.default_rng(5)
-    y = rng.normal(size=size)
-    res = shapiro_wilk(y, np.zeros(size, int))
-    assert res.skipped and res.reason == reason and res.p is None and res.n == size
+    size = 12_345
+    codes = rng.integers(0, 3, size)
+    y = rng.exponential(size=size) + codes
+    res = shapiro_wilk(y, codes, 3, seed=77)
+    assert res.sampled and not res.skipped and res.n == 5000 and res.n_available == size and res.seed == 77
+    idx = np.sort(np.random.default_rng(77).choice(size, size=5000, replace=False))
+    means = np.array([y[codes == c].mean() for c in range(3)])
+    ref = stats.shapiro((y - means[codes])[idx])
+    assert res.statistic == pytest.approx(ref.statistic, rel=1e-6)
+    assert res.p == pytest.approx(ref.pvalue, rel=1e-4, abs=1e-12)
+    assert shapiro_wilk(y, codes, 3, seed=77) == res
+    assert shapiro_wilk(y, codes, 3, seed=78).statistic != res.statistic
 
 
 def test_shapiro_skips_leverage_one_rows():
@@ -240,7 +251,7 @@ def test_qq_points_match_statsmodels_probplot():
     ref = sm.ProbPlot(internal, a=3 / 8)
     np.testing.assert_allclose(qq.theoretical, ref.theoretical_quantiles, rtol=1e-12)
     np.testing.assert_allclose(qq.sample, np.sort(internal), rtol=1e-9)
-    np.testing.assert_allclose(np.asarray(qq.sample), internal[list(qq.rows)], rtol=1e-12)
+    assert qq.n_residuals == y.size and not qq.summarized
 
 
 @pytest.mark.parametrize("func", [levene, brown_forsythe, shapiro_wilk], ids=["levene", "brown-forsythe", "shapiro"])

@@ -10,7 +10,7 @@ import pytest
 from scipy import stats
 
 from conftest import DATA_DIR
-from reporter.fitting.analysis import fit_analysis
+from reporter.fitting.analysis import fit_analysis_on_rows as fit_analysis
 from reporter.model.design import Factor, build_design
 from reporter.model.hypotheses import compile_effect, compile_statement
 

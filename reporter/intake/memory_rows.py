@@ -1,0 +1,160 @@
+"""Row access for rows held in memory as numpy arrays (see :mod:`reporter.intake.rows`).
+
+Two sorts are made, each once and only when first needed: the rows ordered by (cell, value),
+which answers medians, figure points and per-cell quantiles, and one global order of the
+values, which answers the mid-ranks. Every answer is then a linear pass over the rows, so each
+method costs at most O(N log N) time and O(N) extra memory.
+"""
+
+from __future__ import annotations
+
+from typing import Sequence
+
+import numpy as np
+
+from reporter.intake.cells import describe_cells
+from reporter.intake.rows import CellPoints, FlaggedRows, RankSums
+
+
+def _code_type(k: int):
+    return np.uint8 if k <= 255 else np.uint16 if k <= 65535 else np.int64
+
+
+def average_ranks(y: np.ndarray, order: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Mid-ranks 1..N of ``y`` and the sizes of the tie groups (in increasing value order).
+
+    A tie group occupying sorted positions s+1 .. s+t gets the rank s + (t + 1)/2 (Kruskal &
+    Wallis 1952, JASA 47, 583-621); equals ``scipy.stats.rankdata(y, method="average")``.
+    ``order`` may pass a stable argsort of ``y`` already made.
+    """
+    if order is None:
+        order = np.argsort(y, kind="stable")
+    ys = y[order]
+    starts_group = np.empty(ys.size, dtype=bool)
+    starts_group[:1] = True
+    np.not_equal(ys[1:], ys[:-1], out=starts_group[1:])
+    group = np.cumsum(starts_group) - 1
+    starts = np.flatnonzero(starts_group)
+    sizes = np.diff(np.append(starts, ys.size))
+    ranks = np.empty(ys.size)
+    ranks[order] = (starts + (sizes + 1) / 2.0)[group]
+    return ranks, sizes
+
+
+class MemoryRows:
+    """:class:`reporter.intake.rows.RowAccess` over numpy arrays.
+
+    ``y`` holds the values as offsets from the pivot, ``cell`` each row's design cell (0 .. k-1)
+    and ``row_numbers`` each row's number as a person finds it in the input (default 1..N).
+    The arrays are not copied; the caller must not change them.
+    """
+
+    kind = "memory"
+
+    def __init__(self, y: np.ndarray, cell: np.ndarray, k: int, row_numbers: np.ndarray | None = None):
+        self._y = np.asarray(y, dtype=np.float64)
+        self._cell = np.asarray(cell)
+        self.n = int(self._y.shape[0])
+        self.k = int(k)
+        if self._cell.shape != self._y.shape:
+            raise ValueError(f"cell codes ({self._cell.shape}) and values ({self._y.shape}) differ in shape")
+        self._rows = row_numbers
+        self._counts = np.bincount(self._cell, minlength=self.k).astype(np.int64) if self.n else np.zeros(self.k, np.int64)
+        self._ends = np.cumsum(self._counts)
+        self._starts = self._ends - self._counts
+        self._by_cell: tuple[np.ndarray, np.ndarray] | None = None
+        self._ranks: RankSums | None = None
+
+    # -----------------------------------------------------------------------------------------
+    # the two sorts
+
+    def _sorted_by_cell(self) -> tuple[np.ndarray, np.ndarray]:
+        """(values sorted by (cell, value), the cell of each) — made once."""
+        if self._by_cell is None:
+            codes = self._cell.astype(_code_type(self.k), copy=False)
+            order = np.lexsort((self._y, codes))
+            self._by_cell = (self._y[order], codes[order])
+        return self._by_cell
+
+    def _segment(self, c: int) -> np.ndarray:
+        ys, _ = self._sorted_by_cell()
+        return ys[self._starts[c] : self._ends[c]]
+
+    # -----------------------------------------------------------------------------------------
+    # RowAccess
+
+    def medians(self) -> np.ndarray:
+        ys, _ = self._sorted_by_cell()
+        n = self._counts
+        med = np.full(self.k, np.nan)
+        obs = n > 0
+        lo = self._starts[obs] + (n[obs] - 1) // 2
+        hi = self._starts[obs] + n[obs] // 2
+        med[obs] = (ys[lo] + ys[hi]) / 2.0
+        return med
+
+    def deviation_stats(self, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        centre = np.asarray(centre, dtype=np.float64)
+        ys, codes = self._sorted_by_cell()
+        z = np.abs(ys - centre[codes])
+        st = describe_cells(z, codes, self.k)
+        return st.n, st.offset_mean, st.ss
+
+    def rank_sums(self) -> RankSums:
+        if self._ranks is None:
+            ranks, sizes = average_ranks(self._y)
+            rank_sum = np.bincount(self._cell, weights=ranks, minlength=self.k)
+            t = sizes.astype(np.float64)
+            self._ranks = RankSums(rank_sum=rank_sum, tie_term=float(np.sum(t**3 - t)), n=self.n)
+        return self._ranks
+
+    def residual_quantiles(self, means: np.ndarray, scale: np.ndarray, probs: Sequence[float]) -> np.ndarray:
+        means = np.asarray(means, dtype=np.float64)
+        scale = np.asarray(scale, dtype=np.float64)
+        with np.errstate(invalid="ignore"):
+            usable = np.isfinite(scale) & (scale > 0)
+        keep = usable[self._cell]
+        r = (self._y[keep] - means[self._cell[keep]]) / scale[self._cell[keep]]
+        if r.size == 0:
+            return np.full(len(probs), np.nan)
+        return np.quantile(r, np.asarray(probs, dtype=np.float64))
+
+    def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
+        out = []
+        for c in range(self.k):
+            seg = self._segment(c)
+            n = int(seg.size)
+            if n <= max_points:
+                out.append(CellPoints(n, tuple(seg.tolist()), False))
+            else:
+                q = np.quantile(seg, np.linspace(0.0, 1.0, max_points))
+                out.append(CellPoints(n, tuple(q.tolist()), True))
+        return tuple(out)
+
+    def flagged(self, centre: np.ndarray, bound: np.ndarray, limit: int) -> FlaggedRows:
+        centre = np.asarray(centre, dtype=np.float64)
+        bound = np.asarray(bound, dtype=np.float64)
+        dev = self._y - centre[self._cell]
+        with np.errstate(invalid="ignore"):
+            finite = np.isfinite(bound)
+            mask = finite[self._cell] & (np.abs(dev) > np.where(finite, bound, np.inf)[self._cell])
+        idx = np.flatnonzero(mask)
+        fc = self._cell[idx]
+        fd = dev[idx]
+        count = np.bincount(fc, minlength=self.k).astype(np.int64)
+        sum_dev = np.bincount(fc, weights=fd, minlength=self.k)
+        sum_dev2 = np.bincount(fc, weights=fd * fd, minlength=self.k)
+        top = idx[np.argsort(-np.abs(fd), kind="stable")[: max(int(limit), 0)]]
+        numbers = self._rows[top] if self._rows is not None else top + 1
+        rows = tuple((int(r), int(self._cell[i]), float(self._y[i])) for r, i in zip(numbers, top))
+        return FlaggedRows(total=int(idx.size), rows=rows, count=count, sum_dev=sum_dev, sum_dev2=sum_dev2)
+
+    def sample(self, size: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
+        if self.n <= size:
+            return self._y.copy(), self._cell.copy()
+        rng = np.random.default_rng(seed)
+        idx = np.sort(rng.choice(self.n, size=int(size), replace=False))
+        return self._y[idx], self._cell[idx]
+
+    def arrays(self) -> tuple[np.ndarray, np.ndarray]:
+        return self._y, self._cell
