@@ -48,7 +48,7 @@ def oneway(project):
 def no_fit(monkeypatch):
     """Make fitting an internal error: a refusal that exits 2 was decided before the fit."""
 
-    def fit(prep):
+    def fit(prep, **_):
         raise AssertionError("the model was fitted before the output folder was checked")
 
     monkeypatch.setattr(run_module, "analyse", fit)
@@ -288,7 +288,7 @@ def test_completed_run_replaces_everything_and_leaves_no_temporary_file(oneway, 
 def test_stopped_before_writing_says_nothing_was_written(oneway, tmp_path, monkeypatch, capsys):
     """A signal during the fit stops the run with nothing written."""
 
-    def fit(prep):
+    def fit(prep, **_):
         os.kill(os.getpid(), signal.SIGTERM)
         raise AssertionError("the signal did not stop the run")
 
