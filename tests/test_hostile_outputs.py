@@ -440,6 +440,20 @@ def test_residual_figure_shows_hidden_characters(monkeypatch):
     assert "pe\\u202eat" in texts and "a\\u001bb" in texts
 
 
+def test_characters_the_font_lacks_are_written_as_code_points(monkeypatch):
+    """A level name the figure font cannot draw (CJK, a rocket) is drawn as its code points,
+    with no missing-glyph warning; letters the font has (Greek, accents) stay as they are."""
+    import warnings
+
+    spec = FigureSpec("residuals", (("groups", ("日本\nx", "\U0001F680", "β naïve")),
+                                    ("residuals", ((0.1, -0.1), (0.2, -0.2), (0.3, -0.3)))))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        texts = _svg_texts(spec, monkeypatch)
+    assert not [w for w in caught if "Glyph" in str(w.message)]
+    assert "\\u65e5\\u672c x" in texts and "\\U0001f680" in texts and "β naïve" in texts
+
+
 def test_report_with_maths_markup_in_names_is_written(project, tmp_path, capsys):
     """A plan whose level, factor and outcome names hold `$...$` gives a complete HTML report
     (the maths parser would stop at `$\\frac{1}{$`)."""

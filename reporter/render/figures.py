@@ -24,7 +24,9 @@ What :func:`draw_svg` returns, and why:
   parser and TeX are off for every text of the figure (``text.parse_math`` and
   ``text.usetex`` in the style, read by each label, tick label and legend entry when it is
   created), so ``$x$``, backslashes and braces are drawn as typed; control and bidirectional
-  characters are shown as ``\\uXXXX`` (:mod:`reporter.render.visible`);
+  characters are shown as ``\\uXXXX`` (:mod:`reporter.render.visible`), and so is a character
+  the font has no glyph for (say a CJK level name), which would otherwise be drawn as an empty
+  box with a warning on stderr (the report's text, caption and tables show it as written);
 * byte-identical output for the same spec in any process: fixed ``svg.hashsalt``, no metadata,
   seeded jitter, ids derived from the content.
 
@@ -84,6 +86,7 @@ suite recomputes all of it.
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import io
 import math
@@ -446,9 +449,14 @@ def _rng():
 
 
 def _plain(value):
-    """``value`` with hidden characters in every string inside it made visible."""
+    """``value`` with hidden characters, and characters the font cannot draw, in every string
+    inside it written as code points."""
     if isinstance(value, str):
-        return show_controls(value, keep="\t\n")
+        text = show_controls(value, keep="\t\n")
+        if text.isascii():
+            return text
+        glyphs = _glyphs()
+        return "".join(c if c.isascii() or ord(c) in glyphs else _code_point(c) for c in text)
     if isinstance(value, tuple):
         return tuple(_plain(v) for v in value)
     return value
@@ -497,6 +505,22 @@ def _groups_of_numbers(data: dict, key: str, k: int) -> tuple[tuple[float, ...],
         nums = _as_numbers(tuple(group), f"{key}[{i}]", len(group))
         out.append(tuple(v for v in nums if v is not None))
     return tuple(out)
+
+
+def _code_point(c: str) -> str:
+    cp = ord(c)
+    return f"\\u{cp:04x}" if cp <= 0xFFFF else f"\\U{cp:08x}"
+
+
+@functools.cache
+def _glyphs() -> frozenset[int]:
+    """The code points the figures' font (DejaVu Sans, shipped with matplotlib) can draw."""
+    from matplotlib import font_manager
+    from matplotlib.ft2font import FT2Font
+
+    path = font_manager.findfont(font_manager.FontProperties(family=_RC["font.family"]),
+                                 fallback_to_default=False)
+    return frozenset(FT2Font(path).get_charmap())
 
 
 # ---------------------------------------------------------------- the SVG text
