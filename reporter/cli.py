@@ -160,6 +160,8 @@ def _stop_on_signals():
 
 def _say(text: str, keep: str = "") -> None:
     """One message on stderr, hidden characters shown; a closed stderr is not an error."""
+    if sys.stderr is None:  # started with stderr closed
+        return
     with contextlib.suppress(OSError, ValueError):
         print(f"anova-report: {show_controls(text, keep)}", file=sys.stderr)
         sys.stderr.flush()
@@ -203,10 +205,10 @@ def _cmd_check(args) -> int:
 
 def _cmd_run(args) -> int:
     formats = _formats(args.format)
-    from reporter.api import prepare
-    from reporter.run import write_outputs
-
     try:
+        from reporter.api import prepare
+        from reporter.run import write_outputs
+
         prep = prepare(args.plan)
         written = write_outputs(prep, args.out, formats, quiet=args.quiet)
     except KeyboardInterrupt as exc:
