@@ -43,6 +43,26 @@ DATA_DEFAULTS: dict[str, object] = {
     "decimal": ".",
     # Text cells that mean "missing" in the outcome column (compared after trimming).
     "missing": ("", "NA", "NaN", "nan", "N/A", "."),
+    # What one row of the data file is: "rows" (one observation) or "cell-summaries" (one cell
+    # of the design: its factor levels, n, mean and a spread, as a GROUP BY query writes them).
+    "layout": "rows",
+}
+
+# Keys of [data] that only a cell-summary table reads (layout = "cell-summaries").
+SUMMARY_DEFAULTS: dict[str, object] = {
+    # Column holding each cell's number of observations (a whole number >= 1).
+    "n_column": "n",
+    # Column holding each cell's mean.
+    "mean_column": "mean",
+    # Which spread the table gives: "sd" (standard deviation, n - 1 denominator), "variance"
+    # (n - 1 denominator) or "se" (standard error of the mean, SD / sqrt(n)).
+    "spread": "sd",
+    # Column holding the spread; None means a column named like the spread ("sd", "variance", "se").
+    "spread_column": None,
+    # Decimals the means and spreads were rounded to; None means: read them off the text (CSV/TSV,
+    # or a Parquet DECIMAL column), or take Parquet floating-point values as unrounded.
+    "mean_decimals": None,
+    "spread_decimals": None,
 }
 
 PARAMETERIZATIONS = ("cell-means", "effects", "reference")
@@ -52,3 +72,6 @@ POSTHOC_FAMILIES = ("all-pairs", "versus-control", "any-contrast")
 UNEQUAL_VARIANCES = ("classical", "robust-if-heterogeneous", "always-robust")
 ROLES = ("planned", "exploratory")
 DATA_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet")
+LAYOUTS = ("rows", "cell-summaries")
+SPREADS = ("sd", "variance", "se")
+MAX_DECIMALS = 20

@@ -32,6 +32,23 @@ class DataSpec:
     delimiter: str | None = None
     decimal: str = "."
     missing: tuple[str, ...] = tuple(D.DATA_DEFAULTS["missing"])  # type: ignore[arg-type]
+    layout: str = "rows"
+    summary: "SummarySpec | None" = None  # set when layout = "cell-summaries"
+
+
+@dataclass(frozen=True)
+class SummarySpec:
+    """How a table of cell summaries (one row per cell) names its columns and its spread.
+
+    ``mean_decimals``/``spread_decimals`` state how the values were rounded, when the plan says so.
+    """
+
+    n_column: str = "n"
+    mean_column: str = "mean"
+    spread: str = "sd"
+    spread_column: str = "sd"
+    mean_decimals: int | None = None
+    spread_decimals: int | None = None
 
 
 @dataclass(frozen=True)
@@ -121,7 +138,7 @@ class Plan:
 # Reading and validation
 
 _TOP_KEYS = ("title", "summary", "data", "factors", "analysis", "hypotheses", "study")
-_DATA_KEYS = ("path", "outcome", "delimiter", "decimal", "missing")
+_DATA_KEYS = ("path", "outcome", "delimiter", "decimal", "missing", "layout", *D.SUMMARY_DEFAULTS)
 _FACTOR_KEYS = ("name", "levels", "exclude", "column")
 _HYP_KEYS = ("name", "means", "effect", "role", "description")
 _STUDY_KEYS = tuple(StudySpec.__dataclass_fields__)
@@ -341,13 +358,47 @@ def _read_data(doc, ck: _Checker, base_dir: Path) -> DataSpec:
             key="missing",
             **loc,
         )
+    layout = ck.choice(t, "layout", "data.layout", D.LAYOUTS, D.DATA_DEFAULTS["layout"], **loc)
     return DataSpec(
         path=path,
         outcome=outcome,
         delimiter=delimiter,
         decimal=decimal,
         missing=tuple(m.strip() for m in missing),
+        layout=layout,
+        summary=_read_summary_keys(t, ck, layout),
     )
+
+
+def _read_summary_keys(t, ck: _Checker, layout: str) -> SummarySpec | None:
+    """The [data] keys of a cell-summary table (refused in a table of rows, where they mean nothing)."""
+    loc = {"table": "data"}
+    given = [k for k in D.SUMMARY_DEFAULTS if k in t]
+    if layout != "cell-summaries":
+        if given:
+            raise ck.fail(f"data.{given[0]}", 'is only read from a table of cell summaries: add layout = '
+                          '"cell-summaries" to [data], or remove the key.', key=given[0], **loc)
+        return None
+    d = D.SUMMARY_DEFAULTS
+    spread = ck.choice(t, "spread", "data.spread", D.SPREADS, d["spread"], **loc)
+    names = {}
+    for key in ("n_column", "mean_column", "spread_column"):
+        default = spread if key == "spread_column" and d[key] is None else d[key]
+        names[key] = (ck.text(t, key, f"data.{key}", required=False, **loc) or default).strip()
+    seen: dict[str, str] = {}
+    for key, col in names.items():
+        if col in seen:
+            raise ck.fail(f"data.{key}", f'names the column "{col}", which data.{seen[col]} names too; '
+                          "n, mean and spread need three different columns.", key=key, **loc)
+        seen[col] = key
+    places = {}
+    for key in ("mean_decimals", "spread_decimals"):
+        v = t.get(key, d[key])
+        if v is not None and (isinstance(v, bool) or not isinstance(v, int) or not 0 <= v <= D.MAX_DECIMALS):
+            raise ck.fail(f"data.{key}", f"must be a whole number of decimals from 0 to {D.MAX_DECIMALS}, "
+                          f"such as 2 for values like 4.37 (got {_show(v)}).", key=key, **loc)
+        places[key] = v
+    return SummarySpec(spread=spread, **names, **places)
 
 
 def _read_factors(doc, ck: _Checker, data: DataSpec) -> tuple[FactorSpec, ...]:
@@ -410,6 +461,10 @@ def _read_factors(doc, ck: _Checker, data: DataSpec) -> tuple[FactorSpec, ...]:
         column = f.get("column")
         if column is not None and (not isinstance(column, str) or not column.strip()):
             raise ck.fail(p + "column", f"must be the name of a data column (got {_show(column)}).", key="column", **loc)
+        fcol = column.strip() if column else name
+        if data.summary is not None and fcol in (data.summary.n_column, data.summary.mean_column, data.summary.spread_column):
+            raise ck.fail(p + ("column" if column else "name"), f'reads the column "{fcol}", which [data] names as the '
+                          "n, mean or spread column; a factor needs its own column.", key="column" if column else "name", **loc)
         out.append(FactorSpec(name=name, levels=tuple(texts), exclude=ex, column=column.strip() if column else None))
     return tuple(out)
 
