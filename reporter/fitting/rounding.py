@@ -31,7 +31,8 @@ The extremes of SS_H over the box of means:
   descent has converged. It costs O(k·q) per sweep, at most 200 sweeps;
 * **maximum**: a convex function over a box peaks at a corner. With at most 14 free means (2^14
   corners) every corner is evaluated, which gives the exact maximum. With more, the end is the
-  guaranteed upper bound f₀ + 2·Σ|g_c|·u_c + R, R = min((Σ u_c‖b_c‖)², ‖B‖₂²·Σu_c²), from
+  guaranteed upper bound f₀ + 2·Σ|g_c|·u_c + R, R = min((Σ u_c‖b_c‖)², ‖B‖₂²·Σu_c²) (the
+  spectral term only while B has at most 400 rows or columns), from
   f(δ) = f₀ + 2·g'δ + ‖Bδ‖² with g = B'(Bμ₀ + b); the corner at sign(g)·u attains at least
   f₀ + 2·Σ|g_c|·u_c, so the bound overstates the true maximum by at most R, which is of second
   order in the rounding units.
@@ -60,6 +61,7 @@ from reporter.model.hypotheses import effect_weights
 
 MAX_CORNER_MEANS = 14
 MAX_SWEEPS = 200
+MAX_SPECTRAL = 400
 
 
 @dataclass(frozen=True)
@@ -223,8 +225,9 @@ def _maximum(B: np.ndarray, r0: np.ndarray, u: np.ndarray) -> tuple[float, bool]
         return float(np.einsum("ij,ij->j", R, R).max()), True
     g = Bf.T @ r0
     col = np.sqrt(np.einsum("ij,ij->j", Bf, Bf))
-    spectral = float(np.linalg.norm(Bf, 2)) ** 2 * float(uf @ uf)
-    rest = min(float(col @ uf) ** 2, spectral)
+    rest = float(col @ uf) ** 2
+    if min(Bf.shape) <= MAX_SPECTRAL:  # the spectral norm costs an SVD: only while it is small
+        rest = min(rest, float(np.linalg.norm(Bf, 2)) ** 2 * float(uf @ uf))
     return float(r0 @ r0) + 2.0 * float(np.abs(g) @ uf) + rest, False
 
 
