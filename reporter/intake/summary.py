@@ -166,6 +166,27 @@ def read_summary(plan: Plan) -> SummaryTable:
     return _build(plan, str(path), sha, suffix.lstrip("."), columns, n, word, kinds)
 
 
+def summary_from_frame(plan: Plan, frame: Any, name: str = "DataFrame") -> SummaryTable:
+    """A table of cell summaries given as a pandas DataFrame (or a mapping of column to sequence).
+
+    Numeric columns count as binary floating point (unrounded unless the plan states decimals);
+    text columns are read as exact decimals, like a text file. Rows are numbered from 1.
+    """
+    columns = [str(c) for c in frame.columns] if hasattr(frame, "columns") else list(frame)
+    _require_columns(plan, columns, name)
+    cols: dict[str, Any] = {}
+    kinds: dict[str, str] = {}
+    for c in _wanted(plan):
+        arr = np.asarray(frame[c].to_numpy() if hasattr(frame[c], "to_numpy") else frame[c])
+        kinds[c] = "binary" if arr.dtype.kind in "fiu" else "text"
+        cols[c] = arr.tolist()
+    n = len(cols[_wanted(plan)[0]])
+    if n == 0:
+        raise DataError(f"{name}: has no data rows.")
+    cols["__row__"] = list(range(1, n + 1))
+    return _build(plan, name, None, "dataframe", cols, n, "row", kinds)
+
+
 # ---------------------------------------------------------------------------------------------
 # Columns
 
