@@ -14,6 +14,7 @@ from reporter.intake.cells import CellStats, describe_cells
 from reporter.intake.data import Dataset, data_from_frame, load_data
 from reporter.intake.memory_rows import MemoryRows
 from reporter.intake.plan import Plan, load_plan
+from reporter.intake.summary import read_summary, summary_from_frame
 from reporter.intake.rows import RowAccess
 from reporter.model.design import Design, design_from_plan
 from reporter.model.hypotheses import Contrast, compile_hypotheses
@@ -48,7 +49,10 @@ def prepare(plan: Plan | str | Path, data: Any = None) -> Prepared:
     """
     if not isinstance(plan, Plan):
         plan = load_plan(plan)
-    dataset = load_data(plan) if data is None else data_from_frame(plan, data)
+    if plan.data.layout == "cell-summaries":
+        dataset = read_summary(plan) if data is None else summary_from_frame(plan, data)
+    else:
+        dataset = load_data(plan) if data is None else data_from_frame(plan, data)
     n_rows = dataset.cells.n_total if dataset.cells is not None else dataset.n
     if n_rows == 0:
         raise DataError(

@@ -84,10 +84,14 @@ class Dataset:
     # (reporter.intake.rows.RowAccess). None means "build them from y and levels".
     cells: CellStats | None = None
     row_access: RowAccess | None = None
+    # Set when the input is a table of cell summaries (reporter.intake.summary.SummaryInput):
+    # how it was read (spread, conversion, rounding); there are no rows then.
+    summary: Any = None
 
     @property
     def n(self) -> int:
-        return int(self.y.shape[0])
+        """Observations analysed (from the cell table when a reader provides one)."""
+        return self.cells.n_total if self.cells is not None else int(self.y.shape[0])
 
     def outcome_values(self) -> np.ndarray:
         """The outcome on its original scale (float64)."""

@@ -46,7 +46,7 @@ import numpy as np
 
 from reporter.errors import DataError
 from reporter.intake.cells import CellStats
-from reporter.intake.data import Exclusion, _match_levels, _parse_text
+from reporter.intake.data import Dataset, Exclusion, _match_levels, _parse_text
 from reporter.intake.plan import Plan
 
 _CTX = decimal.Context(prec=80, traps=[decimal.InvalidOperation])
@@ -99,23 +99,6 @@ class SummaryInput:
         return self.mean_rounding.rounded or self.spread_rounding.rounded
 
 
-@dataclass(frozen=True)
-class SummaryTable:
-    """A read and checked cell-summary table: the cell statistics and how they were read."""
-
-    source: str
-    sha256: str | None
-    format: str
-    outcome: str
-    factor_names: tuple[str, ...]
-    cells: CellStats
-    info: SummaryInput
-    pivot_text: str
-    exact_decimal: bool
-    n_read: int
-    exclusions: tuple[Exclusion, ...]
-
-
 def conversion_text(spread: str) -> str:
     """The conversion of a spread to the centred sum of squares S, in words and symbols."""
     if spread == "sd":
@@ -125,7 +108,7 @@ def conversion_text(spread: str) -> str:
     return "each cell's SD is SE·√n, so its sum of squared deviations is S = (n − 1)·n·SE²"
 
 
-def read_summary(plan: Plan) -> SummaryTable:
+def read_summary(plan: Plan) -> Dataset:
     """Read the cell-summary table named by the plan and check it against the plan's cells."""
     spec = plan.data.summary
     if spec is None:
@@ -166,7 +149,7 @@ def read_summary(plan: Plan) -> SummaryTable:
     return _build(plan, str(path), sha, suffix.lstrip("."), columns, n, word, kinds)
 
 
-def summary_from_frame(plan: Plan, frame: Any, name: str = "DataFrame") -> SummaryTable:
+def summary_from_frame(plan: Plan, frame: Any, name: str = "DataFrame") -> Dataset:
     """A table of cell summaries given as a pandas DataFrame (or a mapping of column to sequence).
 
     Numeric columns count as binary floating point (unrounded unless the plan states decimals);
@@ -263,7 +246,7 @@ class _Cell:
         self.n, self.mean, self.spread = n, mean, spread
 
 
-def _build(plan: Plan, source: str, sha, fmt: str, cols, n_rows: int, word: str, kinds) -> SummaryTable:
+def _build(plan: Plan, source: str, sha, fmt: str, cols, n_rows: int, word: str, kinds) -> Dataset:
     spec = plan.data.summary
     rows = np.asarray(cols["__row__"], dtype=np.int64)
 
@@ -418,18 +401,28 @@ def _build(plan: Plan, source: str, sha, fmt: str, cols, n_rows: int, word: str,
         listed = "; ".join(f'"{e}"' for f in plan.factors for e in f.exclude)
         exclusions = (Exclusion(reason="cell of a level excluded by the plan", count=int(idx.size),
                                 rows=tuple(int(rows[i]) for i in idx[:20]), detail=f"excluded: {listed}"),)
-    return SummaryTable(
+    empty = np.empty(0)
+    empty.setflags(write=False)
+    levels = np.empty((0, len(plan.factors)), dtype=np.int64)
+    levels.setflags(write=False)
+    return Dataset(
         source=source,
         sha256=sha,
         format=fmt,
         outcome=plan.data.outcome,
         factor_names=tuple(f.name for f in plan.factors),
-        cells=cells,
-        info=info,
+        y=empty,
+        pivot=float(pivot_val),
         pivot_text=pivot_text,
         exact_decimal=exact,
+        levels=levels,
+        rows=np.empty(0, dtype=np.int64),
         n_read=n_rows,
         exclusions=exclusions,
+        dropped_outcome_levels=levels,
+        cells=cells,
+        row_access=None,
+        summary=info,
     )
 
 

@@ -47,9 +47,9 @@ def test_sd_table_gives_cell_statistics(project):
                                       float(Fraction(115, 10) - Fraction(101, 10)), 0.0]
     assert c.ss.tolist() == [float(4 * Fraction(12, 10) ** 2), float(3 * Fraction(87, 100) ** 2),
                              float(2 * Fraction(5, 10) ** 2)]
-    assert t.info.rows.tolist() == [3, 4, 2]
-    assert t.info.mean_rounding.decimals == 2 and t.info.mean_rounding.half_unit == 0.005
-    assert t.info.spread_rounding.decimals == 2 and t.info.spread_rounding.source == "text"
+    assert t.summary.rows.tolist() == [3, 4, 2]
+    assert t.summary.mean_rounding.decimals == 2 and t.summary.mean_rounding.half_unit == 0.005
+    assert t.summary.spread_rounding.decimals == 2 and t.summary.spread_rounding.source == "text"
 
 
 @pytest.mark.parametrize(
@@ -66,7 +66,7 @@ def test_variance_and_se_convert_to_the_same_ss(project, spread, values):
                    zip([("peat", 5, "12.34"), ("coir", 4, "11.5"), ("bark", 3, "10.10")], values))
     t = _read(project, f"medium,n,mean,{spread}\n" + rows, extra=f'spread = "{spread}"')
     np.testing.assert_allclose(t.cells.ss, sd, rtol=1e-15)
-    assert ("SE·√n" in t.info.conversion) == (spread == "se")
+    assert ("SE·√n" in t.summary.conversion) == (spread == "se")
 
 
 def test_single_observation_cell_has_no_spread(project):
@@ -81,8 +81,8 @@ def test_column_names_and_stated_decimals_from_the_plan(project):
     t = _read(project, table, extra='n_column = "count"\nmean_column = "avg_h"\nspread_column = "sd_h"\n'
                                      "mean_decimals = 3\nspread_decimals = 1")
     assert t.cells.n.tolist() == [5, 4, 3]
-    assert t.info.mean_rounding.decimals == 3 and t.info.mean_rounding.source == "plan"
-    assert t.info.spread_rounding.half_unit == 0.05
+    assert t.summary.mean_rounding.decimals == 3 and t.summary.mean_rounding.source == "plan"
+    assert t.summary.spread_rounding.half_unit == 0.05
 
 
 def test_parquet_floats_are_unrounded_and_decimals_types_are_read(project, tmp_path):
@@ -95,14 +95,14 @@ def test_parquet_floats_are_unrounded_and_decimals_types_are_read(project, tmp_p
                              "mean": [12.34, 11.5, 10.1], "sd": [1.2, 0.87, 0.5]}), tmp_path / "f.parquet")
     plan = load_plan(project(PLAN.format(extra="").replace("cells.csv", "f.parquet")))
     t = read_summary(plan)
-    assert not t.info.rounded and t.info.mean_rounding.source == "binary"
+    assert not t.summary.rounded and t.summary.mean_rounding.source == "binary"
     np.testing.assert_allclose(t.cells.ss, _read(project).cells.ss, rtol=1e-15)
     dec = pa.decimal128(6, 3)
     pq.write_table(pa.table({"medium": ["peat", "coir", "bark"], "n": [5, 4, 3],
                              "mean": pa.array([Decimal("12.340"), Decimal("11.500"), Decimal("10.100")], dec),
                              "sd": [1.2, 0.87, 0.5]}), tmp_path / "f.parquet")
     t = read_summary(plan)
-    assert t.exact_decimal and t.info.mean_rounding.decimals == 3 and t.info.mean_rounding.source == "decimal type"
+    assert t.exact_decimal and t.summary.mean_rounding.decimals == 3 and t.summary.mean_rounding.source == "decimal type"
 
 
 def test_excluded_level_drops_its_cell_and_counts_it(project):
