@@ -26,7 +26,7 @@ from pathlib import Path
 from typing import Callable
 
 from reporter.errors import OptionError, RenderError
-from reporter.fitting.analysis import Analysis, fit_analysis
+from reporter.fitting.analysis import Analysis, fit_analysis, with_rounding_bounds
 from reporter.provenance import collect_provenance
 
 FILE_NAMES = {"json": "results.json", "html": "report.html", "pdf": "report.pdf", "md": "report.md"}
@@ -43,7 +43,7 @@ def analyse(prep, *, quiet: bool = False) -> Analysis:
     """Fit everything for a prepared plan; unless ``quiet``, long steps say so on stderr (and
     show progress when stderr is a terminal)."""
     a = prep.plan.analysis
-    return fit_analysis(
+    analysis = fit_analysis(
         prep.design,
         prep.cells,
         prep.rows,
@@ -61,6 +61,7 @@ def analyse(prep, *, quiet: bool = False) -> Analysis:
         progress=not quiet,
         notify=None if quiet else _notify,
     )
+    return with_rounding_bounds(analysis, prep.data.summary)
 
 
 def _notify(message: str) -> None:

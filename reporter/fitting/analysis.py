@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from fractions import Fraction
 from typing import Callable, Sequence
 
@@ -18,6 +18,7 @@ from reporter.intake.memory_rows import MemoryRows
 from reporter.intake.rows import CellPoints, RowAccess
 from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model
 from reporter.fitting.multiplicity import adjust_p
+from reporter.fitting.rounding import RoundingBounds, bound_rounding
 from reporter.model.design import Design
 from reporter.model.hypotheses import Contrast
 
@@ -86,6 +87,9 @@ class Analysis:
     # Per cell, the values to draw (offsets from the pivot): every value up to CELL_POINTS per
     # cell, else CELL_POINTS evenly spaced quantiles; None without row access.
     points: tuple[CellPoints, ...] | None = None
+    # How far the tests could move when the input's cell summaries were rounded
+    # (reporter.fitting.rounding.RoundingBounds); None for rows or unrounded summaries.
+    rounding: "RoundingBounds | None" = None
 
 
 def describe_cell_summaries(cells: CellStats, fit: ModelFit, alpha: float) -> tuple[CellSummary, ...]:
@@ -203,6 +207,18 @@ def fit_analysis(
         inference=inf,
         points=None if rows is None else rows.cell_points(CELL_POINTS),
     )
+
+
+def with_rounding_bounds(analysis: Analysis, summary) -> Analysis:
+    """The analysis with bounds on every F, t and p over the rounding intervals of the cell
+    summaries it came from (``summary``: :class:`reporter.intake.summary.SummaryInput`), when they
+    were rounded; unchanged otherwise."""
+    if summary is None or not summary.rounded:
+        return analysis
+    bounds = bound_rounding(analysis.design, analysis.cells, summary.spread_values, summary.spread,
+                            summary.mean_rounding.half_unit, summary.spread_rounding.half_unit, analysis.anova,
+                            [h.contrast for h in analysis.hypotheses], [h.test for h in analysis.hypotheses])
+    return replace(analysis, rounding=bounds)
 
 
 def fit_analysis_on_rows(design: Design, y, cell, contrasts: Sequence[Contrast], *, pivot: float = 0.0,

@@ -99,6 +99,19 @@ class SummaryInput:
         return self.mean_rounding.rounded or self.spread_rounding.rounded
 
 
+# The steps a table of cell summaries cannot feed, each with the reason (what it needs of the rows).
+ROW_LEVEL_STEPS: tuple[tuple[str, str], ...] = (
+    ("residual diagnostics", "the residual plot and the studentized residuals need each observation's residual"),
+    ("Q–Q plot", "its points are the ordered residuals of the observations"),
+    ("Shapiro–Wilk", "the normality test orders the observations' residuals"),
+    ("Levene and Brown–Forsythe", "these variance tests need each observation's distance from its cell's mean "
+                                  "or median"),
+    ("rank tests", "the Kruskal–Wallis test ranks all observations together"),
+    ("permutation F", "it reshuffles the observations among the cells"),
+    ("outliers", "the outlier screen and its sensitivity rerun look at single observations"),
+)
+
+
 def conversion_text(spread: str) -> str:
     """The conversion of a spread to the centred sum of squares S, in words and symbols."""
     if spread == "sd":

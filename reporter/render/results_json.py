@@ -12,6 +12,8 @@ from fractions import Fraction
 from importlib import resources
 from typing import Any
 
+from reporter.intake.summary import ROW_LEVEL_STEPS
+
 SCHEMA_ID = "anova-report/results/1"
 
 
@@ -152,6 +154,42 @@ def _shapiro(sw) -> dict[str, Any]:
     return out
 
 
+def _summary_dict(info, bounds) -> dict[str, Any]:
+    """How a table of cell summaries was read, what it cannot give, and the rounding bounds."""
+
+    def rounding(r):
+        return {"column": r.column, "decimals": r.decimals, "half_unit": r.half_unit, "source": r.source,
+                "rounded": r.rounded}
+
+    def ends(lo, hi):
+        return [_num(lo), _num(hi)]
+
+    out = {
+        "spread": info.spread,
+        "columns": {"n": info.n_column, "mean": info.mean_column, "spread": info.spread_column},
+        "conversion": info.conversion,
+        "rounding": {"mean": rounding(info.mean_rounding), "spread": rounding(info.spread_rounding)},
+        "not_computed": [{"step": step, "reason": why} for step, why in ROW_LEVEL_STEPS],
+        "rounding_bounds": None,
+    }
+    if bounds is not None:
+        note = ("an upper end of null has no bound: the spreads' intervals reach 0 in every cell"
+                if any(x.high == math.inf for x in (*bounds.anova, *bounds.hypotheses)) else None)
+        out["rounding_bounds"] = {
+            "mean_half_unit": bounds.mean_half_unit,
+            "spread_half_unit": bounds.spread_half_unit,
+            "ss_within": ends(*bounds.ss_within),
+            "guarantee": "every value the statistic and its p can take for data whose rounded summaries are the "
+                         "ones given lies within [low, high]; exact: both ends are attained by such data",
+            "anova": [{"source": x.name, "F": ends(x.low, x.high), "p": ends(x.p_low, x.p_high), "exact": x.exact}
+                      for x in bounds.anova],
+            "hypotheses": [{"name": x.name, "test": x.test, "statistic": ends(x.low, x.high),
+                            "p": ends(x.p_low, x.p_high), "exact": x.exact} for x in bounds.hypotheses],
+            **({"note": note} if note else {}),
+        }
+    return out
+
+
 def results_dict(prep, analysis, provenance) -> dict[str, Any]:
     """The results document as plain Python values, ready for ``json.dumps``."""
     plan, data, design = prep.plan, prep.data, analysis.design
@@ -286,6 +324,7 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
             "outcome": data.outcome,
             "n_read": data.n_read,
             "n_analysed": analysis.cells.n_total,
+            "layout": plan.data.layout,
             "exclusions": [
                 {"reason": e.reason, "count": e.count, "rows": list(e.rows), "detail": e.detail}
                 for e in data.exclusions
@@ -312,6 +351,8 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
         "hypotheses": hyps,
         "notes": notes,
     }
+    if data.summary is not None:
+        doc["data"]["summary"] = _summary_dict(data.summary, analysis.rounding)
     doc.update(_inference_dict(prep, analysis))
     return doc
 
