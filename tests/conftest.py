@@ -83,3 +83,33 @@ def pytest_terminal_summary(terminalreporter):
     terminalreporter.write_line(f"{'dataset':<9}" + "".join(f"{k:>13}" for k in keys))
     for name, scores in table.items():
         terminalreporter.write_line(f"{name:<9}" + "".join(f"{scores[k]:>13.1f}" for k in keys))
+
+
+def nist_anova(name: str):
+    """Certified values and data rows (group, value as written) of one NIST StRD ANOVA .dat file
+    (National Institute of Standards and Technology, Statistical Reference Datasets; tests/data/nist)."""
+    import math
+    import re
+
+    text = (DATA_DIR / "nist" / f"{name}.dat").read_text()
+    cert = {}
+    m = re.search(r"^Between \w+\s+(\d+)\s+(\S+)\s+(\S+)\s+(\S+)", text, re.M)
+    cert["df_between"], cert["ss_between"], cert["F"] = int(m[1]), float(m[2]), float(m[4])
+    m = re.search(r"^Within \w+\s+(\d+)\s+(\S+)\s+(\S+)", text, re.M)
+    cert["df_within"], cert["ss_within"] = int(m[1]), float(m[2])
+    cert["r_squared"] = float(re.search(r"Certified R-Squared\s+(\S+)", text)[1])
+    cert["residual_sd"] = float(re.search(r"Standard Deviation\s+(\S+)", text)[1])
+    first, last = map(int, re.search(r"Data\s+\(lines (\d+) to (\d+)\)", text).groups())
+    rows = [tuple(line.split()) for line in text.splitlines()[first - 1 : last] if line.strip()]
+    assert all(math.isfinite(float(y)) for _, y in rows)
+    return cert, rows
+
+
+def lre(value: float, certified: float) -> float:
+    """Log relative error, capped at the 15 certified digits (McCullough 1998, The American
+    Statistician 52(4), 358-366)."""
+    import math
+
+    if value == certified:
+        return 15.0
+    return min(15.0, -math.log10(abs(value - certified) / abs(certified)))

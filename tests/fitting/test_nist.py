@@ -7,42 +7,25 @@ assertion leaves one digit of margin for platform differences.
 
 from __future__ import annotations
 
-import math
-import re
 from pathlib import Path
 
 import pytest
 
+from conftest import lre, nist_anova
 from reporter.api import prepare
 from reporter.intake.plan import plan_from_dict
 from reporter.run import analyse
 
-NIST = Path(__file__).resolve().parents[1] / "data" / "nist"
 NAMES = ["SiRstv", "SmLs01", "SmLs02", "SmLs03", "AtmWtAg", "SmLs04", "SmLs05", "SmLs06", "SmLs07", "SmLs08", "SmLs09"]
 LRE_TABLE: dict[str, dict[str, float]] = {}
 
 
 def read_nist(name: str, folder: Path):
     """Certified values and the data of one .dat file, the data written out as CSV text."""
-    text = (NIST / f"{name}.dat").read_text()
-    cert = {}
-    m = re.search(r"^Between \w+\s+(\d+)\s+(\S+)\s+(\S+)\s+(\S+)", text, re.M)
-    cert["df_between"], cert["ss_between"], cert["F"] = int(m[1]), float(m[2]), float(m[4])
-    m = re.search(r"^Within \w+\s+(\d+)\s+(\S+)\s+(\S+)", text, re.M)
-    cert["df_within"], cert["ss_within"] = int(m[1]), float(m[2])
-    cert["r_squared"] = float(re.search(r"Certified R-Squared\s+(\S+)", text)[1])
-    cert["residual_sd"] = float(re.search(r"Standard Deviation\s+(\S+)", text)[1])
-    first, last = map(int, re.search(r"Data\s+\(lines (\d+) to (\d+)\)", text).groups())
-    rows = [line.split() for line in text.splitlines()[first - 1 : last] if line.strip()]
+    cert, rows = nist_anova(name)
     (folder / "data.csv").write_text("group,y\n" + "".join(f"{g},{y}\n" for g, y in rows))
     levels = sorted({g for g, _ in rows}, key=int)
     return cert, levels
-
-
-def lre(value: float, certified: float) -> float:
-    if value == certified:
-        return 15.0
-    return min(15.0, -math.log10(abs(value - certified) / abs(certified)))
 
 
 @pytest.mark.parametrize("name", NAMES)

@@ -21,6 +21,7 @@ import duckdb
 import numpy as np
 import pytest
 
+from conftest import lre, nist_anova
 from reporter.api import prepare
 from reporter.intake.plan import plan_from_dict
 from reporter.provenance import collect_provenance
@@ -28,7 +29,6 @@ from reporter.render.results_json import load_schema, results_dict
 from reporter.run import analyse, render_outputs
 
 ROOT = Path(__file__).resolve().parents[2]
-NIST = ROOT / "tests" / "data" / "nist"
 REL = 1e-12
 
 
@@ -217,26 +217,6 @@ def test_bad_table_exits_2_with_one_line_and_no_output(tmp_path):
 # NIST StRD through summaries
 
 
-def _nist(name: str):
-    text = (NIST / f"{name}.dat").read_text()
-    cert = {}
-    m = re.search(r"^Between \w+\s+(\d+)\s+(\S+)\s+(\S+)\s+(\S+)", text, re.M)
-    cert["ss_between"], cert["F"] = float(m[2]), float(m[4])
-    m = re.search(r"^Within \w+\s+(\d+)\s+(\S+)\s+(\S+)", text, re.M)
-    cert["ss_within"] = float(m[2])
-    cert["r_squared"] = float(re.search(r"Certified R-Squared\s+(\S+)", text)[1])
-    cert["residual_sd"] = float(re.search(r"Standard Deviation\s+(\S+)", text)[1])
-    first, last = map(int, re.search(r"Data\s+\(lines (\d+) to (\d+)\)", text).groups())
-    rows = [line.split() for line in text.splitlines()[first - 1 : last] if line.strip()]
-    return cert, rows
-
-
-def _lre(value: float, certified: float) -> float:
-    if value == certified:
-        return 15.0
-    return min(15.0, -math.log10(abs(value - certified) / abs(certified)))
-
-
 def _exact_summaries(rows) -> str:
     """Per group: n, the mean and the SD computed in exact rational arithmetic (fractions.Fraction)
     from the certified data values as written, each written with 30 significant digits (the SD as
@@ -268,7 +248,7 @@ def test_nist_through_summaries(name, tmp_path):
     """NIST StRD ANOVA certified values through a summary table built from the certified data (exact
     rational n, mean and SD, 30 significant digits): LRE ≥ 13 on every statistic (the text route's
     bar in tests/fitting/test_nist.py) and no lower than the row text route's LRE less half a digit."""
-    cert, rows = _nist(name)
+    cert, rows = nist_anova(name)
     levels = sorted({g for g, _ in rows}, key=int)
     (tmp_path / "cells.csv").write_text(_exact_summaries(rows))
     (tmp_path / "data.csv").write_text("group,y\n" + "".join(f"{g},{y}\n" for g, y in rows))
@@ -281,7 +261,7 @@ def test_nist_through_summaries(name, tmp_path):
         a = analyse(prepare(plan))
         got = {"ss_between": a.anova.rows[0].ss, "ss_within": a.anova.ss_error, "F": a.anova.rows[0].F,
                "r_squared": a.anova.r_squared, "residual_sd": a.anova.residual_sd}
-        return {k: _lre(v, cert[k]) for k, v in got.items()}
+        return {k: lre(v, cert[k]) for k, v in got.items()}
 
     by_summary = scores("cells.csv", layout="cell-summaries")
     by_rows = scores("data.csv")
