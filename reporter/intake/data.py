@@ -102,10 +102,8 @@ class Dataset:
 # Public entry points
 
 
-def load_data(plan: Plan) -> Dataset:
-    """Read the data file named by the plan and match it to the plan's factors."""
-    path = plan.data.path
-    suffix = path.suffix.lower()
+def require_file(path: Path) -> Path:
+    """The data path, after checking that it names an existing file."""
     if not path.exists():
         raise DataError(
             f"{path}: the data file does not exist. Check [data] path in the plan "
@@ -113,6 +111,13 @@ def load_data(plan: Plan) -> Dataset:
         )
     if path.is_dir():
         raise DataError(f"{path}: is a folder; [data] path must name a data file.")
+    return path
+
+
+def load_data(plan: Plan) -> Dataset:
+    """Read the data file named by the plan and match it to the plan's factors."""
+    path = require_file(plan.data.path)
+    suffix = path.suffix.lower()
     if suffix == ".parquet":
         return _from_parquet(plan, path)
     delimiter = plan.data.delimiter or ("\t" if suffix == ".tsv" else ",")

@@ -46,7 +46,7 @@ import numpy as np
 
 from reporter.errors import DataError
 from reporter.intake.cells import CellStats
-from reporter.intake.data import Dataset, Exclusion, _match_levels, _parse_text
+from reporter.intake.data import Dataset, Exclusion, _match_levels, _parse_text, require_file
 from reporter.intake.plan import Plan
 
 _CTX = decimal.Context(prec=80, traps=[decimal.InvalidOperation])
@@ -126,14 +126,7 @@ def read_summary(plan: Plan) -> Dataset:
     spec = plan.data.summary
     if spec is None:
         raise ValueError("read_summary needs a plan with [data] layout = \"cell-summaries\"")
-    path = plan.data.path
-    if not path.exists():
-        raise DataError(
-            f"{path}: the data file does not exist. Check [data] path in the plan "
-            "(it is relative to the plan file)."
-        )
-    if path.is_dir():
-        raise DataError(f"{path}: is a folder; [data] path must name a data file.")
+    path = require_file(plan.data.path)
     suffix = path.suffix.lower()
     if suffix == ".parquet":
         sha, columns, n, word, kinds = _parquet_columns(plan, path)
