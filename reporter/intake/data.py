@@ -184,6 +184,14 @@ def _parse_text(raw: bytes, source: str, delimiter: str):
 def _build(plan, source, sha, fmt, header, rows, lines, *, text):
     needed = _needed_columns(plan, header, source)
     idx = {name: header.index(name) for name in needed}
+    check_widths(source, header, rows, lines)
+    cols = {name: [rec[i] for rec in rows] for name, i in idx.items()}
+    line_arr = np.asarray(lines, dtype=np.int64)
+    return _build_columns(plan, source, sha, fmt, cols, len(rows), row_numbers=line_arr)
+
+
+def check_widths(source: str, header, rows, lines) -> None:
+    """Every data row has as many fields as the header."""
     width = len(header)
     for rec, line in zip(rows, lines):
         if len(rec) != width:
@@ -191,9 +199,6 @@ def _build(plan, source, sha, fmt, header, rows, lines, *, text):
                 f"{source}, line {line}: has {len(rec)} fields but the header has {width}. "
                 "Check for a stray separator or an unquoted text with the separator in it."
             )
-    cols = {name: [rec[i] for rec in rows] for name, i in idx.items()}
-    line_arr = np.asarray(lines, dtype=np.int64)
-    return _build_columns(plan, source, sha, fmt, cols, len(rows), row_numbers=line_arr)
 
 
 def _needed_columns(plan: Plan, columns: Sequence[str], source: str) -> list[str]:

@@ -46,7 +46,7 @@ import numpy as np
 
 from reporter.errors import DataError
 from reporter.intake.cells import CellStats
-from reporter.intake.data import Dataset, Exclusion, _match_levels, _parse_text, require_file
+from reporter.intake.data import Dataset, Exclusion, _match_levels, _parse_text, check_widths, require_file
 from reporter.intake.plan import Plan
 
 _CTX = decimal.Context(prec=80, traps=[decimal.InvalidOperation])
@@ -139,13 +139,7 @@ def read_summary(plan: Plan) -> Dataset:
         sha = hashlib.sha256(raw).hexdigest()
         header, recs, lines = _parse_text(raw, str(path), delimiter)
         _require_columns(plan, header, str(path))
-        width = len(header)
-        for rec, line in zip(recs, lines):
-            if len(rec) != width:
-                raise DataError(
-                    f"{path}, line {line}: has {len(rec)} fields but the header has {width}. "
-                    "Check for a stray separator or an unquoted text with the separator in it."
-                )
+        check_widths(str(path), header, recs, lines)
         wanted = _wanted(plan)
         columns = {c: [rec[header.index(c)] for rec in recs] for c in wanted}
         columns["__row__"] = lines
