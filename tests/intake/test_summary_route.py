@@ -240,7 +240,8 @@ def _exact_summaries(rows) -> str:
     return "\n".join(out) + "\n"
 
 
-NIST_NAMES = ["SiRstv", "SmLs01", "SmLs03", "AtmWtAg", "SmLs04", "SmLs06", "SmLs07", "SmLs08", "SmLs09"]
+NIST_NAMES = ["SiRstv", "SmLs01", "SmLs02", "SmLs03", "AtmWtAg", "SmLs04", "SmLs05", "SmLs06", "SmLs07", "SmLs08",
+              "SmLs09"]
 
 
 @pytest.mark.parametrize("name", NIST_NAMES)
