@@ -102,9 +102,7 @@ def render_outputs(prep, analysis: Analysis, formats) -> dict[str, bytes]:
 
 def _attachments(prep, results: bytes) -> dict[str, bytes]:
     """The plan file as read and the results JSON, embedded in the archival PDF."""
-    plan_bytes = b""
-    if prep.plan.source is not None:
-        plan_bytes = Path(prep.plan.source).read_bytes()
+    plan_bytes = prep.plan.source_bytes or b""  # the bytes that were hashed, not a re-read
     return {"plan.toml": plan_bytes, "results.json": results}
 
 

@@ -27,6 +27,7 @@ import difflib
 import hashlib
 import io
 import math
+import sys
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Sequence
@@ -36,6 +37,9 @@ import numpy as np
 from reporter.errors import DataError
 from reporter.intake.cells import CellStats
 from reporter.intake.rows import RowAccess
+from reporter.intake import defaults as D
+from reporter.intake import numtext
+from reporter.intake.files import describe_path, open_regular
 from reporter.intake.plan import Plan, level_key
 
 _CTX = decimal.Context(prec=60, traps=[decimal.InvalidOperation])
@@ -103,14 +107,9 @@ class Dataset:
 
 
 def require_file(path: Path) -> Path:
-    """The data path, after checking that it names an existing file."""
-    if not path.exists():
-        raise DataError(
-            f"{path}: the data file does not exist. Check [data] path in the plan "
-            "(it is relative to the plan file)."
-        )
-    if path.is_dir():
-        raise DataError(f"{path}: is a folder; [data] path must name a data file.")
+    """The data path, after checking that it names a regular file that can be opened for reading
+    (a folder, a FIFO, a device or a socket is refused; see :mod:`reporter.intake.files`)."""
+    _open_data(path).close()
     return path
 
 
@@ -121,13 +120,39 @@ def load_data(plan: Plan) -> Dataset:
     if suffix == ".parquet":
         return _from_parquet(plan, path)
     delimiter = plan.data.delimiter or ("\t" if suffix == ".tsv" else ",")
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise DataError(f"{path}: cannot be read ({exc.strerror}).") from None
-    sha = hashlib.sha256(raw).hexdigest()
+    raw, sha = _read_text_file(path)
     header, rows, lines = _parse_text(raw, str(path), delimiter)
     return _build(plan, str(path), sha, suffix.lstrip("."), header, rows, lines, text=True)
+
+
+_DATA_FIX = "Check [data] path in the plan (it is relative to the plan file); it must name a data file."
+
+
+def _open_data(path: Path):
+    """The data file opened for reading, if it is a regular file (see :mod:`reporter.intake.files`)."""
+    return open_regular(path, "the data file", DataError, _DATA_FIX)
+
+
+def _read_text_file(path: Path) -> tuple[bytes, str]:
+    """The bytes of a text data file and their SHA-256, read in blocks up to the size limit."""
+    limit = D.MAX_TEXT_DATA_BYTES
+    h = hashlib.sha256()
+    blocks: list[bytes] = []
+    size = 0
+    with _open_data(path) as fh:
+        try:
+            for block in iter(lambda: fh.read(1 << 22), b""):
+                size += len(block)
+                if size > limit:
+                    raise DataError(
+                        f"{describe_path(path)}: is larger than {limit >> 20} MiB, the limit for a text data "
+                        "file read into memory. Check that [data] path names the intended file."
+                    )
+                h.update(block)
+                blocks.append(block)
+        except OSError as exc:
+            raise DataError(f"{describe_path(path)}: cannot be read ({exc.strerror or exc}).") from None
+    return b"".join(blocks), h.hexdigest()
 
 
 def data_from_frame(plan: Plan, frame: Any, name: str = "DataFrame") -> Dataset:
@@ -204,6 +229,15 @@ def check_widths(source: str, header, rows, lines) -> None:
 def _needed_columns(plan: Plan, columns: Sequence[str], source: str) -> list[str]:
     needed = [plan.data.outcome] + [f.data_column for f in plan.factors]
     for name in needed:
+        where = [i for i, c in enumerate(columns, start=1) if c == name]
+        if len(where) > 1:
+            role = "outcome" if name == plan.data.outcome else "factor"
+            shown = ", ".join(str(i) for i in where)
+            raise DataError(
+                f"{source}: the header names the column '{name}' (the {role} named in the plan) "
+                f"{len(where)} times (columns {shown}); each column needs its own name. Rename or remove "
+                "the duplicate."
+            )
         if name not in columns:
             role = "outcome" if name == plan.data.outcome else "factor"
             hint = difflib.get_close_matches(name, list(columns), n=1, cutoff=0.6)
@@ -245,7 +279,7 @@ def _build_columns(plan: Plan, source, sha, fmt, cols, n, *, row_numbers) -> Dat
             excluded_level |= excluded
 
     raw_outcome = cols[plan.data.outcome]
-    y, status, pivot, pivot_text, exact = _read_outcome(raw_outcome, plan, keep)
+    y, status, pivot, pivot_text, exact = _read_outcome(raw_outcome, plan, keep, source, line_of)
     missing_y = (status == 1) & keep
     bad_y = (status == 2) & keep
     if missing_y.any():
@@ -340,15 +374,16 @@ def _match_levels(plan, factor, values, source, line_of):
     unknown: list[int] = []
     for u, v in enumerate(uniq.tolist()):
         t = _value_text(v)
-        if t is None or t == "" or t in plan.data.missing:
-            missing_u[u] = True
-            code_of_uniq[u] = -1
-            continue
-        k = level_key(t)
+        k = level_key(t) if t else None
+        # A level the plan lists (to analyse or to exclude) wins over a missing-value token:
+        # "NA" may be North America.
         if k in plan_keys:
             code_of_uniq[u] = plan_keys[k]
         elif k in excl_keys:
             excluded_u[u] = True
+            code_of_uniq[u] = -1
+        elif t is None or t == "" or t in plan.data.missing:
+            missing_u[u] = True
             code_of_uniq[u] = -1
         else:
             unknown.append(u)
@@ -368,55 +403,125 @@ def _match_levels(plan, factor, values, source, line_of):
     return code_of_uniq[inv], missing_u[inv], excluded_u[inv]
 
 
-def _read_outcome(values, plan, keep):
-    """Return (y - pivot, status, pivot, pivot_text, exact) with status 0 ok, 1 missing, 2 non-numeric."""
+def _read_outcome(values, plan, keep, source: str = "data", line_of=None):
+    """Return (y - pivot, status, pivot, pivot_text, exact) with status 0 ok, 1 missing, 2 non-numeric.
+
+    A value that float64 cannot hold, an infinite value, or a number written in a form other than
+    plain decimal notation is an error naming its line (see :mod:`reporter.intake.numtext`); so
+    is an outcome whose spread would overflow the sums of squares.
+    """
+    if line_of is None:
+        def line_of(i: int) -> str:
+            return f"row {i + 1}"
     arr = np.asarray(values)
     n = arr.shape[0]
     status = np.zeros(n, dtype=np.int8)
     if arr.dtype.kind in "fiub":
         y = arr.astype(np.float64)
         status[np.isnan(y)] = 1
-        status[np.isinf(y)] = 2
+        inf = np.isinf(y) & keep
+        if inf.any():
+            i = int(np.flatnonzero(inf)[0])
+            raise DataError(
+                f"{source}, {line_of(i)}: the outcome '{plan.data.outcome}' is {float(y[i])!r}; only "
+                "finite values can be analysed. Remove the row or make the value missing."
+            )
         ok = (status == 0) & keep
-        pivot = float(y[np.flatnonzero(ok)[0]]) if ok.any() else 0.0
-        y = np.where(status == 0, y - pivot, np.nan)
+        first = int(np.flatnonzero(ok)[0]) if ok.any() else -1
+        pivot = float(y[first]) if first >= 0 else 0.0
+        with np.errstate(over="ignore", invalid="ignore"):
+            y = np.where(status == 0, y - pivot, np.nan)
+        _check_spread(y, ok, first, pivot, plan, source, line_of)
         return y, status, pivot, repr(pivot), False
-    return _exact_from_text(arr, plan, keep, status)
+    return _exact_from_text(arr, plan, keep, status, source, line_of)
 
 
-def _exact_from_text(arr, plan, keep, status):
+def _shown(text: str) -> str:
+    return f'"{text}"' if len(text) <= 40 else f'"{text[:24]}…" ({len(text)} characters)'
+
+
+def _exact_from_text(arr, plan, keep, status, source: str = "data", line_of=None):
     """Subtract a decimal pivot exactly before conversion to float64."""
     comma = plan.data.decimal == ","
     missing = set(plan.data.missing)
+    outcome = plan.data.outcome
     n = arr.shape[0]
     decs: list[decimal.Decimal | None] = [None] * n
+    keep_list = keep.tolist()
+
+    def fail(i: int, raw: str, why: str) -> DataError:
+        return DataError(f"{source}, {line_of(i)}: the outcome '{outcome}' is {_shown(raw)}, which {why}.")
+
     for i, v in enumerate(arr.tolist()):
-        t = "" if v is None else str(v).strip()
-        if t in missing or t.lower() in ("na", "nan", "null", "none"):
+        raw = "" if v is None else str(v).strip()
+        if raw in missing or raw.lower() in ("nan", "+nan", "-nan"):
             status[i] = 1
             continue
-        if comma:
-            t = t.replace(",", ".")
+        t = raw.replace(",", ".") if comma else raw
         t = t.replace("\u2212", "-")
-        try:
-            d = decimal.Decimal(t)
-        except decimal.InvalidOperation:
+        if not numtext.is_plain(t):
+            status[i] = 2
+            if keep_list[i] and numtext.looks_numeric(t):
+                raise fail(i, raw, numtext.why_not_plain(t))
+            continue
+        if len(t) > D.MAX_NUMBER_CHARS:
+            if keep_list[i]:
+                raise fail(
+                    i, raw,
+                    f"has {len(t)} characters; the limit for one value is {D.MAX_NUMBER_CHARS} (float64 keeps "
+                    "about 17 significant digits). Round it",
+                )
             status[i] = 2
             continue
-        if not d.is_finite():
-            status[i] = 2 if d.is_infinite() else 1
+        d = decimal.Decimal(t)
+        problem = numtext.range_problem(d)
+        if problem is not None:
+            if keep_list[i]:
+                raise fail(i, raw, problem + ". Rescale the outcome (for example use larger or smaller units)")
+            status[i] = 2
             continue
         decs[i] = d
-    ok = np.flatnonzero((status == 0) & keep)
+    ok_mask = (status == 0) & keep
+    ok = np.flatnonzero(ok_mask)
     if ok.size == 0:
         return np.full(n, np.nan), status, 0.0, "0", True
-    pivot = decs[int(ok[0])]
+    first = int(ok[0])
+    pivot = decs[first]
     y = np.fromiter(
         (float(_CTX.subtract(d, pivot)) if d is not None else math.nan for d in decs),
         dtype=np.float64,
         count=n,
     )
+    _check_spread(y, ok_mask, first, float(pivot), plan, source, line_of)
     return y, status, float(pivot), str(pivot), True
+
+
+def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of) -> None:
+    """Refuse offsets from the pivot that float64 cannot hold, and a spread so wide that the sums
+    of squared deviations of the fit would overflow (n·range² must stay far below 1.8e308)."""
+    if first < 0:
+        return
+    idx = np.flatnonzero(ok)
+    vals = y[idx]
+    bad = ~np.isfinite(vals)
+    outcome = plan.data.outcome
+    if bad.any():
+        i = int(idx[np.flatnonzero(bad)[0]])
+        raise DataError(
+            f"{source}, {line_of(i)}: the outcome '{outcome}' differs from the first value "
+            f"({pivot!r}, {line_of(first)}) by more than float64 can hold (about 1.8e308). Rescale the "
+            "outcome (for example use larger units)."
+        )
+    lo, hi = int(idx[int(np.argmin(vals))]), int(idx[int(np.argmax(vals))])
+    spread = float(y[hi]) - float(y[lo])
+    limit = math.sqrt(sys.float_info.max / (16.0 * max(idx.size, 1)))
+    if not (spread <= limit):
+        raise DataError(
+            f"{source}: the outcome '{outcome}' ranges from {float(y[lo]) + pivot:.6g} ({line_of(lo)}) to "
+            f"{float(y[hi]) + pivot:.6g} ({line_of(hi)}); with {idx.size} values a spread over {limit:.3g} "
+            "makes the sums of squares overflow float64 (about 1.8e308). Rescale the outcome (for example "
+            "use larger units)."
+        )
 
 
 # ---------------------------------------------------------------------------------------------
@@ -433,15 +538,29 @@ def _from_parquet(plan: Plan, path: Path) -> Dataset:
             f"{path}: reading Parquet needs pyarrow. Install it with: pip install 'anova-report[parquet]'"
         ) from None
     h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            h.update(block)
+    with _open_data(path) as fh:
+        try:
+            for block in iter(lambda: fh.read(1 << 20), b""):
+                h.update(block)
+        except OSError as exc:
+            raise DataError(f"{describe_path(path)}: cannot be read ({exc.strerror or exc}).") from None
     try:
         pf = pq.ParquetFile(path)
     except Exception as exc:  # pyarrow raises several types for a damaged file
         raise DataError(f"{path}: is not a readable Parquet file ({exc}).") from None
     columns = pf.schema_arrow.names
     needed = _needed_columns(plan, columns, str(path))
+    for name in dict.fromkeys(needed):
+        kind = pf.schema_arrow.field(name).type
+        if pa.types.is_dictionary(kind):
+            kind = kind.value_type
+        if pa.types.is_nested(kind) or pa.types.is_binary(kind) or pa.types.is_large_binary(kind) or pa.types.is_null(kind):
+            role = "outcome" if name == plan.data.outcome else "factor"
+            need = "a number" if role == "outcome" else "a text or a number"
+            raise DataError(
+                f"{path}: column '{name}' (the {role} named in the plan) has the Parquet type {kind}; "
+                f"the {role} needs {need} in every row. Write that column as plain values."
+            )
     table = pf.read(columns=list(dict.fromkeys(needed)))
     n = table.num_rows
     if n == 0:

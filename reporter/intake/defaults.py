@@ -75,3 +75,39 @@ DATA_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet")
 LAYOUTS = ("rows", "cell-summaries")
 SPREADS = ("sd", "variance", "se")
 MAX_DECIMALS = 20
+
+# ---------------------------------------------------------------------------------------------
+# Limits. Each lies far beyond any real plan or study; together they keep a broken or hostile
+# input from running out of time or memory. A value beyond a limit is refused with a message that
+# names the limit.
+
+# Size of the plan file, in bytes.
+MAX_PLAN_BYTES = 1 << 20
+# Depth of nested arrays and inline tables in the plan's TOML (a real plan uses 2).
+MAX_TOML_NESTING = 20
+# Size of a text data file (CSV/TSV) read into memory, in bytes.
+MAX_TEXT_DATA_BYTES = 1 << 30
+# Characters of text values in the plan.
+MAX_TITLE_CHARS = 300
+MAX_SUMMARY_CHARS = 5_000
+MAX_NAME_CHARS = 200  # a hypothesis name, factor name, level, column name or outcome name
+MAX_DESCRIPTION_CHARS = 5_000  # a hypothesis description or a [study] text
+MAX_PATH_CHARS = 1_024  # [data] path
+MAX_MISSING_TOKENS = 100
+# Counts in the plan.
+MAX_LEVELS = 256  # levels of one factor
+MAX_FACTORS = 6
+MAX_CELLS = 256  # product of the factors' level counts (measured: 256 cells run in under a minute)
+MAX_HYPOTHESES = 100
+# Hypothesis statements: characters, tokens, and depth of nested parentheses and signs.
+MAX_STATEMENT_CHARS = 5_000
+MAX_STATEMENT_TOKENS = 1_000
+MAX_STATEMENT_NESTING = 30
+# Numbers written as text (data values, levels, statement coefficients).
+MAX_EXPONENT_DIGITS = 4  # 1e-3 and 1e300 are read; 1e99999 is refused before any arithmetic
+MAX_NUMBER_CHARS = 100  # characters of one outcome value in a text data file
+# A coefficient or constant in a statement: 0, or a magnitude within [1e-100, 1e100].
+STATEMENT_NUMBER_EXPONENT = 100
+# The smallest alpha accepted: below it 1 - alpha/2 is no longer distinguishable enough from 1 in
+# float64 for the quantiles of the tests (common practice, no source).
+MIN_ALPHA = 1e-9

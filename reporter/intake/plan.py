@@ -21,6 +21,8 @@ from typing import Any, Mapping
 
 from reporter.errors import PlanError
 from reporter.intake import defaults as D
+from reporter.intake.files import describe_path, read_limited
+from reporter.intake.numtext import is_plain
 
 
 @dataclass(frozen=True)
@@ -126,6 +128,7 @@ class Plan:
     summary: str | None = None
     source: Path | None = None
     sha256: str | None = None
+    source_bytes: bytes | None = field(default=None, repr=False, compare=False)
 
     def factor(self, name: str) -> FactorSpec:
         for f in self.factors:
@@ -197,7 +200,7 @@ class _Checker:
                 path = f"{prefix}{key}"
                 raise self.fail(path, f"is not a known key.{fix}", key=key, **loc)
 
-    def text(self, mapping, key, path, *, required=True, **loc) -> str | None:
+    def text(self, mapping, key, path, *, required=True, limit=D.MAX_NAME_CHARS, **loc) -> str | None:
         if key not in mapping:
             if required:
                 where = path.rsplit(".", 1)[0] if "." in path else "the top level"
@@ -208,7 +211,25 @@ class _Checker:
             raise self.fail(path, f"must be text in quotes (got {_show(value)}).", key=key, **loc)
         if not value.strip():
             raise self.fail(path, "must not be empty.", key=key, **loc)
+        self.length(value, limit, path, key=key, **loc)
         return value
+
+    def length(self, value: str, limit: int, path: str, **loc) -> None:
+        if len(value) > limit:
+            raise self.fail(
+                path,
+                f"is {len(value)} characters long; the limit is {limit} (got {_show(value)}). Shorten it.",
+                **loc,
+            )
+
+    def raw(self, key: str, value: Any, **loc) -> str:
+        """The value as written in the plan file (for numbers), else as :func:`_show` prints it."""
+        line = self.loc.line_of(loc.get("table"), loc.get("index"), key)
+        if line is not None and not isinstance(value, (str, list, dict)):
+            m = re.match(rf"^\s*{re.escape(key)}\s*=\s*([^#]*?)\s*(?:#.*)?$", self.loc.lines[line - 1])
+            if m and m.group(1) and len(m.group(1)) <= 60:
+                return m.group(1)
+        return _show(value)
 
     def choice(self, mapping, key, path, choices, default, **loc):
         value = mapping.get(key, default)
@@ -226,6 +247,8 @@ class _Checker:
 
 def _show(value: Any) -> str:
     if isinstance(value, str):
+        if len(value) > 60:
+            return f'"{value[:40]}…" ({len(value)} characters)'
         return f'"{value}"'
     if isinstance(value, bool):
         return "true" if value else "false"
@@ -233,7 +256,8 @@ def _show(value: Any) -> str:
         return "a table"
     if isinstance(value, list):
         return "a list"
-    return repr(value)
+    text = repr(value)
+    return text if len(text) <= 60 else f"{text[:40]}… ({len(text)} characters)"
 
 
 def level_text(value: Any) -> str:
@@ -248,35 +272,89 @@ def level_text(value: Any) -> str:
 
 
 def load_plan(path: str | Path) -> Plan:
-    """Read and validate the plan file at ``path``; data paths resolve relative to it."""
+    """Read and validate the plan file at ``path``; data paths resolve relative to it.
+
+    The plan must be a regular file of at most :data:`~reporter.intake.defaults.MAX_PLAN_BYTES`
+    bytes; the exact bytes read are hashed and kept on the plan (``source_bytes``).
+    """
     path = Path(path)
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise PlanError(f"{path}: the plan file does not exist. Check the path.") from None
-    except IsADirectoryError:
-        raise PlanError(f"{path}: is a folder; give the path of a plan file (.toml).") from None
-    except OSError as exc:
-        raise PlanError(f"{path}: cannot be read ({exc.strerror}).") from None
+    raw = read_limited(
+        path, "the plan file", PlanError, "Give the path of a plan file (.toml).", D.MAX_PLAN_BYTES, "a plan file"
+    )
+    shown = describe_path(path)
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
         raise PlanError(
-            f"{path}: is not UTF-8 text (byte {exc.start} is 0x{raw[exc.start]:02x}). "
+            f"{shown}, line {line}: is not UTF-8 text (byte {exc.start} is 0x{raw[exc.start]:02x}). "
             "Save the plan as UTF-8."
         ) from None
+    _check_nesting(text, shown)
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise PlanError(f"{path}: is not valid TOML: {exc}.") from None
-    plan = plan_from_dict(doc, base_dir=path.parent, source=str(path), text=text)
-    return _replace_source(plan, path.resolve(), hashlib.sha256(raw).hexdigest())
+        raise PlanError(f"{shown}: is not valid TOML: {exc}.") from None
+    except RecursionError:  # a nesting the scan above did not see; never let it escape
+        raise PlanError(
+            f"{shown}: nests arrays or tables too deeply to read (the limit is {D.MAX_TOML_NESTING} levels)."
+        ) from None
+    plan = plan_from_dict(doc, base_dir=path.parent, source=shown, text=text)
+    try:
+        resolved = path.resolve()
+    except (OSError, RuntimeError):
+        resolved = path.absolute()
+    return _replace_source(plan, resolved, hashlib.sha256(raw).hexdigest(), raw)
 
 
-def _replace_source(plan: Plan, source: Path, sha: str) -> Plan:
+def _check_nesting(text: str, source: str) -> None:
+    """Refuse TOML whose arrays and inline tables nest deeper than the limit.
+
+    A cheap scan of ``[``/``{`` depth outside strings and comments, so that the recursive TOML
+    reader never meets a nesting that would exhaust the stack.
+    """
+    limit = D.MAX_TOML_NESTING
+    depth, line, i, n = 0, 1, 0, len(text)
+    while i < n:
+        ch = text[i]
+        if ch == "\n":
+            line += 1
+        elif ch == "#":
+            j = text.find("\n", i)
+            i = n if j < 0 else j
+            continue
+        elif ch in "\"'":
+            triple = text.startswith(ch * 3, i)
+            quote = ch * 3 if triple else ch
+            j = i + len(quote)
+            while j < n:
+                if ch == '"' and text[j] == "\\":
+                    j += 2
+                    continue
+                if text.startswith(quote, j):
+                    break
+                if text[j] == "\n" and not triple:
+                    break
+                j += 1
+            line += text.count("\n", i, j)
+            i = j + len(quote) if text.startswith(quote, j) else j
+            continue
+        elif ch in "[{":
+            depth += 1
+            if depth > limit:
+                raise PlanError(
+                    f"{source}, line {line}: arrays or tables are nested more than {limit} levels deep; "
+                    "a plan needs at most 3. Check the brackets."
+                )
+        elif ch in "]}":
+            depth = max(depth - 1, 0)
+        i += 1
+
+
+def _replace_source(plan: Plan, source: Path, sha: str, raw: bytes) -> Plan:
     from dataclasses import replace
 
-    return replace(plan, source=source, sha256=sha)
+    return replace(plan, source=source, sha256=sha, source_bytes=raw)
 
 
 def plan_from_dict(
@@ -288,8 +366,8 @@ def plan_from_dict(
     """Validate a plan given as a mapping (the parsed TOML); see :func:`load_plan`."""
     ck = _Checker(source, text)
     ck.unknown_keys(doc, _TOP_KEYS, "")
-    title = ck.text(doc, "title", "title")
-    summary = ck.text(doc, "summary", "summary", required=False)
+    title = ck.text(doc, "title", "title", limit=D.MAX_TITLE_CHARS)
+    summary = ck.text(doc, "summary", "summary", required=False, limit=D.MAX_SUMMARY_CHARS)
 
     data = _read_data(doc, ck, Path(base_dir))
     factors = _read_factors(doc, ck, data)
@@ -322,7 +400,9 @@ def _read_data(doc, ck: _Checker, base_dir: Path) -> DataSpec:
     t = _table(doc, "data", ck, required=True)
     loc = {"table": "data"}
     ck.unknown_keys(t, _DATA_KEYS, "data.", **loc)
-    rel = ck.text(t, "path", "data.path", **loc)
+    rel = ck.text(t, "path", "data.path", limit=D.MAX_PATH_CHARS, **loc)
+    if "\0" in rel:
+        raise ck.fail("data.path", "holds a NUL character, which no file name can contain.", key="path", **loc)
     outcome = ck.text(t, "outcome", "data.outcome", **loc).strip()
     path = Path(rel)
     if not path.is_absolute():
@@ -358,6 +438,10 @@ def _read_data(doc, ck: _Checker, base_dir: Path) -> DataSpec:
             key="missing",
             **loc,
         )
+    if len(missing) > D.MAX_MISSING_TOKENS:
+        raise ck.fail("data.missing", f"lists {len(missing)} texts; the limit is {D.MAX_MISSING_TOKENS}.", key="missing", **loc)
+    for j, m in enumerate(missing, start=1):
+        ck.length(m, D.MAX_NAME_CHARS, f"data.missing[{j}]", key="missing", **loc)
     layout = ck.choice(t, "layout", "data.layout", D.LAYOUTS, D.DATA_DEFAULTS["layout"], **loc)
     return DataSpec(
         path=path,
@@ -409,6 +493,9 @@ def _read_factors(doc, ck: _Checker, data: DataSpec) -> tuple[FactorSpec, ...]:
         raise ck.fail("factors", "must be written as [[factors]] tables, one per factor.", key="factors")
     if not raw:
         raise ck.fail("factors", "must hold at least one factor.")
+    if len(raw) > D.MAX_FACTORS:
+        raise ck.fail("factors", f"lists {len(raw)} factors; the limit is {D.MAX_FACTORS}.", table="factors",
+                      index=D.MAX_FACTORS + 1)
     out: list[FactorSpec] = []
     names: set[str] = set()
     for i, f in enumerate(raw, start=1):
@@ -428,6 +515,8 @@ def _read_factors(doc, ck: _Checker, data: DataSpec) -> tuple[FactorSpec, ...]:
         levels = f["levels"]
         if not isinstance(levels, list):
             raise ck.fail(p + "levels", f"must be a list (got {_show(levels)}).", key="levels", **loc)
+        if len(levels) > D.MAX_LEVELS:
+            raise ck.fail(p + "levels", f"lists {len(levels)} levels; the limit is {D.MAX_LEVELS}.", key="levels", **loc)
         texts = []
         for j, lv in enumerate(levels, start=1):
             if not isinstance(lv, (str, int, float)) or isinstance(lv, bool):
@@ -437,6 +526,7 @@ def _read_factors(doc, ck: _Checker, data: DataSpec) -> tuple[FactorSpec, ...]:
             t = level_text(lv)
             if not t:
                 raise ck.fail(f"{p}levels[{j}]", "must not be empty.", key="levels", **loc)
+            ck.length(t, D.MAX_NAME_CHARS, f"{p}levels[{j}]", key="levels", **loc)
             texts.append(t)
         if len(texts) < 2:
             raise ck.fail(p + "levels", f"must list at least 2 levels (got {len(texts)}).", key="levels", **loc)
@@ -452,9 +542,12 @@ def _read_factors(doc, ck: _Checker, data: DataSpec) -> tuple[FactorSpec, ...]:
                 )
             seen[k] = j
         exclude = f.get("exclude", [])
-        if not isinstance(exclude, list) or not all(isinstance(e, (str, int, float)) for e in exclude):
-            raise ck.fail(p + "exclude", f"must be a list of levels to leave out (got {_show(exclude)}).", key="exclude", **loc)
+        if (not isinstance(exclude, list) or len(exclude) > D.MAX_LEVELS
+                or not all(isinstance(e, (str, int, float)) and not isinstance(e, bool) for e in exclude)):
+            raise ck.fail(p + "exclude", f"must be a list of at most {D.MAX_LEVELS} levels to leave out (got {_show(exclude)}).", key="exclude", **loc)
         ex = tuple(level_text(e) for e in exclude)
+        for j, e in enumerate(ex, start=1):
+            ck.length(e, D.MAX_NAME_CHARS, f"{p}exclude[{j}]", key="exclude", **loc)
         for e in ex:
             if _level_key(e) in seen:
                 raise ck.fail(p + "exclude", f'names "{e}", which is also in levels; a level is either analysed or excluded.', key="exclude", **loc)
@@ -465,17 +558,28 @@ def _read_factors(doc, ck: _Checker, data: DataSpec) -> tuple[FactorSpec, ...]:
         if data.summary is not None and fcol in (data.summary.n_column, data.summary.mean_column, data.summary.spread_column):
             raise ck.fail(p + ("column" if column else "name"), f'reads the column "{fcol}", which [data] names as the '
                           "n, mean or spread column; a factor needs its own column.", key="column" if column else "name", **loc)
+        if column is not None:
+            ck.length(column, D.MAX_NAME_CHARS, p + "column", key="column", **loc)
         out.append(FactorSpec(name=name, levels=tuple(texts), exclude=ex, column=column.strip() if column else None))
+    cells = math.prod(len(f.levels) for f in out)
+    if cells > D.MAX_CELLS:
+        counts = " × ".join(str(len(f.levels)) for f in out)
+        raise ck.fail(
+            "factors",
+            f"define {counts} = {cells} cells; the limit is {D.MAX_CELLS}. A between-subjects design "
+            "this large cannot be estimated from real data: drop factors or levels.",
+            table="factors", index=1,
+        )
     return tuple(out)
 
 
 def _level_key(text: str):
-    """Levels compare as text after trimming, or as numbers when the text is a number."""
+    """Levels compare as text after trimming, or as numbers when the text is a plain decimal
+    number (``1``, ``1.0`` and ``1e0`` are one level; ``1_000`` or full-width digits are text)."""
     t = text.strip()
-    try:
-        x = float(t)
-    except ValueError:
+    if not is_plain(t):
         return ("text", t)
+    x = float(t)
     if math.isfinite(x):
         return ("number", x)
     return ("text", t)
@@ -484,27 +588,40 @@ def _level_key(text: str):
 level_key = _level_key
 
 
+def _plain_exp(x: float) -> str:
+    return f"{x:g}".replace("e-0", "e-")
+
+
 def _read_analysis(doc, ck: _Checker, factors) -> AnalysisSpec:
     t = _table(doc, "analysis", ck, required=False)
     loc = {"table": "analysis"}
     ck.unknown_keys(t, tuple(D.ANALYSIS_DEFAULTS), "analysis.", **loc)
     a = dict(D.ANALYSIS_DEFAULTS)
     alpha = t.get("alpha", a["alpha"])
-    if isinstance(alpha, bool) or not isinstance(alpha, (int, float)) or not (0 < alpha < 0.5):
-        raise ck.fail("analysis.alpha", f"must be a number between 0 and 0.5, such as 0.05 (got {_show(alpha)}).", key="alpha", **loc)
+    if isinstance(alpha, bool) or not isinstance(alpha, (int, float)) or not (D.MIN_ALPHA <= alpha < 0.5):
+        raise ck.fail(
+            "analysis.alpha",
+            f"must be a number between {_plain_exp(D.MIN_ALPHA)} and 0.5 (0.5 excluded), such as 0.05 "
+            f"(got {ck.raw('alpha', alpha, **loc)}).",
+            key="alpha", **loc)
     param = ck.choice(t, "parameterization", "analysis.parameterization", D.PARAMETERIZATIONS, a["parameterization"], **loc)
-    ss = t.get("ss_type", a["ss_type"])
-    if isinstance(ss, int) and not isinstance(ss, bool) and 1 <= ss <= 3:
-        ss = "I" * ss if ss < 3 else "III"
-    ss = ck.choice({"ss_type": ss}, "ss_type", "analysis.ss_type", D.SS_TYPES, a["ss_type"], **loc)
+    ss = _sums_of_squares(t, ck, loc)
     corr = ck.choice(t, "correction", "analysis.correction", D.CORRECTIONS, a["correction"], **loc)
     posthoc = t.get("posthoc", [])
     if isinstance(posthoc, str):
         posthoc = [posthoc]
     if not isinstance(posthoc, list):
         raise ck.fail("analysis.posthoc", f"must be a list such as [\"all-pairs\"] (got {_show(posthoc)}).", key="posthoc", **loc)
+    first_at: dict[str, int] = {}
     for j, fam in enumerate(posthoc, start=1):
         ck.choice({"posthoc": fam}, "posthoc", f"analysis.posthoc[{j}]", D.POSTHOC_FAMILIES, None, **loc)
+        if fam in first_at:
+            raise ck.fail(
+                f"analysis.posthoc[{j}]",
+                f'repeats "{fam}" (first at position {first_at[fam]}); list each family once.',
+                key="posthoc", **loc,
+            )
+        first_at[fam] = j
     names = [f.name for f in factors]
     on = t.get("posthoc_on", "cells")
     if on != "cells" and on not in names:
@@ -531,13 +648,13 @@ def _read_analysis(doc, ck: _Checker, factors) -> AnalysisSpec:
     uv = ck.choice(t, "unequal_variances", "analysis.unequal_variances", D.UNEQUAL_VARIANCES, a["unequal_variances"], **loc)
     perms = t.get("permutations", a["permutations"])
     if isinstance(perms, bool) or not isinstance(perms, int) or not (0 <= perms <= 10_000_000):
-        raise ck.fail("analysis.permutations", f"must be a whole number from 0 (no permutation test) to 10000000 (got {_show(perms)}).", key="permutations", **loc)
+        raise ck.fail("analysis.permutations", f"must be a whole number from 0 (no permutation test) to 10000000 (got {ck.raw('permutations', perms, **loc)}).", key="permutations", **loc)
     seed = t.get("seed", a["seed"])
-    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
-        raise ck.fail("analysis.seed", f"must be a whole number ≥ 0 (got {_show(seed)}).", key="seed", **loc)
+    if isinstance(seed, bool) or not isinstance(seed, int) or not (0 <= seed < 2**63):
+        raise ck.fail("analysis.seed", f"must be a whole number from 0 to 2^63 − 1 (got {ck.raw('seed', seed, **loc)}).", key="seed", **loc)
     max_rows = t.get("permutation_max_rows", a["permutation_max_rows"])
     if isinstance(max_rows, bool) or not isinstance(max_rows, int) or max_rows < 0:
-        raise ck.fail("analysis.permutation_max_rows", f"must be a whole number ≥ 0 of rows, above which the permutation F is skipped (got {_show(max_rows)}).", key="permutation_max_rows", **loc)
+        raise ck.fail("analysis.permutation_max_rows", f"must be a whole number ≥ 0 of rows, above which the permutation F is skipped (got {ck.raw('permutation_max_rows', max_rows, **loc)}).", key="permutation_max_rows", **loc)
     return AnalysisSpec(
         alpha=float(alpha),
         parameterization=param,
@@ -553,10 +670,38 @@ def _read_analysis(doc, ck: _Checker, factors) -> AnalysisSpec:
     )
 
 
+_ROMAN = re.compile(r"(?i)(?:type[\s_-]*)?([ivx]+|[0-9]+)")
+
+
+def _sums_of_squares(t, ck: _Checker, loc: dict) -> str:
+    """The type of sums of squares. A value naming a type the tool does not compute (IV, 4) gets
+    no look-alike suggestion: Type IV is not Type I."""
+    key, path = "ss_type", "analysis.ss_type"
+    value = t.get(key, D.ANALYSIS_DEFAULTS[key])
+    if value in D.SS_TYPES:
+        return value
+    allowed = ", ".join(f'"{c}"' for c in D.SS_TYPES)
+    m = _ROMAN.fullmatch(value.strip()) if isinstance(value, str) else None
+    roman = {"1": "I", "2": "II", "3": "III"}.get(m.group(1), m.group(1).upper()) if m else None
+    if isinstance(value, int) and not isinstance(value, bool):
+        roman = {1: "I", 2: "II", 3: "III"}.get(value)
+        fix = f' Write it as text: "{roman}".' if roman else ""
+    elif roman in D.SS_TYPES:
+        fix = f' Did you mean "{roman}"?'
+    elif roman is not None:
+        fix = f" Type {roman} sums of squares are not computed here."
+    else:
+        fix = ""
+    raise ck.fail(path, f"must be one of {allowed} (got {ck.raw(key, value, **loc)}).{fix}", key=key, **loc)
+
+
 def _read_hypotheses(doc, ck: _Checker) -> tuple[HypothesisSpec, ...]:
     raw = doc.get("hypotheses", [])
     if not isinstance(raw, list) or not all(isinstance(h, dict) for h in raw):
         raise ck.fail("hypotheses", "must be written as [[hypotheses]] tables.", key="hypotheses")
+    if len(raw) > D.MAX_HYPOTHESES:
+        raise ck.fail("hypotheses", f"lists {len(raw)} hypotheses; the limit is {D.MAX_HYPOTHESES}.",
+                      table="hypotheses", index=D.MAX_HYPOTHESES + 1)
     out: list[HypothesisSpec] = []
     names: dict[str, int] = {}
     for i, h in enumerate(raw, start=1):
@@ -567,21 +712,41 @@ def _read_hypotheses(doc, ck: _Checker) -> tuple[HypothesisSpec, ...]:
         if name in names:
             raise ck.fail(p + "name", f'repeats the name "{name}" of hypotheses[{names[name]}]; give each hypothesis its own name.', key="name", **loc)
         names[name] = i
-        means = ck.text(h, "means", p + "means", required=False, **loc)
-        effect = ck.text(h, "effect", p + "effect", required=False, **loc)
+        means = ck.text(h, "means", p + "means", required=False, limit=D.MAX_STATEMENT_CHARS, **loc)
+        effect = ck.text(h, "effect", p + "effect", required=False, limit=D.MAX_STATEMENT_CHARS, **loc)
+        if effect is not None:
+            _check_effect_spelling(ck, effect, p + "effect", loc)
         if means is not None and effect is not None:
             raise ck.fail(p + "effect", "cannot stand beside 'means' in one hypothesis: keep one, or split them into two [[hypotheses]].", key="effect", **loc)
         if means is None and effect is None:
             raise ck.fail(p + "means", 'is missing: give means = "a > b" (a statement about means) or effect = "factor".', **loc)
         role = ck.choice(h, "role", p + "role", D.ROLES, "planned", **loc)
-        desc = ck.text(h, "description", p + "description", required=False, **loc)
+        desc = ck.text(h, "description", p + "description", required=False, limit=D.MAX_DESCRIPTION_CHARS, **loc)
         out.append(HypothesisSpec(name=name, means=means, effect=effect, role=role, description=desc, index=i))
     return tuple(out)
+
+
+def _check_effect_spelling(ck: _Checker, effect: str, path: str, loc: dict) -> None:
+    """Refuse the operators of model-formula languages in an effect: the plan writes A x B."""
+    outside = re.sub(r"`[^`]*`", lambda m: " " * len(m.group()), effect)  # names in backticks may hold anything
+    for op in (":", "*"):
+        if op in outside:
+            names = [effect[m.start():m.end()].strip() for m in re.finditer(r"[^:*]+", outside)]
+            fix = " x ".join(n for n in names if n) or "A x B"
+            meaning = "in a plan, factors of an interaction are joined by x"
+            if op == "*":
+                meaning += " ('*' in model formulas also adds every main effect, which an effect here does not)"
+            raise ck.fail(
+                path,
+                f"uses '{op}' (got {_show(effect)}); {meaning}. Write effect = \"{fix}\" (or with ×), "
+                "and test each main effect in its own [[hypotheses]].",
+                key="effect", **loc,
+            )
 
 
 def _read_study(doc, ck: _Checker) -> StudySpec:
     t = _table(doc, "study", ck, required=False)
     loc = {"table": "study"}
     ck.unknown_keys(t, _STUDY_KEYS, "study.", **loc)
-    values = {k: ck.text(t, k, f"study.{k}", required=False, **loc) for k in _STUDY_KEYS}
+    values = {k: ck.text(t, k, f"study.{k}", required=False, limit=D.MAX_DESCRIPTION_CHARS, **loc) for k in _STUDY_KEYS}
     return StudySpec(**values)

@@ -33,6 +33,7 @@ coefficients of any full-rank parameterization D.
 from __future__ import annotations
 
 import difflib
+import math
 import re
 from dataclasses import dataclass
 from fractions import Fraction
@@ -41,6 +42,8 @@ from typing import Sequence
 import numpy as np
 
 from reporter.errors import HypothesisError
+from reporter.intake import defaults as D
+from reporter.intake.numtext import why_not_plain
 from reporter.intake.plan import level_key
 from reporter.model.design import Design, in_row_space
 
@@ -55,7 +58,9 @@ class Token:
     pos: int
 
 
-_NUMBER = re.compile(r"(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
+_NUMBER = re.compile(r"(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?", re.ASCII)
+_NUMBER_MAX = Fraction(10) ** D.STATEMENT_NUMBER_EXPONENT
+_NUMBER_MIN = 1 / _NUMBER_MAX
 _NAME = re.compile(r"[^\W\d]\w*(?:[.]\w+)*", re.UNICODE)
 _PLAIN_NAME = re.compile(r"^[^\W\d]\w*(?:[.]\w+)*$", re.UNICODE)
 
@@ -71,9 +76,21 @@ def _error(source: str, pos: int, width: int, message: str, context: str = "") -
 
 def tokenize(source: str, context: str = "") -> list[Token]:
     """Split a statement into tokens; an unknown character is an error with a caret."""
+    if len(source) > D.MAX_STATEMENT_CHARS:
+        raise HypothesisError(
+            f"{context + ': ' if context else ''}the statement is {len(source)} characters long; the limit is "
+            f"{D.MAX_STATEMENT_CHARS}. Split it into several [[hypotheses]], or test a whole factor with effect = \"...\"."
+        )
     tokens: list[Token] = []
     i = 0
     while i < len(source):
+        if len(tokens) >= D.MAX_STATEMENT_TOKENS:
+            raise _error(
+                source, i, 1,
+                f"the statement has more than {D.MAX_STATEMENT_TOKENS} parts (names, numbers, operators); "
+                "split it into several [[hypotheses]].",
+                context,
+            )
         ch = source[i]
         if ch.isspace():
             i += 1
@@ -100,9 +117,19 @@ def tokenize(source: str, context: str = "") -> list[Token]:
                     f"'{source[i:j]}' starts with a digit; write a level name like this in backticks: `{source[i:j]}`.",
                     context,
                 )
+            _check_number(source, i, m.group(), context)
             tokens.append(Token("NUMBER", m.group(), i))
             i = after
             continue
+        if ch.isdigit():  # a digit outside ASCII 0-9, e.g. full-width
+            j = i
+            while j < len(source) and (source[j].isdigit() or source[j] == "."):
+                j += 1
+            raise _error(
+                source, i, j - i,
+                f"'{source[i:j]}' {why_not_plain(source[i:j])}; a level name like this goes in backticks.",
+                context,
+            )
         m = _NAME.match(source, i)
         if m:
             tokens.append(Token("NAME", m.group(), i))
@@ -134,6 +161,32 @@ def tokenize(source: str, context: str = "") -> list[Token]:
         i += 1
     tokens.append(Token("END", "", len(source)))
     return tokens
+
+
+def _check_number(source: str, pos: int, text: str, context: str) -> None:
+    """A number in a statement must be 0 or lie within 1e-100..1e100 in magnitude, checked before
+    any exact arithmetic (``1e999999999`` would otherwise build a billion-digit integer)."""
+    limit = D.STATEMENT_NUMBER_EXPONENT
+    mantissa, _, exponent = text.lower().partition("e")
+    digits = mantissa.replace(".", "").lstrip("0")
+    if exponent and (len(exponent.lstrip("+-").lstrip("0")) > 4 or len(digits) > 40):
+        ok = False
+    elif len(digits) > 40:
+        ok = False
+    else:
+        value = Fraction(text)
+        ok = value == 0 or _NUMBER_MIN <= value <= _NUMBER_MAX
+    if not ok:
+        raise _error(
+            source, pos, len(text),
+            f"the number {_short(text)} is out of range: a coefficient or constant must be 0 or lie between "
+            f"1e-{limit} and 1e{limit} in magnitude (and have at most 40 digits).",
+            context,
+        )
+
+
+def _short(text: str) -> str:
+    return text if len(text) <= 30 else f"{text[:20]}… ({len(text)} characters)"
 
 
 # ---------------------------------------------------------------------------------------------
@@ -184,11 +237,13 @@ class Statement:
 
 def _span(node: Expr) -> tuple[int, int]:
     """Start and end offsets of an expression in the statement text."""
-    if isinstance(node, Neg):
-        return node.pos, _span(node.operand)[1]
-    if isinstance(node, BinOp):
-        return _span(node.left)[0], _span(node.right)[1]
-    return node.pos, node.pos + node.width
+    start_node = node
+    while isinstance(start_node, BinOp):
+        start_node = start_node.left
+    end_node = node
+    while isinstance(end_node, (Neg, BinOp)):
+        end_node = end_node.operand if isinstance(end_node, Neg) else end_node.right
+    return start_node.pos, end_node.pos + end_node.width
 
 
 class _Parser:
@@ -197,6 +252,16 @@ class _Parser:
         self.context = context
         self.tokens = tokenize(source, context)
         self.i = 0
+        self.depth = 0
+
+    def enter(self, tok: Token) -> None:
+        """Count a nested parenthesis or sign; refuse a nesting deeper than the limit."""
+        self.depth += 1
+        if self.depth > D.MAX_STATEMENT_NESTING:
+            raise self.fail(
+                tok,
+                f"parentheses and signs are nested more than {D.MAX_STATEMENT_NESTING} deep; simplify the statement.",
+            )
 
     @property
     def tok(self) -> Token:
@@ -246,7 +311,9 @@ class _Parser:
         t = self.tok
         if t.kind == "OP" and t.text in "+-":
             self.i += 1
+            self.enter(t)
             operand = self.unary()
+            self.depth -= 1
             return operand if t.text == "+" else Neg(operand, t.pos, 1)
         return self.atom()
 
@@ -257,8 +324,10 @@ class _Parser:
             return Num(Fraction(t.text), t.pos, len(t.text))
         if t.kind == "LPAREN":
             self.i += 1
+            self.enter(t)
             node = self.expr()
             self.take("RPAREN", "')'")
+            self.depth -= 1
             return node
         if t.kind == "NAME" and t.text == "mean" and self.tokens[self.i + 1].kind == "LPAREN":
             return self.mean_call()
@@ -291,6 +360,13 @@ class _Parser:
             if self.tok.kind == "COMMA":
                 self.i += 1
                 continue
+            if self.tok.kind not in ("RPAREN", "END") and lt.kind != "QUOTED":
+                nxt = self.tok
+                raise self.fail(
+                    nxt,
+                    f"expected ')' or ',' after the level '{lt.text}' but found '{nxt.text}'. A level name "
+                    f"with '-', spaces or other symbols goes in backticks, as in mean({ft.text}=`{lt.text}{nxt.text}...`).",
+                )
             end = self.take("RPAREN", "')' or ','")
             return Mean(tuple(pairs), start, end.pos - start + 1)
 
@@ -438,7 +514,7 @@ class _Evaluator:
             if level_key(lv) == key:
                 return lv
         hint = difflib.get_close_matches(level, levels, n=1, cutoff=0.6)
-        fix = f" Did you mean '{hint[0]}'?" if hint else ""
+        fix = _quoting_hint(level, levels) or (f" Did you mean '{hint[0]}'?" if hint else "")
         raise self.fail(node, f"'{level}' is not a level of '{factor}' (levels: {', '.join(levels)}).{fix}")
 
     def resolve_bare(self, node, name: str) -> tuple[str, str]:
@@ -458,8 +534,22 @@ class _Evaluator:
             )
         all_levels = [lv for f in d.factors for lv in f.levels]
         hint = difflib.get_close_matches(name, all_levels, n=1, cutoff=0.6)
-        fix = f" Did you mean '{hint[0]}'?" if hint else f" The levels are {', '.join(all_levels)}."
+        fix = _quoting_hint(name, all_levels) or (
+            f" Did you mean '{hint[0]}'?" if hint else f" The levels are {', '.join(all_levels[:30])}."
+        )
         raise self.fail(node, f"'{name}' is not a level of any factor.{fix}")
+
+
+def _quoting_hint(name: str, levels: Sequence[str]) -> str:
+    """When ``name`` is a piece of a level whose name needs backticks (``low-dose`` read as
+    ``low - dose``), say how to quote it."""
+    pieces = [lv for lv in levels if not _PLAIN_NAME.match(lv) and name in re.split(r"[^\w.]+", lv)]
+    if not pieces:
+        return ""
+    return (
+        f" Did you mean the level `{pieces[0]}`? A name with '-', spaces or other symbols must be quoted "
+        f"in backticks, or '-' reads as minus: write `{pieces[0]}`."
+    )
 
 
 # ---------------------------------------------------------------------------------------------
@@ -518,7 +608,8 @@ class Contrast:
             return f"at least one {' × '.join(self.factors)} interaction contrast differs from 0"
         if self.alternative != "two-sided":
             return self.statement
-        if self.q == 1:
+        relations = sum(1 for t in tokenize(self.statement) if t.kind == "REL")
+        if self.q == 1 and relations == 1:
             return self.statement_with("=", "≠")
         return "not all of the equalities in H0 hold"
 
@@ -585,10 +676,17 @@ def reduce_rows(
 
 
 def _beta_weights(design: Design, rows) -> tuple[tuple[Fraction, ...], ...]:
+    """L = C·D exactly: each row is scaled to integers by the least common multiple of its
+    denominators, multiplied by the (integer) design over the cells it touches, and divided back."""
     m = design.matrix
     out = []
     for row in rows:
-        out.append(tuple(sum((row[c] * int(m[c, j]) for c in range(design.k)), Fraction(0)) for j in range(m.shape[1])))
+        nz = [c for c, w in enumerate(row) if w != 0]
+        scale = math.lcm(*(row[c].denominator for c in nz)) if nz else 1
+        ints = np.array([int(row[c] * scale) for c in nz], dtype=object)
+        sub = m[nz].astype(object) if nz else np.zeros((0, m.shape[1]), dtype=object)
+        totals = ints @ sub if nz else [0] * m.shape[1]
+        out.append(tuple(Fraction(int(t), scale) for t in totals))
     return tuple(out)
 
 
@@ -627,6 +725,16 @@ def compile_statement(
             "mixes > or < with =. Write the directional part and the equality as separate [[hypotheses]].",
             context,
         )
+    for j in range(2, len(sides)):
+        for i in range(j - 1):
+            if sides[i] == sides[j]:
+                start, end = _span(stmt.sides[j])
+                raise _error(
+                    source, start, end - start,
+                    f"repeats side {i + 1} ({unparse(stmt.sides[i])}) as side {j + 1}; the chain states that "
+                    "equality twice. Name each mean once, e.g. a = b = c.",
+                    context,
+                )
     rows, rhs, labels = [], [], []
     for i in range(len(sides) - 1):
         diff = sides[i] + sides[i + 1].scale(Fraction(-1))
@@ -684,7 +792,14 @@ def effect_weights(design: Design, factors: Sequence[str]) -> tuple[tuple[Fracti
 
 def parse_effect(design: Design, text: str, context: str = "") -> tuple[str, ...]:
     """Split ``"A x B"`` into factor names, checking each exists once."""
-    parts = [p.strip().strip("`") for p in re.split(r"\s+[x×]\s+|\s*:\s*|\s*\*\s*", text.strip())]
+    outside = re.sub(r"`[^`]*`", lambda m: " " * len(m.group()), text)
+    for op in (":", "*"):
+        if op in outside:
+            raise HypothesisError(
+                f"{context}: effect \"{text}\" uses '{op}'; in a plan, the factors of an interaction are "
+                f"joined by x, as in \"A x B\" (or A × B)."
+            )
+    parts = [p.strip().strip("`") for p in re.split(r"\s+[x×]\s+", text.strip())]
     names = [f.name for f in design.factors]
     out: list[str] = []
     for p in parts:

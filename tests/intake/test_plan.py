@@ -51,7 +51,7 @@ def test_numeric_levels_become_text(project):
         (('levels = ["peat", "coir", "bark", "soil"]', 'levels = ["1", "coir", "1.0"]'), 'lists the level "1.0" twice'),
         (('outcome = "height_mm"', ""), "'data.outcome' is required"),
         (('path = "heights.csv"', 'path = "heights.xlsx"'), "must end in .csv, .tsv or .parquet"),
-        (("[[hypotheses]]", "[analysis]\nalpha = 5\n[[hypotheses]]"), "'analysis.alpha' must be a number between 0 and 0.5"),
+        (("[[hypotheses]]", "[analysis]\nalpha = 5\n[[hypotheses]]"), "'analysis.alpha' must be a number between 1e-9 and 0.5"),
         (("[[hypotheses]]", "[analysis]\nss_type = \"IV\"\n[[hypotheses]]"), "'analysis.ss_type' must be one of"),
         (("[[hypotheses]]", "[analysis]\nposthoc = [\"all-pairs\", \"versus-control\"]\n[[hypotheses]]"),
          "'analysis.control' is required by posthoc \"versus-control\""),
