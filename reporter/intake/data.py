@@ -497,8 +497,13 @@ def _exact_from_text(arr, plan, keep, status, source: str = "data", line_of=None
 
 
 def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of) -> None:
-    """Refuse offsets from the pivot that float64 cannot hold, and a spread so wide that the sums
-    of squared deviations of the fit would overflow (n·range² must stay far below 1.8e308)."""
+    """Refuse offsets from the pivot that float64 cannot hold, and a spread of the outcome so wide
+    or so narrow that the fit's sums would overflow or underflow float64.
+
+    The fit forms squares of deviations (sums of squares) and squares of variances (the Welch
+    degrees of freedom), so fourth powers of the spread must stay within float64:
+    64·n²·spread⁴ ≤ 1.8e308 (about spread ≤ 1e76 / √n) and spread ≥ 1e-70 unless every value is equal.
+    """
     if first < 0:
         return
     idx = np.flatnonzero(ok)
@@ -514,14 +519,22 @@ def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of) -
         )
     lo, hi = int(idx[int(np.argmin(vals))]), int(idx[int(np.argmax(vals))])
     spread = float(y[hi]) - float(y[lo])
-    limit = math.sqrt(sys.float_info.max / (16.0 * max(idx.size, 1)))
-    if not (spread <= limit):
+    upper = (sys.float_info.max / (64.0 * float(idx.size) ** 2)) ** 0.25
+    shown = (f"the outcome '{outcome}' ranges from {float(y[lo]) + pivot!r} ({line_of(lo)}) to "
+             f"{float(y[hi]) + pivot!r} ({line_of(hi)})")
+    if not (spread <= upper):
         raise DataError(
-            f"{source}: the outcome '{outcome}' ranges from {float(y[lo]) + pivot:.6g} ({line_of(lo)}) to "
-            f"{float(y[hi]) + pivot:.6g} ({line_of(hi)}); with {idx.size} values a spread over {limit:.3g} "
-            "makes the sums of squares overflow float64 (about 1.8e308). Rescale the outcome (for example "
-            "use larger units)."
+            f"{source}: {shown}; with {idx.size} values a spread over {upper:.3g} makes the fit's sums "
+            "of squares overflow float64 (about 1.8e308). Rescale the outcome (for example use larger units)."
         )
+    if 0 < spread < _MIN_SPREAD:
+        raise DataError(
+            f"{source}: {shown}; a spread under {_MIN_SPREAD:g} makes the fit's sums of squares "
+            "underflow float64. Rescale the outcome (for example use smaller units)."
+        )
+
+
+_MIN_SPREAD = 1e-70
 
 
 # ---------------------------------------------------------------------------------------------

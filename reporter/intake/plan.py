@@ -77,6 +77,7 @@ class HypothesisSpec:
     role: str = "planned"
     description: str | None = None
     index: int = 0  # 1-based position in the plan
+    line: int | None = None  # line of the statement (means or effect) in the plan file
 
     @property
     def key_path(self) -> str:
@@ -722,7 +723,8 @@ def _read_hypotheses(doc, ck: _Checker) -> tuple[HypothesisSpec, ...]:
             raise ck.fail(p + "means", 'is missing: give means = "a > b" (a statement about means) or effect = "factor".', **loc)
         role = ck.choice(h, "role", p + "role", D.ROLES, "planned", **loc)
         desc = ck.text(h, "description", p + "description", required=False, limit=D.MAX_DESCRIPTION_CHARS, **loc)
-        out.append(HypothesisSpec(name=name, means=means, effect=effect, role=role, description=desc, index=i))
+        line = ck.loc.line_of("hypotheses", i, "means" if means is not None else "effect")
+        out.append(HypothesisSpec(name=name, means=means, effect=effect, role=role, description=desc, index=i, line=line))
     return tuple(out)
 
 

@@ -43,6 +43,7 @@ import numpy as np
 
 from reporter.errors import HypothesisError
 from reporter.intake import defaults as D
+from reporter.intake.files import describe_path
 from reporter.intake.numtext import why_not_plain
 from reporter.intake.plan import level_key
 from reporter.model.design import Design, in_row_space
@@ -852,12 +853,16 @@ def check_estimable(contrast: Contrast, design: Design, counts: Sequence[int], c
 def compile_hypotheses(plan, design: Design, counts: Sequence[int] | None = None) -> tuple[Contrast, ...]:
     """Compile every ``[[hypotheses]]`` table of the plan (checking estimability if counts given)."""
     out = []
+    where = ""
+    if getattr(plan, "source", None) is not None:
+        where = describe_path(plan.source) + ", "
     for spec in plan.hypotheses:
+        at = f"{where}line {spec.line}: " if where and spec.line else where
         if spec.means is not None:
-            ctx = f"{spec.key_path}.means (\"{spec.name}\")"
+            ctx = f"{at}{spec.key_path}.means (\"{spec.name}\")"
             c = compile_statement(design, spec.means, spec.name, spec.role, ctx)
         else:
-            ctx = f"{spec.key_path}.effect (\"{spec.name}\")"
+            ctx = f"{at}{spec.key_path}.effect (\"{spec.name}\")"
             c = compile_effect(design, spec.effect, spec.name, spec.role, ctx)
         if counts is not None:
             check_estimable(c, design, counts, ctx)
