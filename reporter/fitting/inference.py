@@ -248,7 +248,12 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
             kw = R.kruskal_wallis_ranked(rows.rank_sums(), cells.n)
         except FitError as exc:
             kw_note = f"not available: {exc}"
-    welch = R.welch_anova(n_obs, mean_obs, ss_obs) if one_way else None
+    welch = None
+    if one_way:
+        try:
+            welch = R.welch_anova(n_obs, mean_obs, ss_obs)
+        except FitError:  # a cell without a variance (n = 1); the robust table says why
+            welch = None
 
     families = []
     gh = None

@@ -346,8 +346,9 @@ class _Builder:
         alt = (f"Dot plot of {self.prep.data.outcome} for each of the {d.k} cells: {dots['alt']}, the cell mean as a "
                f"large marker with its {N.format_confidence_level(self.level)} confidence interval. Means: " + "; ".join(
                    f"{g} {_num(m)}" for g, m in zip(groups, means)) + ".")
+        head = f"{dots['caption']}, cell means" if dots["caption"] else "Cell means"
         return Figure("fig-means", runs_of(
-            f"{dots['caption']}, cell means and {N.format_confidence_level(self.level)} confidence intervals "
+            f"{head} and {N.format_confidence_level(self.level)} confidence intervals "
             f"of {self.prep.data.outcome}.{dots['note']}"), alt, spec)
 
     def points_phrase(self) -> dict[str, str]:
@@ -356,7 +357,7 @@ class _Builder:
         pts = self.a.points
         if pts is None:
             return {"alt": "no individual observations (the input holds cell summaries only)",
-                    "caption": "Cell means", "note": " Individual observations are not available."}
+                    "caption": "", "note": " Individual observations are not available."}
         big = [p for p in pts if p.summarized]
         if not big:
             return {"alt": "every observation as a faint dot", "caption": "Observations (dots)", "note": ""}

@@ -269,3 +269,14 @@ def test_nist_through_summaries(name, tmp_path):
     print(f"\nLRE {name} via summaries: " + "  ".join(f"{k}={v:.1f}" for k, v in by_summary.items()))
     for k, v in by_summary.items():
         assert v >= 13.0 and v >= by_rows[k] - 0.5, (k, v, by_rows[k])
+
+
+def test_single_observation_cell_runs_through(tmp_path):
+    """A cell with n = 1 and an empty SD (as stddev_samp writes it) gives a whole report; the robust
+    test that needs every cell's variance says it is not available instead of stopping the run."""
+    table = "medium,n,mean,sd\npeat,12,101.23,4.12\ncoir,1,103.87,\nbark,11,105.40,6.20\nsoil,10,108.02,7.33\n"
+    prep = _summary_project(tmp_path, table)
+    analysis = analyse(prep)
+    assert analysis.cells.ss[1] == 0.0 and analysis.anova.df_error == 34 - 4
+    md = render_outputs(prep, analysis, ("md",))["md"].decode()
+    assert "robust test not available" in md and "fewer than 2 rows" in md
