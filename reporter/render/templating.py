@@ -272,12 +272,13 @@ def _quote(text: str) -> MarkdownText:
 # --- Environments ------------------------------------------------------------------------
 
 
-_DECIMAL = re.compile(r"((?:=|&lt;|&gt;|≤|≥)\s)?[−-]?(?:\d[\d,]*)?\.\d+")
+_DECIMAL = re.compile(r"(\s?(?:=|&lt;|&gt;|≤|≥)\s)?[−-]?(?:\d[\d,]*)?\.\d+")
 
 
 def keep_numbers(text: str) -> Markup:
-    """Escape ``text`` and keep each decimal number (with a relation before it, as in
-    ``= .012``) on one line: some line breakers allow a break after a leading decimal point."""
+    """Escape ``text`` and keep each decimal number (with a relation before it and the space
+    before that, as in `` = .012``) on one line: some line breakers allow a break after a
+    leading decimal point, and a line that starts with "= .012" loses its symbol ("p")."""
     escaped = str(escape(_html_text(text)))
     return Markup(_DECIMAL.sub(lambda m: f'<span class="nb">{m.group(0)}</span>', escaped))
 

@@ -141,11 +141,13 @@ def test_italic_runs_become_em(html, methods_text):
 
 
 def test_decimal_numbers_do_not_break_across_lines():
-    """A decimal number and its relation stay on one line: '= .012' is wrapped in a no-break span."""
+    """A decimal number, its relation and the space before that stay on one line: ' = .012' is
+    wrapped in a no-break span, so no line starts with '= .012' (a break before a space is not
+    allowed, UAX #14 rule LB7)."""
     from reporter.render.templating import keep_numbers
 
     assert str(keep_numbers("p = .012 and 3 < 4.5")) == (
-        'p <span class="nb">= .012</span> and 3 <span class="nb">&lt; 4.5</span>')
+        'p<span class="nb"> = .012</span> and 3<span class="nb"> &lt; 4.5</span>')
     assert str(keep_numbers("<b>1.5</b>")) == '&lt;b&gt;<span class="nb">1.5</span>&lt;/b&gt;'
 
 
