@@ -34,9 +34,11 @@ CORRECTION_SHORT = {
     "holm": "Holm-adjusted",
     "hochberg": "Hochberg-adjusted",
     "bonferroni": "Bonferroni-adjusted",
-    "benjamini-hochberg": "BH-adjusted",
+    "benjamini-hochberg": "Benjamini–Hochberg-adjusted",
     "none": "unadjusted",
 }
+#: The plan key that chooses between the classical and the robust tests, as the report names it.
+POLICY_KEY = "unequal_variances"
 PARAM_WORDS = {
     "cell-means": "cell-means coding (one coefficient per cell, each the mean of its cell)",
     "effects": "effects coding (sum to zero; the last listed level of each factor is coded −1, "
@@ -95,6 +97,13 @@ def _words_list(items: Sequence[str]) -> str:
 # Outlier rows listed in the report (results.json lists up to the scan's limit).
 OUTLIERS_SHOWN = 20
 
+
+def _rows_phrase(rows) -> str:
+    """Data-file rows named with the right noun: "row 68", "rows 68 and 70", "rows 3, 9, and 12"."""
+    rows = [str(r) for r in rows]
+    return f"{'row' if len(rows) == 1 else 'rows'} {_words_list(rows)}"
+
+
 _NUMBER_WORDS = ["no", "one", "two", "three", "four", "five", "six", "seven", "eight", "nine", "ten"]
 
 
@@ -114,6 +123,7 @@ class _Builder:
         self.level = 1 - analysis.alpha
         self.multi = len(self.design.factors) > 1
         self.inf = getattr(analysis, "inference", None)
+        self._explained: dict[str, int] = {}  # robust method -> the hypothesis under which it is explained
 
     # -- helpers ------------------------------------------------------------------------------
     def cell_name(self, cell) -> str:
@@ -160,8 +170,7 @@ class _Builder:
         text += (f"This report analyses {N.format_count(self.prep.data.n)} observations of "
                  f"{self.prep.data.outcome} in {self.design_phrase()}. ")
         if planned:
-            k = len(supported)
-            text += (f"{k} of the {len(planned)} planned hypotheses {'was' if k == 1 else 'were'} supported at "
+            text += (f"{self.supported_phrase(len(supported), len(planned))} supported at "
                      f"α = {N.format_bounded(self.alpha, 2)} after {CORRECTION_NAMES[planned[0].correction]}; "
                      "each is reported below with its estimate, interval and effect size.")
         else:
@@ -172,6 +181,19 @@ class _Builder:
                 "The data are analysed exactly as the plan file states; every number below can be recomputed "
                 "from the recorded inputs (see “Where this report came from”)."), "small"),
         )
+
+    @staticmethod
+    def supported_phrase(k: int, total: int) -> str:
+        """The start of the summary's verdict, in words: "Two of the three planned hypotheses were"."""
+        def word(n):
+            return _NUMBER_WORDS[n] if 0 <= n < len(_NUMBER_WORDS) else N.format_count(n)
+        if total == 1:
+            return "The one planned hypothesis was" + ("" if k else " not")
+        if k == total:
+            return f"{'Both' if total == 2 else 'All ' + word(total)} planned hypotheses were"
+        if k == 0:
+            return f"{'Neither of the two' if total == 2 else 'None of the ' + word(total)} planned hypotheses was"
+        return f"{word(k).capitalize()} of the {word(total)} planned hypotheses {'was' if k == 1 else 'were'}"
 
     def design_phrase(self) -> str:
         fs = self.design.factors
@@ -243,7 +265,7 @@ class _Builder:
                 c = h.contrast
                 kind = ("directional, one-sided t test" if c.alternative != "two-sided"
                         else "two-sided t test" if c.test == "t" else f"F test with {c.q} numerator df")
-                items.append(runs_of(f"{h.contrast.name} ({h.family}; {kind}): H0: {_unquote(c.null_text())}"))
+                items.append(runs_of(f"{h.contrast.name} ({h.family}; {kind}): null hypothesis {_unquote(c.null_text())}"))
             blocks.append(Paragraph(_lead("Hypotheses",
                 f"The plan states {_count_words(len(planned), 'planned hypothesis', 'planned hypotheses')}"
                 f" (the confirmatory family) and {_count_words(len(explor), 'exploratory one', 'exploratory ones')}:")))
@@ -368,6 +390,60 @@ class _Builder:
                 "note": f" In cells of more than {m} rows the dots are {m} evenly spaced quantiles of the cell's "
                         "values, not every observation."}
 
+    def notation(self) -> Note:
+        """The box that defines every symbol of the model and the hypotheses, placed before their first use.
+
+        Symbols are set as everywhere else in the report: Latin letters standing for matrices and
+        vectors in italics (through :func:`numbers.symbol`), Greek letters upright.
+        """
+        d, n = self.design, self.prep.data.n
+        example = self.cell_name(d.cells[min(1, d.k - 1)])
+        example_short = d.cells[min(1, d.k - 1)].short
+        level_example = (f"mean({d.factors[0].name}={d.factors[0].levels[0]}) is the average of the cell means "
+                         f"at that level of {d.factors[0].name}" if self.multi
+                         else f"mean({example}) is simply the cell mean μ[{example_short}]")
+        items = [
+            (runs_of("μ"), runs_of(
+                f"A cell mean: the mean of {self.prep.data.outcome} in one cell (group) of the design, as the model "
+                f"estimates it. μ[{example_short}] is the mean of the cell {example}; μ alone stands for all "
+                f"{d.k} cell means, in the order of the cell summary table.")),
+            (runs_of("mean(…)"), runs_of(
+                f"The unweighted mean of the cells named in the brackets, each cell counted once whatever its "
+                f"number of observations: {level_example}.")),
+            (runs_of("μ̄"), runs_of(f"The average of all {d.k} cell means, each cell counted once.")),
+            (runs_of("β"), runs_of(
+                "The model's coefficients, β0, β1, …, one for each column of the design matrix. What each one "
+                "means depends on the coding the plan chose; the tests of hypotheses about means do not.")),
+            (runs_of(N.symbol("X")), runs_of(
+                f"The design matrix: one row for each of the {N.format_count(n)} analysed observations, one column "
+                "for each coefficient.")),
+            (runs_of(N.symbol("D")), runs_of(
+                "The design matrix of the cells: the distinct rows of ", N.symbol("X"), ", one for each cell, so that ",
+                N.symbol("μ = D·β"), ".")),
+            (runs_of(N.symbol("D⁻¹")), runs_of(
+                "The inverse of ", N.symbol("D"), ", so that ", N.symbol("β = D⁻¹μ"), ": each row of ", N.symbol("D⁻¹"),
+                " gives the combination of cell means that one coefficient estimates.")),
+        ]
+        if self.a.hypotheses:
+            items += [
+                (runs_of(N.symbol("C·μ = h")), runs_of(
+                    "A hypothesis about the cell means, written as a matrix ", N.symbol("C"), " of weights (one column "
+                    "for each cell) applied to the cell means. The null hypothesis is that this equation holds.")),
+                (runs_of(N.symbol("h")), runs_of(
+                    "The value that each row of ", N.symbol("C·μ"), " takes under the null hypothesis; 0 unless the "
+                    "plan's statement sets another value.")),
+                (runs_of("row"), runs_of(
+                    "One line of ", N.symbol("C"), " (or of ", N.symbol("L"), "): one weighted combination of means "
+                    "that the null hypothesis sets equal to its ", N.symbol("h"), ". A hypothesis of one row is usually tested "
+                    "with a ", N.symbol("t"), " test; several rows are tested together with one ", N.symbol("F"),
+                    " test.")),
+                (runs_of(N.symbol("L = C·D")), runs_of(
+                    "The same hypothesis written over the coefficients: ", N.symbol("L·β = h"), " states exactly what ",
+                    N.symbol("C·μ = h"), " states.")),
+                (runs_of("H0, H1"), runs_of("The null hypothesis and the alternative hypothesis.")),
+            ]
+        return Note("info", "Notation used from here on", (DefinitionList(tuple(items)),))
+
     def model_section(self) -> Section:
         d, a = self.design, self.a
         coefs = d.coefficients
@@ -386,7 +462,7 @@ class _Builder:
             "design-matrix",
             runs_of(f"Design matrix ({d.parameterization} parameterization): its distinct rows, one per observed cell"),
             tuple(cols), tuple(rows),
-            notes=(runs_of(f"Each row stands for the data rows of its cell (last column); X has "
+            notes=(runs_of("Each row stands for the data rows of its cell (last column); ", N.symbol("X"), " has "
                            f"{N.format_count(self.prep.data.n)} rows and {len(coefs)} columns. Columns: "
                            + "; ".join(f"{c.symbol} = {c.label}" for c in coefs) + "."),),
             highlight=tuple(marks), compact=True,
@@ -406,14 +482,14 @@ class _Builder:
                           runs_of(c.meaning_words(d)),
                           runs_of(_num(est) if ok else "not estimable"), runs_of(_num(se) if ok else "—")))
         meanings = Table(
-            "coefficients", runs_of("What each coefficient estimates, as a combination of cell means (β = D⁻¹μ)"),
+            "coefficients", runs_of("What each coefficient estimates, as a combination of cell means (", N.symbol("β = D⁻¹μ"), ")"),
             (Column(runs_of("β")), Column(runs_of("column")), Column(runs_of("in symbols")), Column(runs_of("in words")),
              Column(runs_of("estimate"), "right"), Column(runs_of(N.symbol("SE")), "right")),
             tuple(mrows),
             notes=((runs_of(f"μ̄ is the average of the {d.k} cell means, each cell counted once whatever its n."),)
                    if any(not ref.fixed for c in coefs for _, ref in c.meaning) else ()),
         )
-        return Section("model", "The model", (matrix, rule, meanings))
+        return Section("model", "The model", (self.notation(), matrix, rule, meanings))
 
     def marginal_section(self) -> Section | None:
         a = self.a
@@ -472,23 +548,28 @@ class _Builder:
         blocks.append(Paragraph(runs_of("H0: ", _unquote(c.null_text())), "symbols"))
         blocks.append(Paragraph(runs_of("H1: ", _unquote(c.alternative_text())), "symbols"))
         blocks.append(Paragraph(runs_of(self.hypothesis_words(h))))
+        confirm_note = self.confirmatory_note(h, i)
         for n in h.notes:
+            if confirm_note and n == self.fitted_confirm_note(h):
+                continue  # said in plain words just below
             blocks.append(Paragraph(runs_of("Note: " + n), "small"))
+        if confirm_note:
+            blocks.append(Paragraph(confirm_note))
         cells_cols = (Column(runs_of("row")),) + tuple(Column(runs_of(cell.short), "center") for cell in d.cells) + (
-            Column(runs_of("h"), "right"),)
+            Column(runs_of(N.symbol("h")), "right"),)
         rows, marks = [], []
         for r, (row, rhs) in enumerate(zip(c.weights, c.rhs), start=1):
             rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(_fr(rhs))))
             marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
-        blocks.append(Table(f"h{i}-cells", runs_of("Contrast over cell means (C·μ = h)"), cells_cols, tuple(rows),
+        blocks.append(Table(f"h{i}-cells", runs_of("Contrast over cell means (", N.symbol("C·μ = h"), ")"), cells_cols, tuple(rows),
                             highlight=tuple(marks), compact=True))
         beta_cols = (Column(runs_of("row")),) + tuple(Column(runs_of(co.symbol), "center") for co in d.coefficients) + (
-            Column(runs_of("h"), "right"),)
+            Column(runs_of(N.symbol("h")), "right"),)
         rows, marks = [], []
         for r, (row, rhs) in enumerate(zip(c.beta_weights, c.rhs), start=1):
             rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(_fr(rhs))))
             marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
-        blocks.append(Table(f"h{i}-betas", runs_of(f"The same contrast over the coefficients (L = C·D, {d.parameterization} coding)"),
+        blocks.append(Table(f"h{i}-betas", runs_of("The same contrast over the coefficients (", N.symbol("L = C·D"), f", {d.parameterization} coding)"),
                             beta_cols, tuple(rows), highlight=tuple(marks), compact=True))
         if self.robust_confirmatory(h):
             items = [(runs_of("Confirmatory test"), runs_of(self.confirm_stat(h), ", ", self.p_text(h))),
@@ -513,7 +594,45 @@ class _Builder:
                                                  f"{'hypothesis' if size == 1 else 'hypotheses'}, {CORRECTION_NAMES[h.correction]}")))
         blocks.append(DefinitionList(tuple(items)))
         blocks.append(Paragraph(runs_of(self.reading(h)), "reading"))
-        return Section(f"h{i}", f"{i}. {c.name}", tuple(blocks), level=3)
+        return Section(f"h{i}", c.name, tuple(blocks), level=3, number=str(i))
+
+    @staticmethod
+    def fitted_confirm_note(h) -> str:
+        """The fitting layer's short note on a robust confirmatory test (kept in results.json)."""
+        e = h.extras
+        return f"The confirmatory test is the {e.robust.method}: {e.reason}." if e is not None and e.robust else ""
+
+    def confirmatory_note(self, h, number: int):
+        """Where a robust test becomes the confirmatory one: why, and (the first time) what that test is."""
+        if not self.robust_confirmatory(h):
+            return None
+        method = h.extras.robust.method
+        name = {"HC3 Wald F": "the HC3 Wald test", "Welch–Satterthwaite t": "the Welch–Satterthwaite test",
+                "Welch's ANOVA": "Welch's ANOVA"}.get(method, method)
+        policy = self.plan.analysis.unequal_variances
+        why = (f"Because the plan sets {POLICY_KEY} = \"{policy}\"" if policy != "robust-if-heterogeneous" else
+               f"Because the Brown–Forsythe test indicated unequal variances and the plan sets {POLICY_KEY} = \"{policy}\"")
+        first = self._explained.setdefault(method, number)
+        if first != number:
+            return runs_of(_lead("Confirmatory test", f"{why}, the confirmatory test is {name} (explained under "
+                                 f"hypothesis {first}); the classical test is shown for comparison."))
+        what = {
+            "HC3 Wald F": runs_of(
+                ", a Wald ", N.symbol("F"), " test with heteroscedasticity-consistent standard errors of type HC3. It "
+                "tests the same ", N.symbol("C·μ = h"), " as the classical ", N.symbol("F"), " test, but estimates the "
+                "variance of each cell mean from that cell's own residuals (enlarged for the cell's leverage) instead "
+                "of from one variance pooled over all cells, so it stays valid when the cells' variances differ "
+                "(MacKinnon & White, 1985; Long & Ervin, 2000)."),
+            "Welch–Satterthwaite t": runs_of(
+                ", Welch's ", N.symbol("t"), " test for a contrast. It uses each cell's own variance instead of one "
+                "variance pooled over all cells, with Satterthwaite's approximate degrees of freedom (Welch, 1947), so "
+                "it stays valid when the cells' variances differ."),
+            "Welch's ANOVA": runs_of(
+                ", an ", N.symbol("F"), " test that weights each cell mean by its precision and so does not assume "
+                "equal variances (Welch, 1951)."),
+        }.get(method, runs_of("."))
+        return runs_of(_lead("Confirmatory test", f"{why}, the confirmatory test is {name}"), what,
+                       " The classical test is shown for comparison.")
 
     def family_size(self, family) -> int:
         return sum(1 for h in self.a.hypotheses if h.family == family)
@@ -663,7 +782,7 @@ class _Builder:
         powers = self.inf.rows[0].sensitivity.powers if self.inf.rows[0].sensitivity else (0.8, 0.9)
         cols = (Column(runs_of("effect")), Column(runs_of(N.symbol("df")), "right"),
                 *(Column(runs_of(f"{N.format_confidence_level(pw)} power"), "right") for pw in powers))
-        return Table("sensitivity", runs_of("Sensitivity: the smallest Cohen's ", N.symbol("f"),
+        return Table("sensitivity", runs_of("Smallest detectable effects: the smallest Cohen's ", N.symbol("f"),
                                             f" each test could detect with this sample at α = {N.format_bounded(self.alpha, 2)}"),
                      cols, tuple(rows),
                      notes=(runs_of("Noncentral F with λ = f²·N (Cohen, 1988). These describe the design, not the observed "
@@ -728,10 +847,7 @@ class _Builder:
             (runs_of("Plan SHA-256"), runs_of(p.plan_sha256 or "—")),
             (runs_of("Data file"), runs_of(f"{p.data_file} ({p.data_format})")),
             (runs_of("Data SHA-256"), runs_of(p.data_sha256 or "—")),
-            (runs_of("Outcome intake"), runs_of(
-                ("table of cell summaries; means " if self.prep.data.summary is not None else "")
-                + ("exact decimal (pivot subtracted before conversion)" if self.prep.data.exact_decimal
-                   else "binary floating point as stored in the file"))),
+            (runs_of("How the outcome was read"), runs_of(self.intake_words())),
             (runs_of("Software"), runs_of(", ".join(f"{k} {v}" for k, v in p.software))),
             (runs_of("Created"), runs_of(p.created)),
         ]
@@ -740,6 +856,19 @@ class _Builder:
                               "number in this report.")),
             DefinitionList(tuple(items)),
         ))
+
+    def intake_words(self) -> str:
+        data = self.prep.data
+        summary = getattr(data, "summary", None) is not None
+        source = "from a table of cell summaries (each cell's count, mean and spread); " if summary else ""
+        what, each = ("cell means", "mean") if summary else ("values of the outcome", "value")
+        if data.exact_decimal:
+            return (f"{source}from the text of the file, as exact decimals: one of the {what}, {data.pivot_text}, was "
+                    f"subtracted from every {each} in exact decimal arithmetic, and only these differences were "
+                    "converted to binary floating point, so no digits are lost when the values are large or close "
+                    "together. Means and other locations are reported on the file's own scale.")
+        return (f"{source}as the binary floating-point numbers stored in the {self.prov.data_format} file, which carry "
+                "about 15 to 17 significant digits.")
 
     def build(self) -> Document:
         sections = [self.methods(), self.cells_section(), self.model_section()]
@@ -853,8 +982,8 @@ class _Builder:
 
     def robust_table(self) -> Table:
         short = {"Welch–Satterthwaite t": "Welch", "Welch's ANOVA": "Welch", "HC3 Wald F": "HC3"}
-        cols = (Column(runs_of("hypothesis")), Column(runs_of("classical")), Column(runs_of(N.symbol("p")), "right"),
-                Column(runs_of("robust")), Column(runs_of(N.symbol("p")), "right"),
+        cols = (Column(runs_of("hypothesis")), Column(runs_of("classical"), nowrap=True), Column(runs_of(N.symbol("p")), "right"),
+                Column(runs_of("robust"), nowrap=True), Column(runs_of(N.symbol("p")), "right"),
                 Column(runs_of("permutation ", N.symbol("p")), "right"), Column(runs_of("confirmatory")))
         rows = []
         for h in self.a.hypotheses:
@@ -906,9 +1035,10 @@ class _Builder:
     def outlier_table(self) -> Table:
         s = self.inf.outlier_sensitivity
         shown = s.rows_removed[:OUTLIERS_SHOWN]
-        removed = "rows " + ", ".join(str(r) for r in shown)
+        removed = _rows_phrase(shown)
         if s.n_removed > len(shown):
-            removed = f"the {N.format_count(s.n_removed)} flagged rows (the first {len(shown)}: {removed[5:]}, …)"
+            removed = (f"the {N.format_count(s.n_removed)} flagged rows (the first {len(shown)}: "
+                       f"{', '.join(str(r) for r in shown)}, …)")
         by_name = {h.contrast.name: h for h in self.a.hypotheses}
         rows = []
         for name, t, note in s.tests:
@@ -916,8 +1046,11 @@ class _Builder:
             with_ = runs_of(self.test_stat(h.test), ", ", N.stat_p(h.test.p))
             without = runs_of(note) if t is None else runs_of(self.test_stat(t), ", ", N.stat_p(t.p))
             rows.append((runs_of(name), with_, without))
-        return Table("outlier-sensitivity", runs_of("Sensitivity: planned tests with and without the flagged rows"),
-                     (Column(runs_of("hypothesis")), Column(runs_of("all rows")), Column(runs_of(f"without {removed}"))),
+        flagged = "the flagged outlier" if s.n_removed == 1 else "the flagged outliers"
+        return Table("outlier-sensitivity", runs_of(f"Influence of {flagged}: planned tests with all rows and without "
+                                                    f"{'it' if s.n_removed == 1 else 'them'}"),
+                     (Column(runs_of("hypothesis")), Column(runs_of("all rows"), nowrap=True),
+                      Column(runs_of(f"without {removed}"), nowrap=True)),
                      tuple(rows), notes=(runs_of("Reported for comparison only; the confirmatory results use all rows. "
                                                  "The cell statistics without the flagged rows are updated from those "
                                                  "rows' own sums."),))

@@ -52,8 +52,12 @@ class BulletList:
 
 @dataclass(frozen=True)
 class Column:
+    """A table column. ``nowrap`` keeps each cell on one line (a test statistic such as
+    ``t(110) = 2.29, p = .012`` must not break inside)."""
+
     label: Runs
     align: str = "left"  # "left" | "right" | "center"
+    nowrap: bool = False
 
 
 @dataclass(frozen=True)
@@ -114,11 +118,15 @@ class Note:
 
 @dataclass(frozen=True)
 class Section:
+    """A titled part of the report. ``number`` (e.g. "1" for the first hypothesis) is shown
+    before the title, in the heading and in the contents, which then adds no number of its own."""
+
     id: str
     title: str
     blocks: tuple["Block", ...]
     subsections: tuple["Section", ...] = ()
     level: int = 2
+    number: str = ""
 
 
 Block = Union[Paragraph, BulletList, Table, Figure, DefinitionList, Note, Section]
