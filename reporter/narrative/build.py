@@ -561,7 +561,7 @@ class _Builder:
         for r, (row, rhs) in enumerate(zip(c.weights, c.rhs), start=1):
             rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(_fr(rhs))))
             marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
-        blocks.append(Table(f"h{i}-cells", runs_of("Contrast over cell means (", N.symbol("C·μ = h"), ")"), cells_cols, tuple(rows),
+        blocks.append(Table(f"h{i}-cells", runs_of(f"Hypothesis {i} as a contrast over the cell means (", N.symbol("C·μ = h"), ")"), cells_cols, tuple(rows),
                             highlight=tuple(marks), compact=True))
         beta_cols = (Column(runs_of("row")),) + tuple(Column(runs_of(co.symbol), "center") for co in d.coefficients) + (
             Column(runs_of(N.symbol("h")), "right"),)
@@ -569,7 +569,8 @@ class _Builder:
         for r, (row, rhs) in enumerate(zip(c.beta_weights, c.rhs), start=1):
             rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(_fr(rhs))))
             marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
-        blocks.append(Table(f"h{i}-betas", runs_of("The same contrast over the coefficients (", N.symbol("L = C·D"), f", {d.parameterization} coding)"),
+        blocks.append(Table(f"h{i}-betas", runs_of(f"Hypothesis {i} as the same contrast over the coefficients (", N.symbol("L = C·D"),
+                                    f", {d.parameterization} coding)"),
                             beta_cols, tuple(rows), highlight=tuple(marks), compact=True))
         if self.robust_confirmatory(h):
             items = [(runs_of("Confirmatory test"), runs_of(self.confirm_stat(h), ", ", self.p_text(h))),
