@@ -136,7 +136,7 @@ def test_hostile_text_is_escaped(html, page, hostile_level):
 def test_italic_runs_become_em(html, methods_text):
     """Runs marked italic are set in <em>, upright runs are not."""
     assert "(<em>MSE</em>)" in html
-    assert '<em>F</em>(3, 12) <span class="nb">= 43.10</span>, <em>p</em> <span class="nb">&lt; .001</span>' in html
+    assert '<em>F</em>(3, 12)<span class="nb"> = 43.10</span>, <em>p</em><span class="nb"> &lt; .001</span>' in html
     assert methods_text in html
 
 
