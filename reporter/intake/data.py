@@ -392,7 +392,7 @@ def _match_levels(plan, factor, values, source, line_of):
         parts = []
         for u in unknown[:10]:
             where = np.flatnonzero(inv == u)
-            parts.append(f'"{_value_text(uniq[u])}" ({where.size} rows, first at {line_of(int(where[0]))})')
+            parts.append(f'"{_value_text(uniq[u])}" ({where.size} {"row" if where.size == 1 else "rows"}, first at {line_of(int(where[0]))})')
         more = f" and {len(unknown) - 10} more" if len(unknown) > 10 else ""
         listed = ", ".join(f'"{lv}"' for lv in factor.levels)
         raise DataError(

@@ -670,7 +670,7 @@ def reduce_rows(
             )
         dropped.append(label)
     notes = [
-        f"{label} follows from the other rows and was dropped; {len(kept)} rows of full rank remain."
+        f"{label} follows from the other rows and was dropped; {len(kept)} {'row' if len(kept) == 1 else 'rows'} of full rank remain{'s' if len(kept) == 1 else ''}."
         for label in dropped
     ]
     return kept, kept_h, notes
