@@ -39,11 +39,13 @@ CORRECTION_SHORT = {
 }
 #: The plan key that chooses between the classical and the robust tests, as the report names it.
 POLICY_KEY = "unequal_variances"
+#: The plan's name of each coding (the key ``coding``), by its internal value.
+CODING_NAMES = {"cell-means": "cell-means", "effects": "sum-to-zero", "reference": "reference-level"}
 PARAM_WORDS = {
     "cell-means": "cell-means coding (one coefficient per cell, each the mean of its cell)",
-    "effects": "effects coding (sum to zero; the last listed level of each factor is coded −1, "
+    "effects": "sum-to-zero coding (the last listed level of each factor is coded −1, "
     "so each coefficient is a deviation from an average of cell means)",
-    "reference": "reference coding (the first listed level of each factor is the reference, "
+    "reference": "reference-level coding (the first listed level of each factor is the reference, "
     "so each coefficient is a difference from the reference cell)",
 }
 SS_WHY = {
@@ -96,6 +98,11 @@ def _words_list(items: Sequence[str]) -> str:
 
 # Outlier rows listed in the report (results.json lists up to the scan's limit).
 OUTLIERS_SHOWN = 20
+
+
+def _count_noun(n: int, noun: str) -> str:
+    """A count in figures with its noun in the right number: "1 row", "1,204 rows"."""
+    return f"{N.format_count(n)} {noun if n == 1 else noun + 's'}"
 
 
 def _rows_phrase(rows) -> str:
@@ -227,7 +234,7 @@ class _Builder:
             reasons = "; ".join(f"{e.count} for {e.reason}" for e in excl)
             left = sum(e.count for e in excl)
             sample = (
-                f"The data file {self.prov.data_file} held {N.format_count(data.n_read)} rows; "
+                f"The data file {self.prov.data_file} held {_count_noun(data.n_read, 'row')}; "
                 f"{N.format_count(data.n)} were analysed and {N.format_count(left)} left out ({reasons}). "
                 "No row was dropped silently; the row numbers are listed in the results file."
             )
@@ -248,8 +255,8 @@ class _Builder:
 
         blocks.append(Paragraph(_lead("Model",
             f"The outcome, {data.outcome}, was modelled by a linear model with one mean per cell "
-            f"(the full model, including all interactions), fitted by ordinary least squares and "
-            f"parameterized with {PARAM_WORDS[d.parameterization]}. The parameterization changes what "
+            f"(the full model, including all interactions), fitted by ordinary least squares, with "
+            f"{PARAM_WORDS[d.parameterization]}. The coding changes what "
             "each coefficient means, never the test of a hypothesis about means.")))
         why = SS_WHY[a.anova.ss_type]
         agree = " The design is balanced, so Types I, II and III coincide." if a.anova.balanced and self.multi else ""
@@ -460,10 +467,10 @@ class _Builder:
             marks.append(("",) + tuple("pos" if v > 0 else "neg" if v < 0 else "zero" for v in vals) + ("",))
         matrix = Table(
             "design-matrix",
-            runs_of(f"Design matrix ({d.parameterization} parameterization): its distinct rows, one per observed cell"),
+            runs_of(f"Design matrix ({CODING_NAMES[d.parameterization]} coding): its distinct rows, one per observed cell"),
             tuple(cols), tuple(rows),
             notes=(runs_of("Each row stands for the data rows of its cell (last column); ", N.symbol("X"), " has "
-                           f"{N.format_count(self.prep.data.n)} rows and {len(coefs)} columns. Columns: "
+                           f"{_count_noun(self.prep.data.n, 'row')} and {_count_noun(len(coefs), 'column')}. Columns: "
                            + "; ".join(f"{c.symbol} = {c.label}" for c in coefs) + "."),),
             highlight=tuple(marks), compact=True,
         )
@@ -570,7 +577,7 @@ class _Builder:
             rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(_fr(rhs))))
             marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
         blocks.append(Table(f"h{i}-betas", runs_of(f"Hypothesis {i} as the same contrast over the coefficients (", N.symbol("L = C·D"),
-                                    f", {d.parameterization} coding)"),
+                                    f", {CODING_NAMES[d.parameterization]} coding)"),
                             beta_cols, tuple(rows), highlight=tuple(marks), compact=True))
         if self.robust_confirmatory(h):
             items = [(runs_of("Confirmatory test"), runs_of(self.confirm_stat(h), ", ", self.p_text(h))),
