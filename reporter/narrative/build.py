@@ -272,7 +272,7 @@ class _Builder:
                 c = h.contrast
                 kind = ("directional, one-sided t test" if c.alternative != "two-sided"
                         else "two-sided t test" if c.test == "t" else f"F test with {c.q} numerator df")
-                items.append(runs_of(f"{h.contrast.name} ({h.family}; {kind}): null hypothesis {_unquote(c.null_text())}"))
+                items.append(runs_of(f"{h.contrast.name} ({h.family}; {kind}). Null hypothesis: {_unquote(c.null_text())}"))
             blocks.append(Paragraph(_lead("Hypotheses",
                 f"The plan states {_count_words(len(planned), 'planned hypothesis', 'planned hypotheses')}"
                 f" (the confirmatory family) and {_count_words(len(explor), 'exploratory one', 'exploratory ones')}:")))
@@ -294,8 +294,9 @@ class _Builder:
         given = [(k, v) for k, v in fields if v]
         if given:
             blocks.append(DefinitionList(tuple((runs_of(k), runs_of(v.strip())) for k, v in given)))
-        soft = ", ".join(f"{k} {v}" for k, v in self.prov.software)
-        blocks.append(Paragraph(_lead("Software", f"anova-report with {soft}.")))
+        own = dict(self.prov.software).get("anova-report")
+        soft = ", ".join(f"{k} {v}" for k, v in self.prov.software if k != "anova-report")
+        blocks.append(Paragraph(_lead("Software", f"anova-report{' ' + own if own else ''}, running on {soft}.")))
         return Section("methods", "Methods", tuple(blocks))
 
     def assumption_methods(self) -> list[Paragraph]:
@@ -310,6 +311,11 @@ class _Builder:
             "whatever the variance check shows, which avoids the error-rate distortion of a two-stage "
             "choice (Zimmerman, 2004).",
         }[policy]
+        where = (", each described under the first hypothesis where it is the confirmatory test"
+                 if any(self.robust_confirmatory(h) for h in self.a.hypotheses) else "")
+        words += (" The robust versions do not assume equal variances: Welch's t test for a one-row contrast, "
+                  "Welch's ANOVA for a one-way effect, and otherwise a Wald F test with heteroscedasticity-"
+                  f"consistent (HC3) standard errors{where}.")
         return [Paragraph(_lead("Assumptions",
             "Independence of observations follows from the design and cannot be checked "
             "from the data. Equality of variances across cells was checked with the Brown–Forsythe test "
@@ -764,7 +770,8 @@ class _Builder:
         notes.append(runs_of(N.symbol("R²"), f" = {N.format_bounded(tab.r_squared, 2)}; residual ", N.symbol("SD"),
                              f" = {_num(tab.residual_sd)}."))
         notes.append(runs_of(f"Partial η² intervals are {lvl2} intervals from the noncentral F (Steiger, 2004), "
-                             "mapped by λ/(λ + df1 + df2 + 1); a lower limit of .00 means zero is compatible with the data."))
+                             "mapped by λ/(λ + df1 + df2 + 1), where λ is the noncentrality of the F distribution; a lower "
+                             "limit of .00 means zero is compatible with the data."))
         for r in tab.rows:
             if r.note:
                 notes.append(runs_of(f"{r.source}: {r.note}."))
@@ -793,7 +800,8 @@ class _Builder:
         return Table("sensitivity", runs_of("Smallest detectable effects: the smallest Cohen's ", N.symbol("f"),
                                             f" each test could detect with this sample at α = {N.format_bounded(self.alpha, 2)}"),
                      cols, tuple(rows),
-                     notes=(runs_of("Noncentral F with λ = f²·N (Cohen, 1988). These describe the design, not the observed "
+                     notes=(runs_of("Computed from the noncentral F distribution with noncentrality λ = f²·N, N the number of observations "
+                                    "(Cohen, 1988). These describe the design, not the observed "
                                     "effects; they help read a non-significant result."),))
 
     def results_section(self) -> Section:
@@ -1018,7 +1026,8 @@ class _Builder:
             used = "; ".join(f"{name}: {N.format_count(p.n_permutations)}" + (" (stopped early)" if p.stopped_early else "")
                              for name, p in perms)
             note.append(runs_of(f"Permutation p: up to {N.format_count(perm.max_permutations or perm.n_permutations)} "
-                                f"permutations (seed {perm.seed}), p = (b + 1)/(m + 1) (Phipson & Smyth, 2010); a run "
+                                f"permutations (seed {perm.seed}), p = (b + 1)/(m + 1), where m is the number of permutations "
+                                f"and b the number whose F is at least the observed one (Phipson & Smyth, 2010); a run "
                                 f"stops once {SEQUENTIAL_EXCEEDANCES} permuted F reach the observed one, with p = "
                                 f"{SEQUENTIAL_EXCEEDANCES}/l after l permutations (Besag & Clifford, 1991). Permutations "
                                 f"used: {used}. Factorial effects permute residuals of the reduced model "

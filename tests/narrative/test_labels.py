@@ -295,3 +295,35 @@ def test_outcome_intake_is_told_in_plain_words_in_the_provenance(which, request)
     assert "exact decimal" in told and "own scale" in told
     md = report.render("md").decode("utf-8")
     assert "pivot" not in md and md.count("How the outcome was read") == 1
+
+
+# --- other labels a reader has to follow -----------------------------------------------------
+
+
+def _notes(document):
+    return [plain(n) for b in document.walk() if isinstance(b, Table) for n in b.notes]
+
+
+@pytest.mark.parametrize("which", ["oneway", "factorial"])
+def test_formula_letters_in_table_notes_are_defined(which, request):
+    """A note that uses λ says what λ is; the permutation p's b and m are defined beside it."""
+    _, document = request.getfixturevalue(which)
+    notes = _notes(document)
+    with_lambda = [n for n in notes if "λ" in n]
+    assert with_lambda
+    for note in with_lambda:
+        assert "noncentrality" in note, note
+    perm = [n for n in notes if "(b + 1)/(m + 1)" in n]
+    assert perm and all("m is the number of permutations" in n and "b the number" in n for n in perm)
+
+
+def test_methods_name_the_software_once_and_the_robust_tests(factorial):
+    """The software line names anova-report once, with its version; the methods say what the
+    robust versions are before any result uses them."""
+    _, document = factorial
+    methods = next(s for s in document.sections if s.id == "methods")
+    text = " ".join(_block_text(b) for b in methods.blocks)
+    software = re.search(r"Software\. (.*)", text).group(1)
+    assert software.count("anova-report") == 1 and re.match(r"anova-report \d", software)
+    assert "heteroscedasticity-consistent (HC3)" in text and "Welch's ANOVA" in text
+    assert "Null hypothesis: " in text and "null hypothesis the" not in text
