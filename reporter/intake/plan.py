@@ -98,7 +98,7 @@ class AnalysisSpec:
     unequal_variances: str = "classical"
     permutations: int = 10_000
     seed: int = 20261202
-    permutation_max_rows: int = 100_000
+    permutation_max_rows: int = 50_000
 
     @property
     def confidence(self) -> float:
