@@ -91,6 +91,8 @@ class Dataset:
     # Set when the input is a table of cell summaries (reporter.intake.summary.SummaryInput):
     # how it was read (spread, conversion, rounding); there are no rows then.
     summary: Any = None
+    # Which reader read the rows: "in-memory" or "out-of-core" (DuckDB, see duckdb_source).
+    reader: str = "in-memory"
 
     @property
     def n(self) -> int:
@@ -115,6 +117,12 @@ def require_file(path: Path) -> Path:
 
 def load_data(plan: Plan) -> Dataset:
     """Read the data file named by the plan and match it to the plan's factors."""
+    from reporter.intake.duckdb_source import use_out_of_core
+
+    if use_out_of_core(plan):
+        from reporter.intake.duckdb_source import load_out_of_core
+
+        return load_out_of_core(plan)
     path = require_file(plan.data.path)
     suffix = path.suffix.lower()
     if suffix == ".parquet":
@@ -361,7 +369,7 @@ class _Encoded:
         return int(self.inv.shape[0])
 
 
-def _match_levels(plan, factor, values, source, line_of):
+def _match_levels(plan, factor, values, source, line_of, counts=None):
     if isinstance(values, _Encoded):
         uniq, inv = values.uniq, values.inv
     else:
@@ -392,7 +400,8 @@ def _match_levels(plan, factor, values, source, line_of):
         parts = []
         for u in unknown[:10]:
             where = np.flatnonzero(inv == u)
-            parts.append(f'"{_value_text(uniq[u])}" ({where.size} {"row" if where.size == 1 else "rows"}, first at {line_of(int(where[0]))})')
+            size = where.size if counts is None else int(counts[u])
+            parts.append(f'"{_value_text(uniq[u])}" ({size} {"row" if size == 1 else "rows"}, first at {line_of(int(where[0]))})')
         more = f" and {len(unknown) - 10} more" if len(unknown) > 10 else ""
         listed = ", ".join(f'"{lv}"' for lv in factor.levels)
         raise DataError(

@@ -48,6 +48,9 @@ DATA_DEFAULTS: dict[str, object] = {
     # What one row of the data file is: "rows" (one observation) or "cell-summaries" (one cell
     # of the design: its factor levels, n, mean and a spread, as a GROUP BY query writes them).
     "layout": "rows",
+    # Which reader reads the data: "automatic" (out-of-core for a glob or for files of at least
+    # OUT_OF_CORE_BYTES together, in-memory otherwise), "in-memory" or "out-of-core" (DuckDB).
+    "reader": "automatic",
 }
 
 # Keys of [data] that only a cell-summary table reads (layout = "cell-summaries").
@@ -77,6 +80,10 @@ DATA_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet")
 LAYOUTS = ("rows", "cell-summaries")
 SPREADS = ("sd", "variance", "se")
 MAX_DECIMALS = 20
+READERS = ("automatic", "in-memory", "out-of-core")
+# Files at least this large (bytes, all matched files together) are read out-of-core by default;
+# chosen by measurement (benchmarks/bench_reader.py prints the crossover).
+OUT_OF_CORE_BYTES = 64 * 1024 * 1024
 
 # ---------------------------------------------------------------------------------------------
 # Limits. Each lies far beyond any real plan or study; together they keep a broken or hostile

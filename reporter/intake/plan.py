@@ -36,6 +36,7 @@ class DataSpec:
     missing: tuple[str, ...] = tuple(D.DATA_DEFAULTS["missing"])  # type: ignore[arg-type]
     layout: str = "rows"
     summary: "SummarySpec | None" = None  # set when layout = "cell-summaries"
+    reader: str = "automatic"
 
 
 @dataclass(frozen=True)
@@ -142,7 +143,7 @@ class Plan:
 # Reading and validation
 
 _TOP_KEYS = ("title", "summary", "data", "factors", "analysis", "hypotheses", "study")
-_DATA_KEYS = ("path", "outcome", "delimiter", "decimal", "missing", "layout", *D.SUMMARY_DEFAULTS)
+_DATA_KEYS = ("path", "outcome", "delimiter", "decimal", "missing", "layout", "reader", *D.SUMMARY_DEFAULTS)
 _FACTOR_KEYS = ("name", "levels", "exclude", "column")
 _HYP_KEYS = ("name", "means", "effect", "role", "description")
 _STUDY_KEYS = tuple(StudySpec.__dataclass_fields__)
@@ -444,6 +445,7 @@ def _read_data(doc, ck: _Checker, base_dir: Path) -> DataSpec:
     for j, m in enumerate(missing, start=1):
         ck.length(m, D.MAX_NAME_CHARS, f"data.missing[{j}]", key="missing", **loc)
     layout = ck.choice(t, "layout", "data.layout", D.LAYOUTS, D.DATA_DEFAULTS["layout"], **loc)
+    reader = ck.choice(t, "reader", "data.reader", D.READERS, D.DATA_DEFAULTS["reader"], **loc)
     return DataSpec(
         path=path,
         outcome=outcome,
@@ -452,6 +454,7 @@ def _read_data(doc, ck: _Checker, base_dir: Path) -> DataSpec:
         missing=tuple(m.strip() for m in missing),
         layout=layout,
         summary=_read_summary_keys(t, ck, layout),
+        reader=reader,
     )
 
 

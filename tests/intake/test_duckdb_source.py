@@ -1,0 +1,440 @@
+"""The out-of-core reader (DuckDB) against the in-memory reader, numpy/scipy and NIST StRD.
+
+Sources of reference values: NIST Statistical Reference Datasets, ANOVA section (certified
+values, tests/data/nist/README.md); numpy (quantiles type 7, medians) and scipy.stats.rankdata
+(mid-ranks) as reference libraries; otherwise the in-memory reader of this package, which the
+rest of the suite checks against published data.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import math
+import random
+import re
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+import scipy.stats
+
+from reporter.errors import DataError, PlanError
+from reporter.intake import defaults as D
+from reporter.intake import duckdb_source as ds
+from reporter.intake.cells import describe_cells
+from reporter.intake.data import load_data
+from reporter.intake.plan import load_plan, plan_from_dict
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "fitting"))
+from test_nist import NAMES, lre, read_nist  # noqa: E402
+
+TWO_WAY = """
+title = "t"
+[data]
+path = "{path}"
+outcome = "y"
+reader = "{reader}"
+[[factors]]
+name = "dose"
+levels = ["1", "2", "5"]
+exclude = ["9"]
+[[factors]]
+name = "site"
+levels = ["north", "south"]
+[[hypotheses]]
+name = "dose matters"
+effect = "dose"
+"""
+
+# Rows chosen to exercise every rule of level matching and outcome reading (invented values).
+MESSY = (
+    "dose,site,y,note\n"
+    "1,north,10.5,a\n"
+    "1.0,south,11.25,b\n"
+    " 2 ,north,9.75,c\n"
+    "2,south,NA,d\n"
+    "5,north,12,e\n"
+    "\n"
+    "5,south,abc,f\n"
+    "9,north,13.5,g\n"
+    ",south,8.5,h\n"
+    "2,north,\u22121.5,i\n"
+    '1,south,7.5,"two\nlines"\n'
+    "2,south,\u00a08.25\u2003,k\n"
+    "5,south,+3.5,m\n"
+    "2,north,.5,n\n"
+    "1,south,6.,o\n"
+    "5,north,14.125,p\n"
+)
+
+
+def write_plan(tmp_path: Path, data: str, reader: str, name: str = "plan.toml", text: str = TWO_WAY) -> Path:
+    p = tmp_path / name
+    p.write_text(text.format(path=data, reader=reader), encoding="utf-8")
+    return p
+
+
+def both(tmp_path: Path, data: str, text: str = TWO_WAY):
+    """The same data read by both readers (the in-memory data set's cells built as prepare does)."""
+    mem = load_data(load_plan(write_plan(tmp_path, data, "in-memory", "m.toml", text)))
+    duck = load_data(load_plan(write_plan(tmp_path, data, "out-of-core", "d.toml", text)))
+    return mem, duck
+
+
+def memory_cells(plan, data):
+    from fractions import Fraction
+
+    shape = tuple(len(f.levels) for f in plan.factors)
+    cell = np.ravel_multi_index(tuple(data.levels.T), shape)
+    exact = Fraction(data.pivot_text) if data.exact_decimal else Fraction(data.pivot)
+    return describe_cells(data.y, cell, int(np.prod(shape)), data.pivot, exact), cell
+
+
+def assert_close(a, b, rel=1e-12):
+    a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+    assert a.shape == b.shape
+    both_nan = np.isnan(a) & np.isnan(b)
+    scale = np.maximum(np.abs(a), np.abs(b))
+    ok = both_nan | (np.abs(a - b) <= rel * np.where(scale > 0, scale, 1.0))
+    assert ok.all(), (a, b)
+
+
+# ---------------------------------------------------------------------------------------------
+# The same data set from both readers
+
+
+def test_messy_text_file_same_as_in_memory(tmp_path):
+    (tmp_path / "d.csv").write_text(MESSY, encoding="utf-8")
+    mem, duck = both(tmp_path, "d.csv")
+    plan = load_plan(tmp_path / "m.toml")
+    cells, _ = memory_cells(plan, mem)
+    assert duck.reader == "out-of-core" and mem.reader == "in-memory"
+    assert duck.n_read == mem.n_read and duck.n == mem.n
+    assert duck.exclusions == mem.exclusions
+    assert (duck.pivot, duck.pivot_text, duck.exact_decimal) == (mem.pivot, mem.pivot_text, mem.exact_decimal)
+    assert np.array_equal(duck.cells.n, cells.n)
+    assert_close(duck.cells.mean, cells.mean)
+    assert_close(duck.cells.ss, cells.ss)
+    assert duck.cells.pivot_exact == cells.pivot_exact
+    assert sorted(map(tuple, duck.dropped_outcome_levels)) == sorted(map(tuple, mem.dropped_outcome_levels))
+    assert duck.sha256 == hashlib.sha256((tmp_path / "d.csv").read_bytes()).hexdigest()
+    # The quoted line break moves later lines: the row numbers still name the line.
+    flagged = duck.row_access.flagged(np.zeros(6), np.full(6, -1.0), limit=100)
+    assert sorted(r for r, _, _ in flagged.rows) == sorted(mem.rows.tolist())
+
+
+def test_semicolon_decimal_comma_and_tsv(tmp_path):
+    text = TWO_WAY.replace('reader = "{reader}"', 'reader = "{reader}"\ndelimiter = ";"\ndecimal = ","')
+    (tmp_path / "d.csv").write_text(
+        "dose;site;y\n1;north;10,5\n2;south;11,25\n5;north;-0,75\n1;south;x\n", encoding="utf-8"
+    )
+    mem, duck = both(tmp_path, "d.csv", text)
+    assert duck.exclusions == mem.exclusions
+    assert_close(duck.cells.mean, memory_cells(load_plan(tmp_path / "m.toml"), mem)[0].mean)
+    (tmp_path / "t.tsv").write_text("dose\tsite\ty\n1\tnorth\t3.5\n2\tsouth\t4.5\n", encoding="utf-8")
+    mem, duck = both(tmp_path, "t.tsv")
+    assert duck.n == mem.n == 2 and duck.format == "tsv"
+
+
+def test_parquet_typed_columns_same_as_in_memory(tmp_path):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    table = pa.table({
+        "dose": pa.array([1, 1, 2, 2, 5, 5, 9, None, 2], pa.int64()),
+        "site": pa.array(["north", "south", "north", "south", "north", "south", "north", "north", None]),
+        "y": pa.array([1.5, 2.5, float("nan"), 4.0, 5.25, None, 7.0, 8.0, 9.0]),
+    })
+    pq.write_table(table, tmp_path / "d.parquet")
+    mem, duck = both(tmp_path, "d.parquet")
+    cells, _ = memory_cells(load_plan(tmp_path / "m.toml"), mem)
+    assert duck.exclusions == mem.exclusions
+    assert (duck.pivot, duck.exact_decimal, duck.n_read) == (mem.pivot, mem.exact_decimal, mem.n_read)
+    assert np.array_equal(duck.cells.n, cells.n)
+    assert_close(duck.cells.mean, cells.mean)
+    assert_close(duck.cells.ss, cells.ss)
+
+
+def test_float_factor_and_text_outcome_in_parquet(tmp_path):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    pq.write_table(pa.table({
+        "dose": pa.array([1.0, 2.0, 5.0, 9.0, float("nan")]),
+        "site": pa.array(["north"] * 5),
+        "y": pa.array(["1000000000000.4", "1000000000000.3", "x", "1", "2"]),
+    }), tmp_path / "d.parquet")
+    mem, duck = both(tmp_path, "d.parquet")
+    assert duck.exclusions == mem.exclusions
+    assert duck.exact_decimal and duck.pivot_text == mem.pivot_text == "1000000000000.4"
+    assert_close(duck.cells.mean, memory_cells(load_plan(tmp_path / "m.toml"), mem)[0].mean)
+
+
+# ---------------------------------------------------------------------------------------------
+# NIST StRD through the out-of-core reader
+
+
+@pytest.mark.parametrize("name", NAMES)
+def test_nist_certified_values_out_of_core(name, tmp_path):
+    """Between SS, within SS, F, R² and residual SD at LRE ≥ 14 from the cell table that DuckDB
+    builds (certified values: NIST StRD ANOVA)."""
+    cert, levels = read_nist(name, tmp_path)
+    plan = plan_from_dict(
+        {"title": name, "data": {"path": "data.csv", "outcome": "y", "reader": "out-of-core"},
+         "factors": [{"name": "group", "levels": levels}], "hypotheses": []},
+        base_dir=tmp_path,
+    )
+    data = load_data(plan)
+    assert data.reader == "out-of-core" and data.exact_decimal
+    c = data.cells
+    df_b, df_w = c.k - 1, c.df_within
+    assert (df_b, df_w) == (cert["df_between"], cert["df_within"])
+    ssb, ssw = c.ss_between, c.ss_within
+    got = {
+        "ss_between": ssb,
+        "ss_within": ssw,
+        "F": (ssb / df_b) / (ssw / df_w),
+        "r_squared": ssb / (ssb + ssw),
+        "residual_sd": math.sqrt(ssw / df_w),
+    }
+    scores = {k: lre(v, cert[k]) for k, v in got.items()}
+    assert min(scores.values()) >= 14.0, scores
+
+
+# ---------------------------------------------------------------------------------------------
+# Row access against the in-memory answers and numpy / scipy
+
+
+@pytest.fixture
+def rows_pair(tmp_path):
+    rng = np.random.default_rng(7)
+    n = 3000
+    dose = rng.choice(["1", "2", "5"], n)
+    site = rng.choice(["north", "south"], n, p=[0.7, 0.3])
+    y = np.round(rng.normal(50, 10, n), 1)  # one decimal: many ties
+    y[:5] = [200.0, -150.0, 50.0, 50.0, 50.0]
+    text = "dose,site,y\n" + "".join(f"{a},{b},{c}\n" for a, b, c in zip(dose, site, y))
+    (tmp_path / "d.csv").write_text(text, encoding="utf-8")
+    mem, duck = both(tmp_path, "d.csv")
+    cells, cell = memory_cells(load_plan(tmp_path / "m.toml"), mem)
+    return mem.y, cell, cells, duck.row_access, mem.rows
+
+
+def test_medians_and_deviation_stats(rows_pair):
+    y, cell, cells, rows, _ = rows_pair
+    med = np.array([np.median(y[cell == c]) for c in range(6)])
+    assert_close(rows.medians(), med)
+    for centre in (med, cells.offset_mean):
+        z = np.abs(y - centre[cell])
+        ref = describe_cells(z, cell, 6)
+        n, m, s = rows.deviation_stats(centre)
+        assert np.array_equal(n, ref.n)
+        assert_close(m, ref.offset_mean)
+        assert_close(s, ref.ss)
+
+
+def test_rank_sums_match_scipy_rankdata(rows_pair):
+    y, cell, _, rows, _ = rows_pair
+    ranks = scipy.stats.rankdata(y)  # mid-ranks (scipy.stats as reference library)
+    got = rows.rank_sums()
+    assert_close(got.rank_sum, np.bincount(cell, weights=ranks, minlength=6))
+    _, t = np.unique(y, return_counts=True)
+    assert got.tie_term == float(np.sum(t.astype(float) ** 3 - t)) and got.n == y.size
+
+
+def test_quantiles_points_flagged_and_sample(rows_pair):
+    y, cell, cells, rows, line = rows_pair
+    means = cells.offset_mean
+    scale = np.array([2.0, 3.0, np.nan, 4.0, 0.0, 5.0])
+    probs = np.linspace(0.01, 0.99, 37)
+    keep = np.isfinite(scale[cell]) & (scale[cell] > 0)
+    ref = np.quantile((y[keep] - means[cell[keep]]) / scale[cell[keep]], probs)  # numpy type 7
+    assert_close(rows.residual_quantiles(means, scale, probs), ref, rel=1e-10)
+
+    points = rows.cell_points(400)
+    for c, p in enumerate(points):
+        seg = np.sort(y[cell == c])
+        assert p.n == seg.size
+        if seg.size <= 400:
+            assert not p.summarized and np.array_equal(p.values, seg)
+        else:
+            assert p.summarized
+            assert_close(p.values, np.quantile(seg, np.linspace(0, 1, 400)), rel=1e-10)
+
+    bound = np.array([20.0, 25.0, np.inf, 15.0, 30.0, 10.0])
+    f = rows.flagged(means, bound, limit=7)
+    dev = y - means[cell]
+    mask = np.abs(dev) > bound[cell]
+    assert f.total == int(mask.sum())
+    assert np.array_equal(f.count, np.bincount(cell[mask], minlength=6))
+    assert_close(f.sum_dev, np.bincount(cell[mask], weights=dev[mask], minlength=6))
+    assert_close(f.sum_dev2, np.bincount(cell[mask], weights=dev[mask] ** 2, minlength=6))
+    order = np.argsort(-np.abs(dev[mask]), kind="stable")[:7]
+    assert [r for r, _, _ in f.rows] == line[mask][order].tolist()
+
+    v1, c1 = rows.sample(500, seed=3)
+    v2, c2 = rows.sample(500, seed=3)
+    v3, _ = rows.sample(500, seed=4)
+    assert v1.size == 500 and np.array_equal(v1, v2) and np.array_equal(c1, c2) and not np.array_equal(v1, v3)
+    pairs = {(float(a), int(b)) for a, b in zip(y, cell)}
+    assert all((float(a), int(b)) in pairs for a, b in zip(v1, c1))
+    vall, call = rows.sample(10**6, seed=1)
+    assert np.array_equal(vall, y) and np.array_equal(call, cell)
+    assert rows.arrays() is None and rows.kind == "duckdb" and rows.n == y.size and rows.k == 6
+
+
+def test_splitmix64_matches_the_reference_algorithm():
+    """The SQL hash equals SplitMix64 written in Python (Steele, Lea & Flood 2014)."""
+    import duckdb
+
+    mask = (1 << 64) - 1
+
+    def splitmix(x: int, seed: int) -> int:
+        z = (x * 0x9E3779B97F4A7C15 + seed * 0x9E3779B97F4A7C15) & mask
+        z = ((z ^ (z >> 30)) * 0xBF58476D1CE4E5B9) & mask
+        z = ((z ^ (z >> 27)) * 0x94D049BB133111EB) & mask
+        return z ^ (z >> 31)
+
+    con = duckdb.connect()
+    got = con.execute(f"SELECT r, {ds._splitmix64('r', 99)} FROM range(1, 200) t(r)").fetchall()
+    assert all(int(h) == splitmix(int(r), 99) for r, h in got)
+
+
+# ---------------------------------------------------------------------------------------------
+# Globs
+
+
+def test_glob_reads_every_file_in_sorted_order(tmp_path):
+    body = MESSY.split("\n", 1)[1]
+    lines = [ln for ln in body.split("\n") if ln.strip() and "two" not in ln and "lines" not in ln]
+    head = "dose,site,y,note\n"
+    (tmp_path / "part-2.csv").write_text(head + "\n".join(lines[6:]) + "\n", encoding="utf-8")
+    (tmp_path / "part-1.csv").write_text(head + "\n".join(lines[:6]) + "\n", encoding="utf-8")
+    (tmp_path / "all.csv").write_text(head + "\n".join(lines) + "\n", encoding="utf-8")
+    glob = load_data(load_plan(write_plan(tmp_path, "part-*.csv", "automatic")))
+    whole = load_data(load_plan(write_plan(tmp_path, "all.csv", "in-memory", "w.toml")))
+    assert glob.reader == "out-of-core" and glob.n == whole.n and glob.n_read == whole.n_read
+    assert_close(glob.cells.mean, memory_cells(load_plan(tmp_path / "w.toml"), whole)[0].mean)
+    # Rows are numbered through the files in sorted order (headers not counted).
+    assert [e.count for e in glob.exclusions] == [e.count for e in whole.exclusions]
+    assert [list(e.rows) for e in glob.exclusions] == [[r - 1 for r in e.rows] for e in whole.exclusions]
+    h = hashlib.sha256()
+    for name in ("part-1.csv", "part-2.csv"):
+        digest = hashlib.sha256((tmp_path / name).read_bytes()).hexdigest()
+        h.update(name.encode() + b"\0" + digest.encode() + b"\n")
+    assert glob.sha256 == h.hexdigest()
+
+
+def test_glob_errors(tmp_path):
+    with pytest.raises(DataError, match="no file matches this pattern"):
+        load_data(load_plan(write_plan(tmp_path, "none-*.csv", "automatic")))
+    (tmp_path / "a-1.csv").write_text("dose,site,y\n1,north,1\n", encoding="utf-8")
+    (tmp_path / "a-2.csv").write_text("dose,place,y\n1,north,1\n", encoding="utf-8")
+    with pytest.raises(DataError, match=r"a-2\.csv: its header .* differs from that of a-1\.csv"):
+        load_data(load_plan(write_plan(tmp_path, "a-*.csv", "automatic")))
+    with pytest.raises(DataError, match="only the out-of-core reader reads"):
+        load_data(load_plan(write_plan(tmp_path, "a-*.csv", "in-memory")))
+
+
+# ---------------------------------------------------------------------------------------------
+# Bad input: the same kind of message from both readers
+
+
+def _message(tmp_path, data: str, reader: str) -> str:
+    with pytest.raises(DataError) as info:
+        load_data(load_plan(write_plan(tmp_path, data, reader, f"{reader}.toml")))
+    return str(info.value)
+
+
+@pytest.mark.parametrize(
+    "content, pattern",
+    [
+        ("dose,place,y\n1,north,1\n", r"has no column 'site' \(the factor named in the plan\)"),
+        ("dose,site,y\n1,north,1\n3,north,2\n3,south,x\n7,north,1\n",
+         r"levels that the plan does not list for factor 'dose': \"3\" \(2 rows, first at line 3\), \"7\" \(1 row, first at line 5\)"),
+        ("", r"the file is empty"),
+        ("dose,site,y\n", r"has a header but no data rows"),
+        ("dose,site,y\n1,north,1\n2,south,2,9\n", r"line 3: has 4 fields but the header has 3"),
+    ],
+)
+def test_bad_input_messages_match_in_memory(tmp_path, content, pattern):
+    (tmp_path / "d.csv").write_text(content, encoding="utf-8")
+    mem = _message(tmp_path, "d.csv", "in-memory")
+    duck = _message(tmp_path, "d.csv", "out-of-core")
+    assert re.search(pattern, mem), mem
+    assert re.search(pattern, duck), duck
+    assert mem == duck
+
+
+def test_non_numeric_outcome_is_listed_like_in_memory(tmp_path):
+    (tmp_path / "d.csv").write_text("dose,site,y\n1,north,1\n2,north,n/a\n5,south,12 kg\n", encoding="utf-8")
+    mem, duck = both(tmp_path, "d.csv")
+    assert duck.exclusions == mem.exclusions
+    assert 'line 3: "n/a"; line 4: "12 kg"' in duck.exclusions[0].detail
+
+
+def test_only_plain_decimal_numbers_count(tmp_path):
+    """Digit separators, non-ASCII digits and values beyond float64 are non-numeric, listed with
+    their lines (the plain-decimal rule of the text readers)."""
+    (tmp_path / "d.csv").write_text(
+        "dose,site,y\n1,north,1\n2,north,1_000\n5,south,\uff11\uff12\n1,south,1e400\n2,south,-1e-3\n",
+        encoding="utf-8",
+    )
+    duck = load_data(load_plan(write_plan(tmp_path, "d.csv", "out-of-core")))
+    (excl,) = duck.exclusions
+    assert excl.reason == "non-numeric outcome 'y'" and excl.count == 3 and excl.rows == (3, 4, 5)
+    assert excl.detail == 'line 3: "1_000"; line 4: "\uff11\uff12"; line 5: "1e400"'
+    assert duck.n == 2
+
+
+def test_not_utf8_and_bad_parquet(tmp_path):
+    (tmp_path / "d.csv").write_bytes(b"dose,site,y\n1,north,1\n2,south,\xff2\n")
+    msg = _message(tmp_path, "d.csv", "out-of-core")
+    assert "line 3" in msg and "is not UTF-8 text" in msg
+    (tmp_path / "d.parquet").write_bytes(b"not parquet at all")
+    assert "is not a readable Parquet file" in _message(tmp_path, "d.parquet", "out-of-core")
+
+
+# ---------------------------------------------------------------------------------------------
+# The reader choice and the number rule
+
+
+def test_reader_key_and_automatic_switch(tmp_path, monkeypatch):
+    (tmp_path / "d.csv").write_text("dose,site,y\n1,north,1\n2,south,2\n", encoding="utf-8")
+    with pytest.raises(PlanError, match=r'data.reader.*must be one of "automatic", "in-memory", "out-of-core"'):
+        load_plan(write_plan(tmp_path, "d.csv", "duck"))
+    plan = load_plan(write_plan(tmp_path, "d.csv", "automatic"))
+    assert plan.data.reader == "automatic" and load_data(plan).reader == "in-memory"
+    monkeypatch.setattr(D, "OUT_OF_CORE_BYTES", 10)
+    assert load_data(plan).reader == "out-of-core"
+    assert load_data(load_plan(write_plan(tmp_path, "d.csv", "in-memory"))).reader == "in-memory"
+
+
+def test_whitespace_list_is_python_strip():
+    assert set(ds._WS) == {chr(c) for c in range(0x110000) if chr(c).isspace()}
+
+
+def test_number_rule_in_sql_equals_the_plain_decimal_rule(tmp_path):
+    """Random texts over digits, signs, points, exponents, underscores and blanks: the SQL
+    status equals the Python rule (regular expression plus float64 range)."""
+    import duckdb
+
+    plan = load_plan(write_plan(tmp_path, "d.csv", "out-of-core"))
+    rnd = random.Random(5)
+    alphabet = "0123456789.eE+-_ \t\u00a0\u2212xn"
+    texts = sorted({"".join(rnd.choice(alphabet) for _ in range(rnd.randint(0, 7))) for _ in range(20000)})
+    texts += ["NA", " nan ", "None", "1e400", "-1e-400", "１２", "1_000", "+-1", "\u22121.5"]
+    fast, t, status, value = ds._status_sql("y", plan)
+    con = duckdb.connect()
+    con.execute("CREATE TABLE s (i INTEGER, y VARCHAR)")
+    con.executemany("INSERT INTO s VALUES (?, ?)", [[i, x] for i, x in enumerate(texts)])
+    got = con.execute(
+        f"SELECT i, {status}, {value} FROM (SELECT *, {t} AS t FROM (SELECT *, {fast} AS fast FROM s)) ORDER BY i"
+    ).fetchall()
+    for (i, st, val), x in zip(got, texts):
+        want = ds._clean_number(x, plan)
+        assert (st == 0) == (want is not None), x
+        if want is not None:
+            assert float(val) == float(want), x
