@@ -26,6 +26,7 @@ class Provenance:
     data_format: str
     software: tuple[tuple[str, str], ...]
     created: str
+    data_reader: str = "in-memory"  # "out-of-core": read by DuckDB queries (duckdb_source)
 
 
 def _version(name: str) -> str:
@@ -63,8 +64,9 @@ def collect_provenance(prep, extra_packages: tuple[str, ...] = ()) -> Provenance
         data_file=os.path.basename(data.source),
         plan_file=os.path.basename(str(plan.source)) if plan.source else None,
         data_format=data.format,
-        software=software_versions(extra_packages),
+        software=software_versions(extra_packages + (("duckdb",) if data.reader == "out-of-core" else ())),
         created=created_timestamp(),
+        data_reader=data.reader,
     )
 
 

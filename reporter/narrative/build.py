@@ -861,7 +861,8 @@ class _Builder:
         items = [
             (runs_of("Plan file"), runs_of(p.plan_file or "(built in Python)")),
             (runs_of("Plan SHA-256"), runs_of(p.plan_sha256 or "—")),
-            (runs_of("Data file"), runs_of(f"{p.data_file} ({p.data_format})")),
+            (runs_of("Data file"), runs_of(f"{p.data_file} ({p.data_format}"
+                                            + (", read out-of-core by DuckDB)" if p.data_reader == "out-of-core" else ")"))),
             (runs_of("Data SHA-256"), runs_of(p.data_sha256 or "—")),
             (runs_of("How the outcome was read"), runs_of(self.intake_words())),
             (runs_of("Software"), runs_of(", ".join(f"{k} {v}" for k, v in p.software))),

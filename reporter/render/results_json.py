@@ -302,6 +302,7 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
             "data_file": provenance.data_file,
             "plan_file": provenance.plan_file,
             "data_format": provenance.data_format,
+            "data_reader": provenance.data_reader,
             "exact_decimal_intake": data.exact_decimal,
             "software": dict(provenance.software),
             "created": provenance.created,

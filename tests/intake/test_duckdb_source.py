@@ -438,3 +438,58 @@ def test_number_rule_in_sql_equals_the_plain_decimal_rule(tmp_path):
         assert (st == 0) == (want is not None), x
         if want is not None:
             assert float(val) == float(want), x
+
+
+# ---------------------------------------------------------------------------------------------
+# Whole reports from both readers
+
+
+def _numbers_agree(a, b, path=""):
+    """Every number of two results.json documents agrees to 1e-12 relative; other values equal.
+    Returns the paths that differ."""
+    if isinstance(a, bool) or isinstance(b, bool) or not (isinstance(a, (int, float)) and isinstance(b, (int, float))):
+        if type(a) is not type(b):
+            return [path]
+    if isinstance(a, dict):
+        return [p for k in sorted(set(a) | set(b)) for p in
+                (_numbers_agree(a[k], b[k], f"{path}/{k}") if k in a and k in b else [f"{path}/{k}"])]
+    if isinstance(a, list):
+        if len(a) != len(b):
+            return [path]
+        return [p for i, (x, y) in enumerate(zip(a, b)) for p in _numbers_agree(x, y, f"{path}[{i}]")]
+    if isinstance(a, float) or isinstance(b, float):
+        return [] if a == b or abs(a - b) <= 1e-12 * max(abs(a), abs(b)) else [path]
+    return [] if a == b else [path]
+
+
+@pytest.mark.parametrize("case", ["oneway", "two-way messy"])
+def test_reports_agree_between_readers(tmp_path, case, monkeypatch):
+    """reporter.report() under both readers: the same cell table, ANOVA table, hypothesis tests,
+    effect sizes, assumption checks and robust tests to 1e-12 relative. Only the permutation F
+    differs: the out-of-core rows are not held in memory, and the report says so."""
+    import json
+
+    import reporter
+    from conftest import ONEWAY_DATA, ONEWAY_PLAN
+
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1800000000")
+    if case == "oneway":
+        (tmp_path / "heights.csv").write_text(ONEWAY_DATA, encoding="utf-8")
+        text = ONEWAY_PLAN.replace('outcome = "height_mm"', 'outcome = "height_mm"\nreader = "{reader}"')
+        text = text.replace('path = "heights.csv"', 'path = "{path}"')
+        data = "heights.csv"
+    else:
+        (tmp_path / "d.csv").write_text(MESSY, encoding="utf-8")
+        text, data = TWO_WAY, "d.csv"
+    docs = {}
+    for reader in ("in-memory", "out-of-core"):
+        rep = reporter.report(write_plan(tmp_path, data, reader, f"{reader}.toml", text))
+        assert rep.prepared.data.reader == reader
+        docs[reader] = json.loads(rep.render("json"))
+    mem, duck = docs["in-memory"], docs["out-of-core"]
+    assert duck["provenance"]["data_reader"] == "out-of-core" and mem["provenance"]["data_reader"] == "in-memory"
+    assert "duckdb" in duck["provenance"]["software"]
+    differ = _numbers_agree(mem, duck)
+    allowed = re.compile(r"^/provenance/(data_reader|software|plan_sha256|plan_file)|/permutation(_note)?$|/permutation/")
+    assert [p for p in differ if not allowed.search(p)] == []
+    assert duck["anova"]["rows"] and duck["hypotheses"]
