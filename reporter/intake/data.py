@@ -163,6 +163,18 @@ def _read_text_file(path: Path) -> tuple[bytes, str]:
     return b"".join(blocks), h.hexdigest()
 
 
+def hash_file(path: Path) -> str:
+    """The SHA-256 of a data file, read in blocks (the file need not fit in memory)."""
+    h = hashlib.sha256()
+    with _open_data(path) as fh:
+        try:
+            for block in iter(lambda: fh.read(1 << 20), b""):
+                h.update(block)
+        except OSError as exc:
+            raise DataError(f"{describe_path(path)}: cannot be read ({exc.strerror or exc}).") from None
+    return h.hexdigest()
+
+
 def data_from_frame(plan: Plan, frame: Any, name: str = "DataFrame") -> Dataset:
     """Match a pandas DataFrame (or any mapping of column name to sequence) to the plan."""
     columns = [str(c) for c in frame.columns] if hasattr(frame, "columns") else list(frame)
@@ -559,13 +571,7 @@ def _from_parquet(plan: Plan, path: Path) -> Dataset:
         raise DataError(
             f"{path}: reading Parquet needs pyarrow. Install it with: pip install 'anova-report[parquet]'"
         ) from None
-    h = hashlib.sha256()
-    with _open_data(path) as fh:
-        try:
-            for block in iter(lambda: fh.read(1 << 20), b""):
-                h.update(block)
-        except OSError as exc:
-            raise DataError(f"{describe_path(path)}: cannot be read ({exc.strerror or exc}).") from None
+    sha = hash_file(path)
     try:
         pf = pq.ParquetFile(path)
     except Exception as exc:  # pyarrow raises several types for a damaged file
@@ -604,4 +610,4 @@ def _from_parquet(plan: Plan, path: Path) -> Dataset:
         cols[plan.data.outcome] = out.cast(pa.float64()).to_numpy(zero_copy_only=False)
     else:
         cols[plan.data.outcome] = np.asarray(out.cast(pa.string()).to_pylist(), dtype=object)
-    return _build_columns(plan, str(path), h.hexdigest(), "parquet", cols, n, row_numbers=np.arange(1, n + 1, dtype=np.int64))
+    return _build_columns(plan, str(path), sha, "parquet", cols, n, row_numbers=np.arange(1, n + 1, dtype=np.int64))

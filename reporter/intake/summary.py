@@ -35,7 +35,7 @@ from __future__ import annotations
 
 import decimal
 import difflib
-import hashlib
+import sys
 import math
 from dataclasses import dataclass
 from fractions import Fraction
@@ -46,7 +46,10 @@ import numpy as np
 
 from reporter.errors import DataError
 from reporter.intake.cells import CellStats
-from reporter.intake.data import Dataset, Exclusion, _match_levels, _parse_text, check_widths, require_file
+from reporter.intake import defaults as D
+from reporter.intake import numtext
+from reporter.intake.data import (Dataset, Exclusion, _match_levels, _parse_text, _read_text_file, check_widths, hash_file,
+                                  require_file, _MIN_SPREAD)
 from reporter.intake.plan import Plan
 
 _CTX = decimal.Context(prec=80, traps=[decimal.InvalidOperation])
@@ -132,11 +135,7 @@ def read_summary(plan: Plan) -> Dataset:
         sha, columns, n, word, kinds = _parquet_columns(plan, path)
     else:
         delimiter = plan.data.delimiter or ("\t" if suffix == ".tsv" else ",")
-        try:
-            raw = path.read_bytes()
-        except OSError as exc:
-            raise DataError(f"{path}: cannot be read ({exc.strerror}).") from None
-        sha = hashlib.sha256(raw).hexdigest()
+        raw, sha = _read_text_file(path)
         header, recs, lines = _parse_text(raw, str(path), delimiter)
         _require_columns(plan, header, str(path))
         check_widths(str(path), header, recs, lines)
@@ -204,7 +203,7 @@ def _parquet_columns(plan: Plan, path: Path):
         raise DataError(
             f"{path}: reading Parquet needs pyarrow. Install it with: pip install 'anova-report[parquet]'"
         ) from None
-    raw = path.read_bytes()  # a table of cells is small
+    sha = hash_file(path)
     try:
         pf = pq.ParquetFile(path)
     except Exception as exc:  # pyarrow raises several types for a damaged file
@@ -230,7 +229,7 @@ def _parquet_columns(plan: Plan, path: Path):
     columns["__row__"] = list(range(1, table.num_rows + 1))
     if table.num_rows == 0:
         raise DataError(f"{path}: has no data rows.")
-    return hashlib.sha256(raw).hexdigest(), columns, table.num_rows, "row", kinds
+    return sha, columns, table.num_rows, "row", kinds
 
 
 # ---------------------------------------------------------------------------------------------
@@ -286,17 +285,23 @@ def _build(plan: Plan, source: str, sha, fmt: str, cols, n_rows: int, word: str,
             if not math.isfinite(x):
                 raise DataError(f"{where(i, column)}: the {what} is {v!r}; it must be a finite number.")
             return x
-        t = "" if v is None else str(v).strip()
-        if t in missing_words or t.lower() in _NAN_WORDS:
+        raw = "" if v is None else str(v).strip()
+        if raw in missing_words or raw.lower() in _NAN_WORDS:
             return None
-        t = (t.replace(",", ".") if comma else t).replace("\u2212", "-")
-        try:
-            d = decimal.Decimal(t)
-        except decimal.InvalidOperation:
+        t = (raw.replace(",", ".") if comma else raw).replace("\u2212", "-")
+        shown = f"the {what} is \"{raw if len(raw) <= 40 else raw[:40] + '…'}\""
+        if not numtext.is_plain(t):
+            if numtext.looks_numeric(t):
+                raise DataError(f"{where(i, column)}: {shown}, which {numtext.why_not_plain(t)}.")
             fix = ' Write numbers with a "." decimal point, or set decimal = "," in [data].' if "," in t and not comma else ""
-            raise DataError(f"{where(i, column)}: the {what} is \"{str(v).strip()}\", which is not a number.{fix}") from None
-        if not d.is_finite():
-            raise DataError(f"{where(i, column)}: the {what} is \"{str(v).strip()}\"; it must be a finite number.")
+            raise DataError(f"{where(i, column)}: {shown}, which is not a number.{fix}")
+        if len(t) > D.MAX_NUMBER_CHARS:
+            raise DataError(f"{where(i, column)}: {shown}, which has {len(t)} characters; the limit for one value is "
+                            f"{D.MAX_NUMBER_CHARS}. Round it.")
+        d = decimal.Decimal(t)
+        problem = numtext.range_problem(d)
+        if problem is not None:
+            raise DataError(f"{where(i, column)}: {shown}, which {problem}. Rescale the outcome.")
         return d
 
     spread_name = _SHORT[spec.spread]
@@ -375,6 +380,8 @@ def _build(plan: Plan, source: str, sha, fmt: str, cols, n_rows: int, word: str,
             continue
         spread_values[c] = float(cell.spread)
         ss[c] = _centred_ss(cell.n, cell.spread, spec.spread)
+    _check_range(source, word, [int(rows[i]) for i, _ in order], offset, ss, n_arr, spec, float(pivot_val),
+                 spread_values)
     for arr in (n_arr, offset, ss, spread_values, rows):
         arr.setflags(write=False)
     pivot_text = str(pivot_val) if exact else repr(float(pivot_val))
@@ -424,6 +431,31 @@ def _build(plan: Plan, source: str, sha, fmt: str, cols, n_rows: int, word: str,
         row_access=None,
         summary=info,
     )
+
+
+def _check_range(source, word, lines, offset, ss, n, spec, pivot, given) -> None:
+    """Refuse summaries whose fit would overflow or underflow float64, as the row path does for
+    rows: the fit squares deviations of means and squares variances (Welch's df), so the spread of
+    the means and every SD must stay within (1.8e308 / (64·N²))^¼, and above 1e-70 unless 0."""
+    upper = (sys.float_info.max / (64.0 * float(n.sum()) ** 2)) ** 0.25
+    sd = np.sqrt(ss / np.maximum(n - 1, 1))
+    fix = "Rescale the outcome (for example use other units) and compute the summaries again."
+    if not np.all(np.isfinite(offset)):
+        c = int(np.flatnonzero(~np.isfinite(offset))[0])
+        raise DataError(f"{source}, {word} {lines[c]}, column '{spec.mean_column}': the mean differs from the first "
+                        f"mean ({pivot!r}) by more than float64 can hold (about 1.8e308). {fix}")
+    lo, hi = int(np.argmin(offset)), int(np.argmax(offset))
+    spread = float(offset[hi] - offset[lo])
+    if not spread <= upper or 0 < spread < _MIN_SPREAD:
+        raise DataError(f"{source}: the means ({word}s {lines[lo]} and {lines[hi]}) differ by {spread:.3g}, "
+                        f"outside what the fit's sums of squares can hold in float64 ({_MIN_SPREAD:g} to {upper:.3g} "
+                        f"with N = {int(n.sum())}). {fix}")
+    big = np.flatnonzero(~(sd <= upper) | ((sd > 0) & (sd < _MIN_SPREAD)))
+    if big.size:
+        c = int(big[0])
+        raise DataError(f"{source}, {word} {lines[c]}, column '{spec.spread_column}': the {_SHORT[spec.spread]} "
+                        f"{float(given[c]):.3g} gives an SD outside what the fit's sums of squares can hold in float64 ({_MIN_SPREAD:g} to "
+                        f"{upper:.3g} with N = {int(n.sum())}). {fix}")
 
 
 def _centred_ss(n: int, spread, kind: str) -> float:

@@ -146,6 +146,14 @@ BAD = [
      ["line 3, column 'medium'", "is empty", "IS NOT NULL"]),
     ("medium,n,mean,sd\npeat,5,,1.20\ncoir,4,11.5,0.87\nbark,3,10.10,0.5\n",
      ["line 2, column 'mean'", "the mean is empty"]),
+    ("medium,n,mean,sd\npeat,5,12.34,1.20\ncoir,4,1_000,0.87\nbark,3,10.10,0.5\n",
+     ["line 3, column 'mean'", '"1_000"', "without separators"]),
+    ("medium,n,mean,sd\npeat,5,12.34,1.20\ncoir,4,1e999,0.87\nbark,3,10.10,0.5\n",
+     ["line 3, column 'mean'", '"1e999"', "larger in magnitude than float64"]),
+    ("medium,n,mean,sd\npeat,5,1e300,1.20\ncoir,4,-1e300,0.87\nbark,3,10.10,0.5\n",
+     ["the means (lines 3 and 2) differ by", "Rescale the outcome"]),
+    ("medium,n,mean,sd\npeat,5,12.34,1e200\ncoir,4,11.5,0.87\nbark,3,10.10,0.5\n",
+     ["line 2, column 'sd': the SD 1e+200 gives an SD outside", "Rescale the outcome"]),
     ("medium,n,mean\npeat,5,12.34\n",
      ["has no column 'sd'", 'layout = "cell-summaries"', "one row per cell"]),
     ("medium,height_mm\npeat,12.3\n",
@@ -157,7 +165,8 @@ BAD = [
     "table, fragments", BAD,
     ids=["n-zero", "n-fraction", "sd-negative", "sd-with-n-1", "sd-missing", "missing-cell", "unknown-level",
          "numeric-unknown-level", "duplicate-cell", "mean-text", "n-text", "ragged", "sd-text", "mean-inf",
-         "empty-level", "mean-empty", "no-spread-column", "rows-not-cells"],
+         "empty-level", "mean-empty", "separator-digits", "beyond-float64", "means-too-far-apart", "sd-too-large",
+         "no-spread-column", "rows-not-cells"],
 )
 def test_bad_tables_get_one_clear_message(project, table, fragments):
     """Each class of bad summary table gets one DataError naming file, line, column, value and fix."""
