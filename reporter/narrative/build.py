@@ -1092,7 +1092,8 @@ class _Builder:
                     Column(runs_of(f"{N.format_confidence_level(1 - res.alpha)} simultaneous ", N.symbol("CI")), "right"),
                     Column(runs_of("adjusted ", N.symbol("p")), "right"))
             out.append(Table(f"posthoc-{i}", runs_of(f"{names[key]}, on the {target}"), cols, tuple(rows),
-                             notes=(runs_of("Post-hoc comparisons are exploratory unless the plan lists them as planned hypotheses."),)))
+                             notes=(runs_of("Follow-up comparisons are exploratory unless the plan lists them as planned hypotheses; "
+                                           "their p values are adjusted within this family."),)))
         return out
 
 
