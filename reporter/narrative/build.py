@@ -412,8 +412,11 @@ class _Builder:
         d, n = self.design, self.prep.data.n
         example = self.cell_name(d.cells[min(1, d.k - 1)])
         example_short = d.cells[min(1, d.k - 1)].short
+        cell0 = d.cells[0]
         level_example = (f"mean({d.factors[0].name}={d.factors[0].levels[0]}) is the average of the cell means "
-                         f"at that level of {d.factors[0].name}" if self.multi
+                         f"at that level of {d.factors[0].name}, and mean("
+                         + ", ".join(f"{f.name}={lv}" for f, lv in zip(d.factors, cell0.levels))
+                         + f"), with a level of every factor, is the one cell mean μ[{cell0.short}]" if self.multi
                          else f"mean({example}) is simply the cell mean μ[{example_short}]")
         items = [
             (runs_of("μ"), runs_of(
@@ -1031,8 +1034,9 @@ class _Builder:
                                 f"and b the number whose F is at least the observed one (Phipson & Smyth, 2010); a run "
                                 f"stops once {SEQUENTIAL_EXCEEDANCES} permuted F reach the observed one, with p = "
                                 f"{SEQUENTIAL_EXCEEDANCES}/l after l permutations (Besag & Clifford, 1991). Permutations "
-                                f"used: {used}. Factorial effects permute residuals of the reduced model "
-                                "(Freedman & Lane, 1983)."))
+                                f"used: {used}."
+                                + (" Factorial effects permute residuals of the reduced model (Freedman & Lane, 1983)."
+                                   if self.multi else "")))
         elif self.inf.permutation_note and self.prep.data.summary is None:
             note.append(runs_of(f"Permutation p: {self.inf.permutation_note}."))
         return Table("robust", runs_of("Classical and robust tests side by side"), cols, tuple(rows), notes=tuple(note))
@@ -1070,8 +1074,8 @@ class _Builder:
                      (Column(runs_of("hypothesis")), Column(runs_of("all rows"), nowrap=True),
                       Column(runs_of(f"without {removed}"), nowrap=True)),
                      tuple(rows), notes=(runs_of("Reported for comparison only; the confirmatory results use all rows. "
-                                                 "The cell statistics without the flagged rows are updated from those "
-                                                 "rows' own sums."),))
+                                                 "The tests without the flagged rows are those a refit on the remaining "
+                                                 "rows gives."),))
 
     def posthoc_tables(self) -> list[Table]:
         out = []
