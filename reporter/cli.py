@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import gc
 import os
 import signal
 import sys
@@ -158,6 +159,14 @@ def _stop_on_signals():
             signal.signal(s, handler if handler is not None else signal.SIG_DFL)
 
 
+def _skip_exit_collection() -> None:
+    """The process is about to exit: move every object to the collector's permanent generation,
+    so that the interpreter's shutdown does not search them all for reference cycles again
+    (about a sixth of the CPU time of a demo report). Memory is returned to the system at exit
+    either way; files are closed and flushed by then."""
+    gc.freeze()
+
+
 def _say(text: str, keep: str = "") -> None:
     """One message on stderr, hidden characters shown; a closed stderr is not an error."""
     if sys.stderr is None:  # started with stderr closed
@@ -221,7 +230,12 @@ def _cmd_run(args) -> int:
 
 
 def main(argv: list[str] | None = None) -> int:
-    argv = list(sys.argv[1:] if argv is None else argv)
+    if argv is None:  # the program itself (console script, python -m reporter)
+        try:
+            return main(sys.argv[1:])
+        finally:
+            _skip_exit_collection()
+    argv = list(argv)
     debug = "--debug" in argv
     with _stop_on_signals():
         try:
