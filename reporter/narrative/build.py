@@ -610,7 +610,7 @@ class _Builder:
         items.append((runs_of("Family"), runs_of(f"{h.family}; {N.format_count(size)} "
                                                  f"{'hypothesis' if size == 1 else 'hypotheses'}, {CORRECTION_NAMES[h.correction]}")))
         blocks.append(DefinitionList(tuple(items)))
-        blocks.append(Paragraph(runs_of(self.reading(h)), "reading"))
+        blocks.append(Paragraph(self.reading_runs(h), "reading"))
         return Section(f"h{i}", c.name, tuple(blocks), level=3, number=str(i))
 
     @staticmethod
@@ -693,6 +693,16 @@ class _Builder:
                                                  high if high is not None else float("inf"),
                                                  es.ci_level, leading_zero=not bounded)
         return out
+
+    def reading_runs(self, h):
+        """The reading of a test with its p symbol in italics, as everywhere else in the report."""
+        adj = CORRECTION_SHORT[h.correction] if h.correction != "none" else "unadjusted"
+        marker = f"({adj} p)"
+        pieces = self.reading(h).split(marker)
+        out = [pieces[0]]
+        for piece in pieces[1:]:
+            out += [f"({adj} ", N.symbol("p"), ")", piece]
+        return runs_of(*out)
 
     def reading(self, h) -> str:
         c, t = h.contrast, h.test

@@ -327,3 +327,15 @@ def test_methods_name_the_software_once_and_the_robust_tests(factorial):
     assert software.count("anova-report") == 1 and re.match(r"anova-report \d", software)
     assert "heteroscedasticity-consistent (HC3)" in text and "Welch's ANOVA" in text
     assert "Null hypothesis: " in text and "null hypothesis the" not in text
+
+
+@pytest.mark.parametrize("which", ["oneway", "factorial"])
+def test_p_is_italic_in_the_readings(which, request):
+    """The p named in each plain-language reading is set like every other p (APA 7: Latin
+    statistical symbols in italics)."""
+    _, document = request.getfixturevalue(which)
+    readings = [b for b in document.walk() if isinstance(b, Paragraph) and b.style == "reading"]
+    assert readings
+    for para in readings:
+        assert Run("p", True) in para.runs, plain(para.runs)
+        assert " p)" not in "".join(r.text for r in para.runs if not r.italic)
