@@ -27,7 +27,10 @@ then above zero exactly when the F test rejects at alpha.
 The standardized contrast of one contrast row is d = (c'y - h) / sqrt(MSE) after the weights (and h
 with them) are scaled so the positive weights sum to 1 and the negative weights to -1; its interval
 inverts the noncentral t distribution (Steiger & Fouladi 1997; Cumming & Finch 2001), and the
-small-sample correction is g = J d with Hedges' (1981) exact gamma-function J.
+small-sample correction is g = J d with Hedges' (1981) exact gamma-function J; g's interval is
+d's noncentral-t interval times the same J (Hedges 1981, JEBS 6, 107-128; Hedges & Olkin 1985,
+*Statistical Methods for Meta-Analysis*, chapter 5). A standardized contrast is defined only for
+weights that sum to zero.
 
 scipy.stats.ncf.sf returns -cdf instead of 1 - cdf when the noncentrality is exactly 0 (scipy
 issue 26188); :func:`noncentral_f_cdf` and :func:`noncentral_f_sf` switch to the central F
@@ -133,8 +136,8 @@ class ContrastEffectSize:
     """The standardized effect size of a single-row contrast ``c'mu = h``.
 
     ``d`` carries the interval for the population standardized contrast (noncentral t
-    inversion); ``g`` is the Hedges-corrected point estimate (``g.ci`` is ``None``: the interval
-    for the population value is the one on ``d``). ``scale`` is the factor applied to the weights
+    inversion); ``g`` is the Hedges-corrected estimate with that interval times the same exact J
+    (Hedges 1981). ``scale`` is the factor applied to the weights
     and to ``h``; ``weights`` are the scaled weights; ``t`` and ``df`` are the contrast's t test;
     ``noncentrality_ci`` bounds the noncentrality of t; ``alternative`` says which bounds are
     finite.
@@ -524,16 +527,17 @@ def standardized_contrast(
     ``weights`` are the contrast weights over the k cells, ``estimate`` is ``c'y`` with those
     weights, ``n`` the cell sizes, ``mse`` the residual mean square with ``df_error`` df.
 
-    Scaling: when the weights sum to zero (a contrast), weights and ``h`` are divided by the sum
+    Scaling: the weights must sum to zero (a contrast); weights and ``h`` are divided by the sum
     of the positive weights, so positive weights sum to 1 and negative weights to -1 and
-    ``2a - 2b`` gives the same d as ``a - b``. When they do not sum to zero (``a = 5``,
-    ``a + b = 10``) they are divided by the absolute value of their sum, making the scaled
-    combination a (signed) average of means compared with the equally scaled h.
+    ``2a - 2b`` gives the same d as ``a - b``. Weights that do not sum to zero (``a = 5``,
+    ``2*a - b``) state a combination that is not a difference of means: its size in SD units
+    depends on where the measurement scale starts, so :class:`FitError` says so.
 
     d = (s*estimate - s*h) / sqrt(MSE); t = d / sqrt(sum(c_s^2 / n)) is the contrast's t
     statistic; the noncentrality bounds of t (Steiger & Fouladi 1997; Cumming & Finch 2001) times
     sqrt(sum(c_s^2 / n)) bound the population standardized contrast. g = J d with Hedges' (1981)
-    exact J. Cells with weight 0 may have n = 0 (empty cells).
+    exact J, and g's interval is J times d's (Hedges 1981; Hedges & Olkin 1985, chapter 5).
+    Cells with weight 0 may have n = 0 (empty cells).
     """
     c = np.asarray(weights, dtype=float).ravel()
     n_arr = np.asarray(n, dtype=float).ravel()
@@ -557,14 +561,15 @@ def standardized_contrast(
     hedges_j = hedges_correction(df_error)
     df_error = float(df_error)
 
-    total = float(c.sum())
+    total = math.fsum(c.tolist())
     positive = float(c[c > 0].sum())
-    if math.isclose(total, 0.0, abs_tol=1e-12 * float(np.abs(c).sum())):
-        scale = 1.0 / positive
-        scaling = "weights / sum(positive weights)"
-    else:
-        scale = 1.0 / abs(total)
-        scaling = "weights / |sum(weights)|"
+    if not math.isclose(total, 0.0, abs_tol=1e-12 * float(np.abs(c).sum())):
+        raise FitError(
+            f"the weights sum to {total:g}, not 0, so the combination is not a difference of means "
+            "and its size in SD units depends on where the scale starts"
+        )
+    scale = 1.0 / positive
+    scaling = "weights / sum(positive weights)"
     cs = c * scale
     spread = math.sqrt(float(np.sum(cs[used] ** 2 / n_arr[used])))
     d = scale * (float(estimate) - float(h)) / math.sqrt(mse)
@@ -587,9 +592,13 @@ def standardized_contrast(
         g=EffectSize(
             name="hedges_g",
             value=hedges_j * d,
-            ci=None,
-            ci_level=None,
+            ci=(hedges_j * ci[0], hedges_j * ci[1]),
+            ci_level=level,
             method="J*d, J = Gamma(df/2) / (sqrt(df/2) Gamma((df-1)/2)) (Hedges 1981)",
+            ci_method=(
+                f"J times the noncentral t interval of d, {alternative} "
+                "(Hedges 1981; Hedges & Olkin 1985, ch. 5)"
+            ),
         ),
         scale=scale,
         weights=tuple(float(x) for x in cs),

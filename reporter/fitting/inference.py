@@ -17,7 +17,9 @@ effect, and an HC3 Wald F otherwise.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import math
+from dataclasses import dataclass, replace
+from fractions import Fraction
 
 import numpy as np
 
@@ -27,7 +29,7 @@ from reporter.fitting import posthoc as P
 from reporter.fitting import robust as R
 from reporter.intake.cells import CellStats
 from reporter.fitting.effectsizes import AnovaEffectSizes, EffectSize, describe_anova_effect_sizes, standardized_contrast
-from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model
+from reporter.fitting.linear import ContrastTest, ModelFit, constant_part, fit_contrast, fit_model
 from reporter.fitting.permutation import (PERMUTATION_MAX_ROWS, SEQUENTIAL_EXCEEDANCES, PermutationResult,
                                          permutation_f_test)
 from reporter.fitting.power import Sensitivity, describe_sensitivity
@@ -61,6 +63,7 @@ class HypothesisExtras:
     confirmatory: str  # "classical" or "robust"
     confirmatory_p: float
     reason: str
+    effect_size_note: str | None = None  # why no effect size is given, when none is
 
 
 @dataclass(frozen=True)
@@ -115,11 +118,13 @@ class Inference:
     policy: str
     kruskal_note: str | None = None
     permutation_note: str | None = None
+    unavailable: tuple[tuple[str, str], ...] = ()  # (auxiliary result, why it could not be computed)
 
 
 def _observed(cells: CellStats):
+    """Observed cells: mask, n, means as offsets from the pivot, and centred SS."""
     o = cells.observed
-    return o, cells.n[o], cells.mean[o], cells.ss[o]
+    return o, cells.n[o], cells.offset_mean[o], cells.ss[o]
 
 
 OUTLIER_LIMIT = 100
@@ -151,21 +156,51 @@ def check_assumptions(rows, cells: CellStats, fit: ModelFit, alpha: float, *, se
     return AssumptionChecks(bf, lev, sw, qq, scan, hetero, tuple(notes)), flagged
 
 
-def _robust_for(contrast, cells: CellStats, one_way_effect: bool, alpha: float) -> RobustTest | None:
-    o, n, mean, ss = _observed(cells)
+def cell_names(design) -> tuple[str, ...]:
+    """Each cell named by its levels ("dose=high", "dose=high, sex=f"), for messages."""
+    return tuple(", ".join(f"{f}={lv}" for f, lv in zip(c.factors, c.levels)) for c in design.cells)
+
+
+def _robust_for(contrast, cells: CellStats, one_way_effect: bool, alpha: float, labels=None) -> RobustTest | None:
+    """The robust version of one test, on the offsets from the pivot (C·ȳ − h formed exactly).
+
+    The robust functions see the offsets and h − pivot·(row sums of C), computed exactly, so a
+    contrast whose weights sum to zero never meets the pivot; a location (the estimate of a
+    combination whose weights do not sum to zero, its interval) gets h added back at the end.
+    """
+    o, n, m, ss = _observed(cells)
     C = contrast.C[:, o]
     h = contrast.h
+    h_off = -constant_part(contrast.weights, contrast.rhs, cells.pivot_exact)
+    lab = None if labels is None else tuple(np.asarray(labels, dtype=object)[o])
     try:
         if contrast.test == "t" and contrast.q == 1:
-            r = R.welch_contrast(C[0], n, mean, ss, h=float(h[0]), alternative=contrast.alternative, alpha=alpha)
-            return RobustTest("Welch–Satterthwaite t", "t", r.statistic, (r.df,), r.p, r.estimate, (r.ci_low, r.ci_high))
+            r = R.welch_contrast(C[0], n, m, ss, h=float(h_off[0]), alternative=contrast.alternative, alpha=alpha,
+                                 labels=lab)
+            d = r.estimate - r.null_value  # C·ȳ − h
+            ci = (r.ci_low - r.null_value + h[0], r.ci_high - r.null_value + h[0])
+            return RobustTest("Welch–Satterthwaite t", "t", r.statistic, (r.df,), r.p, float(d + h[0]), ci)
         if one_way_effect:
-            r = R.welch_anova(n, mean, ss)
+            r = R.welch_anova(n, m, ss, labels=lab)
             return RobustTest("Welch's ANOVA", "F", r.statistic, (r.df1, r.df2), r.p)
-        r = R.hc3_wald(C, n, mean, ss, h=h)
+        r = R.hc3_wald(C, n, m, ss, h=h_off, labels=lab)
         return RobustTest("HC3 Wald F", "F", r.statistic, (r.df1, r.df2), r.p)
     except FitError as exc:
         return RobustTest("not available", contrast.test, float("nan"), (), float("nan"), note=str(exc))
+
+
+class _Attempts:
+    """Runs auxiliary computations; one that cannot be computed is recorded, never raised."""
+
+    def __init__(self):
+        self.unavailable: list[tuple[str, str]] = []
+
+    def __call__(self, what: str, fn, *args, **kwargs):
+        try:
+            return fn(*args, **kwargs)
+        except FitError as exc:
+            self.unavailable.append((what, str(exc)))
+            return None
 
 
 def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, contrasts, tests, *, alpha: float,
@@ -176,12 +211,19 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
                        rows_unavailable: str = ROWS_UNAVAILABLE) -> Inference:
     """Collect effect sizes, checks, robust tests, post-hoc families and power for one fit.
 
+    Every auxiliary result that cannot be computed (a one-row or constant cell, too few degrees
+    of freedom) is reported in ``unavailable`` with its reason; only a confirmatory test that
+    cannot be computed raises :class:`FitError`.
+
     ``rows`` (a :class:`reporter.intake.rows.RowAccess`, or None) answers every row-level step;
     without it those steps are skipped with the reason ``rows_unavailable``.
     """
     checks, flagged = check_assumptions(rows, cells, fit, alpha, seed=seed, unavailable=rows_unavailable)
     o, n_obs, mean_obs, ss_obs = _observed(cells)
     one_way = len(design.factors) == 1
+    names = cell_names(design)
+    names_obs = tuple(names[i] for i in np.flatnonzero(o))
+    attempt = _Attempts()
     perm_arrays, perm_note = _permutation_rows(rows, cells, permutations, permutation_max_rows, rows_unavailable)
 
     def permute(C, label):
@@ -197,48 +239,67 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
         if not r.testable:
             rows_out.append(RowExtras(None, None, None, None))
             continue
-        es = describe_anova_effect_sizes(r.ss, r.df, fit.ss_error, fit.df_error, fit.ss_total, cells.n_total,
-                                         alpha=alpha)
+        es = attempt(f"effect sizes of {r.source}", describe_anova_effect_sizes, r.ss, r.df, fit.ss_error,
+                     fit.df_error, fit.ss_total, cells.n_total, alpha=alpha)
         eff = compile_effect(design, " x ".join(r.factors))
-        sens = describe_sensitivity(r.df, cells.n_total, fit.df_error, alpha=alpha)
+        sens = attempt(f"sensitivity (power) of {r.source}", describe_sensitivity, r.df, cells.n_total, fit.df_error,
+                       alpha=alpha)
         if np.any(eff.C[:, ~o] != 0):  # the unweighted-means contrast needs an empty cell
             rows_out.append(RowExtras(es, None, None, sens))
             continue
-        rob = _robust_for(eff, cells, one_way, alpha)
-        rows_out.append(RowExtras(es, rob, permute(eff.C, r.source), sens))
+        rob = _robust_for(eff, cells, one_way, alpha, names)
+        rows_out.append(RowExtras(es, rob, attempt(f"permutation F of {r.source}", permute, eff.C, r.source), sens))
 
     extras = []
     for c, t in zip(contrasts, tests):
+        es_note = None
         if t.test == "t":
-            sc = standardized_contrast([float(w) for w in c.weights[0]], float(c.rhs[0]), t.estimate, cells.n,
-                                       fit.mse, fit.df_error, level=1 - alpha,
-                                       alternative=c.alternative)
-            primary, sizes = sc.d, (sc.d, sc.g)
+            primary, sizes = None, ()
+            if sum(c.weights[0], Fraction(0)) != 0:
+                es_note = _NOT_A_CONTRAST
+            else:
+                try:
+                    # C·ȳ − h as fitted (exact pivot part), not the estimate minus h again.
+                    sc = standardized_contrast([float(w) for w in c.weights[0]], 0.0, t.row_estimates[0], cells.n,
+                                               fit.mse, fit.df_error, level=1 - alpha, alternative=c.alternative)
+                    primary, sizes = sc.d, (sc.d, sc.g)
+                except FitError as exc:
+                    es_note = f"no standardized contrast: {exc}"
         else:
-            es = describe_anova_effect_sizes(t.ss, t.df[0], fit.ss_error, fit.df_error, fit.ss_total, cells.n_total,
-                                             alpha=alpha)
-            primary, sizes = es.partial_eta_squared, (es.partial_eta_squared, es.cohens_f)
+            es = attempt(f"effect sizes of '{c.name}'", describe_anova_effect_sizes, t.ss, t.df[0], fit.ss_error,
+                         fit.df_error, fit.ss_total, cells.n_total, alpha=alpha)
+            primary, sizes = (None, ()) if es is None else (es.partial_eta_squared, (es.partial_eta_squared, es.cohens_f))
+            if es is None:
+                es_note = attempt.unavailable[-1][1]
         is_oneway_effect = one_way and c.kind == "effect"
-        rob = _robust_for(c, cells, is_oneway_effect, alpha)
+        rob = _robust_for(c, cells, is_oneway_effect, alpha, names)
         perm = None
         if c.test == "F" and np.allclose(c.h, 0) and np.allclose(c.C.sum(axis=1), 0):
-            perm = permute(c.C, c.name)
+            perm = attempt(f"permutation F of '{c.name}'", permute, c.C, c.name)
         robust_ok = rob is not None and np.isfinite(rob.p)
-        if policy == "always-robust" and robust_ok:
-            choice, reason = "robust", "the plan makes the robust test confirmatory (always-robust)"
-        elif policy == "robust-if-heterogeneous" and checks.heterogeneous and robust_ok:
-            choice, reason = "robust", "the Brown–Forsythe test indicated unequal variances (robust-if-heterogeneous)"
+        if policy == "always-robust" or (policy == "robust-if-heterogeneous" and checks.heterogeneous):
+            if not robust_ok:
+                why = ("the plan makes the robust test confirmatory (unequal_variances = \"always-robust\")"
+                       if policy == "always-robust" else
+                       "the Brown–Forsythe test indicated unequal variances (unequal_variances = "
+                       "\"robust-if-heterogeneous\")")
+                raise FitError(
+                    f"hypothesis '{c.name}': {why}, but the robust test cannot be computed: "
+                    f"{rob.note if rob is not None else 'no robust version exists'}. Set unequal_variances = "
+                    "\"classical\" in [analysis], or collect at least two distinct values in every cell."
+                )
+            choice = "robust"
+            reason = ("the plan makes the robust test confirmatory (always-robust)" if policy == "always-robust"
+                      else "the Brown–Forsythe test indicated unequal variances (robust-if-heterogeneous)")
         elif policy == "robust-if-heterogeneous" and checks.brown_forsythe is None:
             choice, reason = "classical", ("the Brown–Forsythe test was not available, so the classical test stays "
                                            "confirmatory (robust-if-heterogeneous)")
         elif policy == "robust-if-heterogeneous":
             choice, reason = "classical", "the Brown–Forsythe test did not indicate unequal variances (robust-if-heterogeneous)"
-        elif policy == "always-robust":
-            choice, reason = "classical", "the robust test was not available: " + (rob.note if rob else "")
         else:
             choice, reason = "classical", "the plan makes the classical test confirmatory"
         p = rob.p if choice == "robust" else t.p
-        extras.append(HypothesisExtras(primary, sizes, rob, perm, choice, p, reason))
+        extras.append(HypothesisExtras(primary, sizes, rob, perm, choice, p, reason, es_note))
 
     kw, kw_note = None, None
     if rows is None:
@@ -248,23 +309,21 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
             kw = R.kruskal_wallis_ranked(rows.rank_sums(), cells.n)
         except FitError as exc:
             kw_note = f"not available: {exc}"
-    welch = None
-    if one_way:
-        try:
-            welch = R.welch_anova(n_obs, mean_obs, ss_obs)
-        except FitError:  # a cell without a variance (n = 1); the robust table says why
-            welch = None
+    welch = attempt("Welch's ANOVA", R.welch_anova, n_obs, mean_obs, ss_obs, labels=names_obs) if one_way else None
 
     families = []
-    gh = None
     for fam in posthoc:
-        families.append(_posthoc_family(fam, design, cells, fit, alpha, posthoc_on, control, seed))
-    if "all-pairs" in posthoc and posthoc_on == "cells" and np.all(cells.n > 1):
-        gh = R.games_howell(cells.n, cells.mean, cells.ss, alpha=alpha)
+        got = attempt(f"{_FAMILY_NAMES[fam]} on the {posthoc_on if posthoc_on == 'cells' else 'levels of ' + posthoc_on}",
+                      _posthoc_family, fam, design, cells, fit, alpha, posthoc_on, control, names)
+        if got is not None:
+            families.append(got)
+    gh = None
+    if "all-pairs" in posthoc and posthoc_on == "cells":
+        gh = attempt("Games–Howell pairs on the cells", _games_howell, cells, alpha, names_obs)
 
     sens = _outlier_sensitivity(design, cells, flagged, contrasts, alpha)
     return Inference(tuple(rows_out), tuple(extras), checks, kw, welch, tuple(families), gh, sens, policy,
-                     kw_note, perm_note)
+                     kw_note, perm_note, tuple(attempt.unavailable))
 
 
 def _permutation_rows(rows, cells: CellStats, permutations: int, max_rows: int, unavailable: str):
@@ -286,27 +345,54 @@ def _permutation_rows(rows, cells: CellStats, permutations: int, max_rows: int, 
     return arrays, None
 
 
-def _posthoc_family(fam, design, cells, fit, alpha, on, control, seed):
+_NOT_A_CONTRAST = ("no standardized contrast: the weights do not sum to zero, so the combination is not a "
+                   "difference of means and its size in SD units depends on where the scale starts")
+
+_FAMILY_NAMES = {"all-pairs": "Tukey–Kramer pairs", "versus-control": "Dunnett comparisons with the control",
+                 "any-contrast": "Scheffé pairs"}
+
+
+def _games_howell(cells: CellStats, alpha: float, names_obs) -> P.ComparisonFamily:
+    """Games–Howell over the observed cells, on the offsets; comparisons keep design cell indices."""
+    o, n, m, ss = _observed(cells)
+    res = R.games_howell(n, m, ss, alpha=alpha, labels=names_obs)
+    idx = np.flatnonzero(o)
+    return replace(res, comparisons=tuple(replace(c, first=int(idx[c.first]), second=int(idx[c.second]))
+                                          for c in res.comparisons))
+
+
+def _posthoc_family(fam, design, cells, fit, alpha, on, control, names):
+    """One post-hoc family on the offsets from the pivot (it reports differences only).
+
+    On cells, the observed cells are compared; on a factor, its unweighted marginal means, each
+    of which needs every cell at its level.
+    """
+    o = cells.observed
     if on == "cells":
-        labels = [c.short for c in design.cells]
+        idx = np.flatnonzero(o)
+        labels = [design.cells[i].short for i in idx]
         weights = None
-        n = cells.n
-        est = cells.mean
+        n = cells.n[o]
+        est = cells.offset_mean[o]
     else:
         f = design.factor(on)
         labels = list(f.levels)
         W = np.zeros((len(f.levels), design.k))
         for i, lv in enumerate(f.levels):
             idx = [c.index for c in design.cells if c.as_dict()[on] == lv]
+            gap = [j for j in idx if not o[j]]
+            if gap:
+                raise FitError(f"the marginal mean of {on}={lv} needs {R.name_cells(gap, names)}, which "
+                               f"{'is' if len(gap) == 1 else 'are'} empty")
             W[i, idx] = 1.0 / len(idx)
         weights = W
         n = cells.n
-        est = W @ np.nan_to_num(cells.mean)
+        est = np.array([math.fsum((row[o] * cells.offset_mean[o]).tolist()) for row in W])
     if fam == "all-pairs":
         res = P.tukey_kramer(est, n, fit.mse, fit.df_error, weights=weights, alpha=alpha)
     elif fam == "versus-control":
         ctrl = _control_index(labels, control, design, on)
-        res = P.dunnett(est, n, fit.mse, fit.df_error, control=ctrl, weights=weights, alpha=alpha, seed=seed)
+        res = P.dunnett(est, n, fit.mse, fit.df_error, control=ctrl, weights=weights, alpha=alpha)
     else:
         res = P.scheffe_pairs(est, n, fit.mse, fit.df_error, weights=weights, alpha=alpha)
     return (fam, on, res, tuple(labels))

@@ -145,7 +145,7 @@ def _weighted_mean_sum(w: np.ndarray, offset_means: np.ndarray, pivot: Fraction)
     return math.fsum((w * offset_means).tolist()) + float(pivot) * math.fsum(w.tolist())
 
 
-def _constant_part(rows: Sequence[Sequence[Fraction]], rhs: Sequence[Fraction], pivot: Fraction) -> np.ndarray:
+def constant_part(rows: Sequence[Sequence[Fraction]], rhs: Sequence[Fraction], pivot: Fraction) -> np.ndarray:
     """pivot·(row sums of C) − h, exactly, then rounded once."""
     return np.array([float(pivot * sum(row, Fraction(0)) - h) for row, h in zip(rows, rhs)])
 
@@ -172,7 +172,7 @@ def fit_contrast(
     Co = C[:, observed]
     m = cells.offset_mean[observed]
     inv_n = 1.0 / cells.n[observed]
-    const = _constant_part(weights, rhs, cells.pivot_exact)
+    const = constant_part(weights, rhs, cells.pivot_exact)
     d = np.array([math.fsum([*(row * m).tolist(), c]) for row, c in zip(Co, const)])
     V = (Co * inv_n) @ Co.T
     dfe = fit.df_error

@@ -16,9 +16,8 @@ Families:
   manuscript, printed in The Collected Works of John W. Tukey, vol. VIII, 1994); Kramer (1956),
   Biometrics 12(3), 307-310, for unequal sample sizes;
 * every group against a control, Dunnett (1955), JASA 50(272), 1096-1121, with the
-  multivariate t probabilities evaluated by randomized quasi-Monte Carlo (Genz & Bretz 2009,
-  *Computation of Multivariate Normal and t Probabilities*, Springer) through
-  ``scipy.stats.multivariate_t``;
+  many-to-one probabilities reduced to a deterministic double integral (normal times chi) and
+  evaluated by adaptive Gauss–Kronrod quadrature to about 1e-10;
 * any contrast, Scheffe (1953), Biometrika 40(1/2), 87-104.
 
 Each comparison carries the difference ``estimate[first] - estimate[second]``, its standard
@@ -36,6 +35,7 @@ import numpy as np
 
 from reporter.errors import FitError
 from reporter.fitting.distributions import f_isf, f_sf, t_cdf, t_isf, t_sf
+from reporter.fitting.quadrature import integrate
 from reporter.fitting.roots import find_root
 
 __all__ = [
@@ -76,8 +76,7 @@ class Comparison:
 class ComparisonFamily:
     """A family of simultaneous comparisons and the settings that produced it.
 
-    ``control`` is the control group's index for Dunnett's family (None otherwise); ``seed`` is
-    the seed of the quasi-Monte Carlo integration when the family needed one (None otherwise).
+    ``control`` is the control group's index for Dunnett's family (None otherwise).
     """
 
     method: str
@@ -86,7 +85,6 @@ class ComparisonFamily:
     comparisons: tuple[Comparison, ...]
     n_groups: int
     control: int | None = None
-    seed: int | None = None
 
     @property
     def confidence_level(self) -> float:
@@ -259,8 +257,8 @@ def tukey_kramer(
 
     For groups i < j the difference d = est_i - est_j has standard error
     se = sqrt(MSE * sum_c (W_ic - W_jc)^2 / n_c). The adjusted p value is the upper tail of the
-    studentized range with g groups and ``df_error`` degrees of freedom at q = sqrt(2)|d|/se,
-    and the interval is d -/+ q_(1-alpha; g, df) / sqrt(2) * se (Tukey 1953; Kramer 1956,
+    studentized range with g groups and ``df_error`` degrees of freedom at q = sqrt(2)|d|/se
+    (:func:`studentized_range_sf`, one quadrature for all pairs), and the interval is d -/+ q_(1-alpha; g, df) / sqrt(2) * se (Tukey 1953; Kramer 1956,
     Biometrics 12, 307-310; Hayter 1984, Annals of Statistics 12, 61-75, proves the intervals
     conservative for unequal n).
 
@@ -268,22 +266,16 @@ def tukey_kramer(
     ``df_error`` of the full cell-means model; ``weights`` (g, k) maps cell means to group
     means (default: the groups are the cells).
     """
-    # Imported here: scipy.stats is slow to import and only post-hoc families need it.
-    from scipy.stats import studentized_range
-
     alpha = _check_alpha(alpha)
     est, v, mse, df_error = _group_structure(estimates, n, mse, df_error, weights)
     g = est.size
-    q_crit = float(studentized_range.ppf(1.0 - alpha, g, df_error))
-    crit = q_crit / np.sqrt(2.0)
-    out = []
-    for i in range(g):
-        for j in range(i + 1, g):
-            se = _pair_se(v, mse, i, j)
-            diff = float(est[i] - est[j])
-            t = diff / se
-            p = float(studentized_range.sf(abs(t) * np.sqrt(2.0), g, df_error))
-            out.append(pairwise_comparison(i, j, diff, se, df_error, p, crit))
+    crit = studentized_range_isf(alpha, g, df_error) / np.sqrt(2.0)
+    pairs = [(i, j) for i in range(g) for j in range(i + 1, g)]
+    se = [_pair_se(v, mse, i, j) for i, j in pairs]
+    diff = [float(est[i] - est[j]) for i, j in pairs]
+    # One quadrature for every pair: the studentized range with g means and df_error df.
+    p = studentized_range_sf([abs(d / e) * np.sqrt(2.0) for d, e in zip(diff, se)], g, df_error)
+    out = [pairwise_comparison(i, j, d, e, df_error, float(pp), crit) for (i, j), d, e, pp in zip(pairs, diff, se, p)]
     return two_sided_family("Tukey-Kramer", alpha, out, g)
 
 
@@ -297,6 +289,7 @@ def _draw_seed() -> int:
 
 
 def _check_seed(seed) -> int:
+    """A validated seed (used by the permutation test); None draws one."""
     if seed is None:
         return _draw_seed()
     if isinstance(seed, (bool, np.bool_)) or not isinstance(seed, (int, np.integer)) or seed < 0:
@@ -307,66 +300,191 @@ def _check_seed(seed) -> int:
     return int(seed)
 
 
-def _mvt_exceedance(
-    corr: np.ndarray,
-    df: float,
-    values: np.ndarray,
-    alternative: str,
-    seed: int,
-    maxpts: int,
-) -> float:
-    """P(the extreme of T exceeds the given level), T multivariate t with correlation ``corr``.
+# Error tolerances of the nested quadrature (absolute, on a probability) and of the root search
+# for the critical value; see :func:`dunnett_exceedance`.
+_INNER_TOL = 1e-12
+_OUTER_TOL = 1e-10
+_CRIT_XTOL = 1e-10
+_Z_EDGES = np.linspace(-8.5, 8.5, 9)  # beyond |z| = 8.5 the normal mass is below 2e-17
 
-    The same seed is used at every call, so that the quasi-Monte Carlo estimate is a
-    deterministic, monotone function of the limits (common random numbers): p values and the
-    critical value are then mutually consistent.
+
+def _chi_at_normal_quantile(w: np.ndarray, df: float) -> np.ndarray:
+    """s with P(S <= s) = Phi(w), S = sqrt(chi2_df / df), each tail from its own exact argument."""
+    from scipy import special
+
+    lower = w <= 0.0
+    x = np.empty_like(w)
+    x[lower] = special.gammaincinv(df / 2.0, special.ndtr(w[lower]))
+    x[~lower] = special.gammainccinv(df / 2.0, special.ndtr(-w[~lower]))
+    return np.sqrt(2.0 * x / df)
+
+
+def dunnett_exceedance(lam, df: float, c: float, two_sided: bool) -> float:
+    """P(max_i |T_i| >= c) (two-sided) or P(max_i T_i >= c) for Dunnett's many-to-one statistics.
+
+    T_i = Z_i / S with corr(Z_i, Z_j) = lam_i lam_j (i != j) and S = sqrt(chi2_df / df)
+    independent of Z. Writing Z_i = lam_i Z_0 + sqrt(1 - lam_i^2) X_i with independent standard
+    normal Z_0, X_i reduces the m-dimensional probability to a double integral (Dunnett 1955,
+    JASA 50, 1096-1121, for this product correlation structure; Hochberg & Tamhane 1987,
+    *Multiple Comparison Procedures*, Wiley, on one-factor correlation structures):
+
+        P(max |T_i| < c) = E_S ∫ phi(z) prod_i [Phi((cS - lam_i z)/tau_i) - Phi((-cS - lam_i z)/tau_i)] dz,
+
+    tau_i = sqrt(1 - lam_i^2). The exceedance 1 - prod_i(1 - q_i) is integrated directly (as
+    -expm1(sum log1p(-q_i))), so small p values keep their relative accuracy. The inner integral
+    over z runs on [-8.5, 8.5]; the outer one is over S written as its quantile at Phi(w), w
+    standard normal on [-8.5, 8.5] (a smooth change of variable for every df); both are
+    adaptive Gauss–Kronrod (:mod:`reporter.fitting.quadrature`) with error estimates below 1e-11
+    (each inner integral) and 1e-10 (the outer), so the probability is accurate to about 1e-10
+    absolute (truncating z adds less than 2e-17).
     """
+    from scipy import special
+
+    lam = np.asarray(lam, dtype=float)
+    tau = np.sqrt(1.0 - lam * lam)
+
+    def inner(s: np.ndarray) -> np.ndarray:
+        def f(z: np.ndarray) -> np.ndarray:
+            zz = z[:, None, None] * lam[None, None, :]
+            cs = (c * s)[None, :, None]
+            q = special.ndtr((zz - cs) / tau)  # P(Z_i > cS | z, s)
+            if two_sided:
+                q = q + special.ndtr((-cs - zz) / tau)  # P(Z_i < -cS | z, s)
+            with np.errstate(divide="ignore"):  # q = 1: log1p(-1) = -inf, exceedance 1
+                out = -np.expm1(np.sum(np.log1p(-np.minimum(q, 1.0)), axis=2))
+            return out * (np.exp(-0.5 * z * z) / np.sqrt(2.0 * np.pi))[:, None]
+
+        return integrate(f, _Z_EDGES, _INNER_TOL)[0]
+
+    def outer(w: np.ndarray) -> np.ndarray:
+        density = np.exp(-0.5 * w * w) / np.sqrt(2.0 * np.pi)
+        return (inner(_chi_at_normal_quantile(w, df)) * density)[:, None]
+
+    value = float(integrate(outer, _Z_EDGES, _OUTER_TOL)[0][0])
+    return min(max(value, 0.0), 1.0)
+
+
+def _many_to_one_lambdas(cov: np.ndarray) -> np.ndarray:
+    """The lam_i with corr(d_i, d_j) = lam_i lam_j, when the differences share only the control.
+
+    For groups built from disjoint cells cov(d_i, d_j) = var(control) for i != j, so
+    lam_i = sqrt(var(control) / var(d_i)) (Dunnett 1955, p. 1100).
+    """
+    sd = np.sqrt(np.diag(cov))
+    corr = cov / np.outer(sd, sd)
     m = corr.shape[0]
+    off = corr[~np.eye(m, dtype=bool)]
     if m == 1:
-        x = float(values[0])
-        if alternative == "two-sided":
-            return float(2.0 * t_sf(abs(x), df))
-        if alternative == "greater":
-            return float(t_sf(x, df))
-        return float(t_cdf(x, df))
-    # Imported here: scipy.stats is slow to import and only post-hoc families need it.
-    from scipy.stats import multivariate_t
-
-    dist = multivariate_t(shape=corr, df=df)
-    if alternative == "two-sided":
-        upper = np.abs(values)
-        lower = -upper
-    elif alternative == "greater":
-        upper = values
-        lower = np.full(m, -np.inf)
-    else:
-        upper = np.full(m, np.inf)
-        lower = values
-    inside = float(
-        dist.cdf(
-            upper, lower_limit=lower, maxpts=maxpts, random_state=np.random.default_rng(seed)
+        return np.array([0.0])
+    if np.any(off <= 0.0):
+        raise FitError(
+            "Dunnett's comparisons need positively correlated differences from the control "
+            "(groups built from disjoint cells); these groups share cells in another way."
         )
-    )
-    return min(max(1.0 - inside, 0.0), 1.0)
+    # lam_i^2 = corr_ij corr_ik / corr_jk for any j, k distinct from i; average over pairs.
+    if m == 2:
+        lam = np.full(2, np.sqrt(off[0]))
+    else:
+        lam = np.empty(m)
+        for i in range(m):
+            others = [j for j in range(m) if j != i]
+            vals = [corr[i, j] * corr[i, k] / corr[j, k] for a, j in enumerate(others) for k in others[a + 1:]]
+            lam[i] = np.sqrt(np.mean(vals))
+        fitted = np.outer(lam, lam)
+        np.fill_diagonal(fitted, 1.0)
+        if np.max(np.abs(fitted - corr)) > 1e-10:
+            raise FitError(
+                "Dunnett's comparisons need the many-to-one correlation structure "
+                "corr(d_i, d_j) = lam_i lam_j (groups built from disjoint cells); these groups "
+                "share cells in another way."
+            )
+    if np.any(lam >= 1.0):
+        raise FitError("a difference from the control has no variance of its own; check the weights.")
+    return lam
 
 
-def _dunnett_critical(
-    corr: np.ndarray, df: float, alpha: float, alternative: str, seed: int, maxpts: int
-) -> float:
-    """The c with P(max |T_j| > c) = alpha (two-sided) or P(max T_j > c) = alpha (one-sided)."""
-    m = corr.shape[0]
+def _dunnett_p(lam: np.ndarray, df: float, t: float, alternative: str) -> float:
+    if lam.size == 1:
+        if alternative == "two-sided":
+            return float(min(2.0 * t_sf(abs(t), df), 1.0))
+        return float(t_sf(t, df)) if alternative == "greater" else float(t_cdf(t, df))
+    if alternative == "two-sided":
+        return dunnett_exceedance(lam, df, abs(t), True)
+    return dunnett_exceedance(lam, df, t if alternative == "greater" else -t, False)
+
+
+def studentized_range_sf(q, k: int, df: float) -> np.ndarray:
+    """P(Q >= q) for the studentized range of k means with df degrees of freedom, for each q.
+
+    Q = R / S with R the range of k independent standard normals and S = sqrt(chi2_df / df)
+    independent of them, so (Hartley 1942, Biometrika 32, 309-310; Lund & Lund 1983, Applied
+    Statistics 32, 204-210)
+
+        P(R >= w) = k ∫ phi(z) [Phi(z)^(k-1) - (Phi(z) - Phi(z - w))^(k-1)] dz,
+
+    integrated in the form -k ∫ phi(z) Phi(z)^(k-1) expm1((k-1) log1p(-Phi(z - w)/Phi(z))) dz so
+    that small tail probabilities keep their relative accuracy, and P(Q >= q) = E_S P(R >= qS).
+    Both integrals are adaptive Gauss–Kronrod with the change of variable used for Dunnett's
+    probabilities (:func:`dunnett_exceedance`); the result is accurate to about 1e-10 absolute
+    and agrees with ``scipy.stats.studentized_range.sf`` to its accuracy. All q values share
+    the quadrature, so a family of comparisons costs about as much as one.
+    """
+    from scipy import special
+
+    qv = np.atleast_1d(np.asarray(q, dtype=float))
+    if k < 2:
+        raise FitError(f"the studentized range needs at least 2 means (got {k}).")
+
+    def inner(s: np.ndarray) -> np.ndarray:
+        w = (s[:, None] * qv[None, :]).ravel()
+
+        def f(z: np.ndarray) -> np.ndarray:
+            pz = special.ndtr(z)[:, None]
+            ratio = special.ndtr(z[:, None] - w[None, :]) / pz
+            with np.errstate(divide="ignore"):
+                tail = -np.expm1((k - 1) * np.log1p(-np.minimum(ratio, 1.0)))
+            logpz = special.log_ndtr(z)[:, None]
+            dens = np.exp(-0.5 * z * z)[:, None] / np.sqrt(2.0 * np.pi)
+            return k * dens * np.exp((k - 1) * logpz) * tail
+
+        return integrate(f, _Z_EDGES, _INNER_TOL)[0].reshape(s.size, qv.size)
+
+    def outer(w: np.ndarray) -> np.ndarray:
+        density = np.exp(-0.5 * w * w) / np.sqrt(2.0 * np.pi)
+        return inner(_chi_at_normal_quantile(w, df)) * density[:, None]
+
+    value = integrate(outer, _Z_EDGES, _OUTER_TOL * max(1, qv.size))[0]
+    return np.clip(value, 0.0, 1.0)
+
+
+def studentized_range_isf(alpha: float, k: int, df: float) -> float:
+    """The q with P(Q >= q) = alpha (Brent's method to 1e-10), for Tukey's critical value."""
+    # Bracket: the Bonferroni bound on the pairs from above, the two-mean case from below.
+    pairs = k * (k - 1) / 2.0
+    low = float(np.sqrt(2.0) * t_isf(alpha / 2.0, df))
+    high = float(np.sqrt(2.0) * t_isf(alpha / (2.0 * pairs), df))
+    if k == 2:
+        return low
+    return float(find_root(lambda q: float(studentized_range_sf(q, k, df)[0]) - alpha, low * 0.999,
+                           high * 1.001 + 1e-9, xtol=_CRIT_XTOL))
+
+
+def dunnett_critical(lam, df: float, alpha: float, alternative: str = "two-sided") -> float:
+    """The c with P(max |T_i| >= c) = alpha (two-sided) or P(max T_i >= c) = alpha (one-sided).
+
+    Found by Brent's method to 1e-10 on the probability of :func:`dunnett_exceedance`; the
+    single-test t quantile bounds c from below and Bonferroni's from above.
+    """
+    lam = np.asarray(lam, dtype=float)
+    m = lam.size
     sides = 2.0 if alternative == "two-sided" else 1.0
     if m == 1:
         return float(t_isf(alpha / sides, df))
-
-    def excess(c: float) -> float:
-        level = np.full(m, c) if alternative != "less" else np.full(m, -c)
-        return _mvt_exceedance(corr, df, level, alternative, seed, maxpts) - alpha
-
-    # A single comparison's quantile bounds c from below, Bonferroni's from above.
-    low = float(t_isf(alpha / sides, df)) * 0.9
-    high = float(t_isf(alpha / (sides * m), df)) * 1.1 + 0.1
-    return float(find_root(excess, low, high, xtol=1e-7))
+    two = alternative == "two-sided"
+    low = float(t_isf(alpha / sides, df))
+    high = float(t_isf(alpha / (sides * m), df))
+    return float(find_root(lambda c: dunnett_exceedance(lam, df, c, two) - alpha, low * 0.999, high * 1.001 + 1e-9,
+                           xtol=_CRIT_XTOL))
 
 
 def dunnett(
@@ -379,27 +497,25 @@ def dunnett(
     weights=None,
     alpha: float = 0.05,
     alternative: Alternative = "two-sided",
-    seed: int | None = None,
-    maxpts_per_dim: int = 10_000,
 ) -> ComparisonFamily:
     """Every group against a control group, Dunnett's simultaneous tests and intervals.
 
     For group i the difference d_i = est_i - est_control has covariance
     cov(d_i, d_j) = MSE * (V_ij - V_i0 - V_j0 + V_00), V = W diag(1/n) W'; the statistics
     t_i = d_i / se_i jointly follow a multivariate t with ``df_error`` degrees of freedom and the
-    correlation of the d_i (Dunnett 1955, JASA 50, 1096-1121, eq. 1 and p. 1103, there for
-    cells; the same argument holds for any W). The adjusted p value of comparison i is
-    P(max_j |T_j| >= |t_i|) (two-sided; max_j T_j >= t_i for "greater", min_j T_j <= t_i for
-    "less"), and the interval is d_i -/+ c * se_i with c the 1 - alpha quantile of that maximum.
+    correlation of the d_i, which for groups built from disjoint cells is lam_i lam_j with
+    lam_i = sqrt(V_00 / (V_ii + V_00)) (Dunnett 1955, JASA 50, 1096-1121, eq. 1 and p. 1103,
+    there for cells; the same argument holds for marginal means of one factor). The adjusted p
+    value of comparison i is P(max_j |T_j| >= |t_i|) (two-sided; max_j T_j >= t_i for "greater",
+    min_j T_j <= t_i for "less"), and the interval is d_i -/+ c * se_i with c the 1 - alpha
+    quantile of that maximum.
 
-    The probabilities are quasi-Monte Carlo integrals (Genz & Bretz 2009) with
-    ``maxpts_per_dim`` points per dimension, all taken with the same ``seed`` so that p values and
-    the critical value agree; their absolute error is of order 1e-5. With ``seed=None`` a seed is
-    drawn and recorded in the result.
+    The probabilities are deterministic double integrals (:func:`dunnett_exceedance`): error
+    below about 1e-10 on every p value and below 1e-9 on the critical value (checked to 1e-6
+    against published tables and scipy.stats.dunnett in the tests).
     """
     alpha = _check_alpha(alpha)
     alternative = _check_alternative(alternative)
-    seed = _check_seed(seed)
     est, v, mse, df_error = _group_structure(estimates, n, mse, df_error, weights)
     g = est.size
     if isinstance(control, bool) or not isinstance(control, (int, np.integer)) or not (
@@ -418,29 +534,13 @@ def dunnett(
         + v[control, control]
     )
     se = np.array([_pair_se(v, mse, i, control) for i in others])
-    corr = cov / np.sqrt(np.outer(np.diag(cov), np.diag(cov)))
-    corr = (corr + corr.T) / 2.0
-    np.fill_diagonal(corr, 1.0)
-    if np.linalg.eigvalsh(corr).min() <= 1e-10:
-        raise FitError(
-            "the differences from the control are linearly dependent (their correlation matrix "
-            "is singular); each group must be a different, independent combination of cells."
-        )
-    if (
-        isinstance(maxpts_per_dim, bool)
-        or not isinstance(maxpts_per_dim, (int, np.integer))
-        or maxpts_per_dim < 100
-    ):
-        raise FitError(
-            f"'maxpts_per_dim' must be a whole number of at least 100 (got {maxpts_per_dim!r})."
-        )
-    maxpts = int(maxpts_per_dim) * corr.shape[0]
-    crit = _dunnett_critical(corr, df_error, alpha, alternative, seed, maxpts)
+    lam = _many_to_one_lambdas((cov + cov.T) / 2.0)
+    crit = dunnett_critical(lam, df_error, alpha, alternative)
     out = []
     for pos, i in enumerate(others):
         diff = float(est[i] - est[control])
         t = diff / float(se[pos])
-        p = _mvt_exceedance(corr, df_error, np.full(len(others), t), alternative, seed, maxpts)
+        p = _dunnett_p(lam, df_error, t, alternative)
         low = diff - crit * se[pos] if alternative != "less" else -np.inf
         high = diff + crit * se[pos] if alternative != "greater" else np.inf
         out.append(
@@ -464,7 +564,6 @@ def dunnett(
         comparisons=tuple(out),
         n_groups=g,
         control=control,
-        seed=seed,
     )
 
 

@@ -12,6 +12,7 @@ Inputs follow the fitting layer's conventions: per-cell sufficient statistics ``
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -20,7 +21,10 @@ from reporter.errors import FitError
 from reporter.fitting.distributions import chi2_sf, f_sf, t_cdf, t_isf, t_sf
 from reporter.intake.memory_rows import MemoryRows, average_ranks
 from reporter.intake.rows import RankSums
-from reporter.fitting.posthoc import Alternative, ComparisonFamily, _check_alpha, pairwise_comparison, two_sided_family
+from reporter.fitting.posthoc import (
+    Alternative, ComparisonFamily, _check_alpha, pairwise_comparison, studentized_range_isf, studentized_range_sf,
+    two_sided_family,
+)
 
 __all__ = [
     "KruskalWallisResult",
@@ -209,12 +213,21 @@ def _check_alternative(alternative: str) -> str:
     return alternative
 
 
-def _variances(n: np.ndarray, ss: np.ndarray, cells: np.ndarray, what: str) -> np.ndarray:
+def name_cells(idx, labels=None) -> str:
+    """'cell a' or 'cells a, b and c': cells by their labels (levels) when given, else by index."""
+    names = [str(labels[i]) if labels is not None else str(int(i)) for i in np.asarray(idx).ravel()]
+    if len(names) == 1:
+        return f"cell {names[0]}"
+    return "cells " + ", ".join(names[:-1]) + " and " + names[-1]
+
+
+def _variances(n: np.ndarray, ss: np.ndarray, cells: np.ndarray, what: str, labels=None) -> np.ndarray:
     small = cells[n[cells] < 2]
     if small.size:
+        one = "has one row" if small.size == 1 else "have one row each"
         raise FitError(
-            f"{what} needs a variance from every cell it uses, but cells {small.tolist()} have "
-            f"fewer than 2 rows (n = {n[small].tolist()}); merge or drop those cells."
+            f"{what} needs a variance from every cell it uses, but {name_cells(small, labels)} {one}, "
+            "so no variance can be estimated there"
         )
     return ss[cells] / (n[cells] - 1)
 
@@ -223,14 +236,15 @@ def _variances(n: np.ndarray, ss: np.ndarray, cells: np.ndarray, what: str) -> n
 # Welch's ANOVA
 
 
-def welch_anova(n, mean, ss) -> WelchAnovaResult:
+def welch_anova(n, mean, ss, *, labels=None) -> WelchAnovaResult:
     """Welch's test of equal means without assuming equal variances, over the observed cells.
 
     With w_i = n_i / s_i^2, W = sum w_i, the weighted mean m = sum w_i ybar_i / W and
     L = sum (1 - w_i/W)^2 / (n_i - 1):
     F = [sum w_i (ybar_i - m)^2 / (g - 1)] / [1 + 2 (g - 2) L / (g^2 - 1)],
     df1 = g - 1, df2 = (g^2 - 1) / (3 L) (Welch 1951, Biometrika 38, 330-336).
-    Empty cells are left out.
+    Empty cells are left out. ``mean`` may be offsets from any common pivot (only differences
+    of means enter); ``labels`` name the cells in messages.
     """
     n, mean, ss = _cell_stats(n, mean, ss)
     cells = np.flatnonzero(n > 0)
@@ -240,12 +254,13 @@ def welch_anova(n, mean, ss) -> WelchAnovaResult:
             f"Welch's ANOVA compares at least 2 observed cells (got {g}); check the factor "
             "levels present in the data."
         )
-    var = _variances(n, ss, cells, "Welch's ANOVA")
+    var = _variances(n, ss, cells, "Welch's ANOVA", labels)
     if np.any(var <= 0.0):
-        zero = cells[var <= 0.0].tolist()
+        zero = cells[var <= 0.0]
+        verb = "has" if zero.size == 1 else "have"
         raise FitError(
-            f"Welch's ANOVA weights cells by 1/variance, but cells {zero} have zero variance "
-            "(all values equal); use the rank test or check the data."
+            f"Welch's ANOVA weights each cell by n/variance, but {name_cells(zero, labels)} {verb} "
+            "zero variance (all values equal)"
         )
     ni = n[cells].astype(np.float64)
     w = ni / var
@@ -276,13 +291,16 @@ def welch_contrast(
     h: float = 0.0,
     alternative: Alternative = "two-sided",
     alpha: float = 0.05,
+    labels=None,
 ) -> WelchContrastResult:
     """t test of c'mu = h with each cell's own variance and Satterthwaite's degrees of freedom.
 
     se^2 = sum_c c_c^2 s_c^2 / n_c and df = (sum a_c)^2 / sum a_c^2 / (n_c - 1) with
     a_c = c_c^2 s_c^2 / n_c (Satterthwaite 1946, Biometrics Bulletin 2, 110-114; Welch 1947,
     Biometrika 34, 28-35, for two cells). Only cells with a non-zero coefficient enter; each of
-    them needs at least 2 rows.
+    them needs at least 2 rows. ``mean`` may be offsets from a pivot p when ``h`` is given as
+    h - p·sum(c) (computed exactly by the caller); the estimate and interval are then on the
+    offset scale too. ``labels`` name the cells in messages.
     """
     alternative = _check_alternative(alternative)
     alpha = _check_alpha(alpha)
@@ -301,17 +319,17 @@ def welch_contrast(
             f"the contrast puts weight on empty cells {empty.tolist()}, so it is not "
             "estimable; give those cells zero weight."
         )
-    var = _variances(n, ss, cells, "the Welch-Satterthwaite t")
+    var = _variances(n, ss, cells, "the Welch–Satterthwaite t", labels)
     a = cv[cells] ** 2 * var / n[cells]
     se2 = float(a.sum())
     if not se2 > 0.0:
         raise FitError(
-            "the contrast has zero estimated variance (every cell it uses has identical "
-            "values), so no t statistic exists; check the data."
+            f"the Welch–Satterthwaite t needs a variance, but every cell the contrast uses "
+            f"({name_cells(cells, labels)}) has zero variance (all values equal)"
         )
     df = se2**2 / float(np.sum(a**2 / (n[cells] - 1.0)))
     se = float(np.sqrt(se2))
-    estimate = float(cv @ np.where(n > 0, mean, 0.0))
+    estimate = math.fsum((cv[cells] * mean[cells]).tolist())
     h = float(h)
     t = (estimate - h) / se
     if alternative == "two-sided":
@@ -344,18 +362,16 @@ def welch_contrast(
 # Games-Howell
 
 
-def games_howell(n, mean, ss, *, alpha: float = 0.05) -> ComparisonFamily:
+def games_howell(n, mean, ss, *, alpha: float = 0.05, labels=None) -> ComparisonFamily:
     """All pairs of cells with separate variances: the Games-Howell procedure.
 
     For cells i < j: d = ybar_i - ybar_j, se = sqrt(s_i^2/n_i + s_j^2/n_j), Welch's df
     nu = se^4 / [(s_i^2/n_i)^2/(n_i - 1) + (s_j^2/n_j)^2/(n_j - 1)], adjusted p =
     P(Q_(g, nu) >= sqrt(2)|d|/se) from the studentized range, and the interval
     d -/+ q_(1-alpha; g, nu)/sqrt(2) * se (Games & Howell 1976, Journal of Educational
-    Statistics 1, 113-125). Every cell must have at least 2 rows.
+    Statistics 1, 113-125). Every cell must have at least 2 rows. ``mean`` may be offsets from
+    any common pivot (only differences enter); ``labels`` name the cells in messages.
     """
-    # Imported here: scipy.stats is slow to import and only post-hoc families need it.
-    from scipy.stats import studentized_range
-
     alpha = _check_alpha(alpha)
     n, mean, ss = _cell_stats(n, mean, ss)
     g = n.size
@@ -366,7 +382,7 @@ def games_howell(n, mean, ss, *, alpha: float = 0.05) -> ComparisonFamily:
             f"Games-Howell compares the cells passed in, but cells "
             f"{np.flatnonzero(n == 0).tolist()} are empty; pass only observed cells."
         )
-    var = _variances(n, ss, np.arange(g), "Games-Howell")
+    var = _variances(n, ss, np.arange(g), "Games–Howell", labels)
     a = var / n
     out = []
     for i in range(g):
@@ -374,15 +390,15 @@ def games_howell(n, mean, ss, *, alpha: float = 0.05) -> ComparisonFamily:
             se2 = float(a[i] + a[j])
             if not se2 > 0.0:
                 raise FitError(
-                    f"cells {i} and {j} both have zero variance, so their difference has no "
-                    "standard error; check the data."
+                    f"Games–Howell needs a standard error for every pair, but {name_cells([i, j], labels)} "
+                    "both have zero variance (all values equal)"
                 )
             df = se2**2 / float(a[i] ** 2 / (n[i] - 1) + a[j] ** 2 / (n[j] - 1))
             se = float(np.sqrt(se2))
             diff = float(mean[i] - mean[j])
             t = diff / se
-            crit = float(studentized_range.ppf(1.0 - alpha, g, df)) / np.sqrt(2.0)
-            p = float(studentized_range.sf(abs(t) * np.sqrt(2.0), g, df))
+            crit = studentized_range_isf(alpha, g, df) / np.sqrt(2.0)
+            p = float(studentized_range_sf(abs(t) * np.sqrt(2.0), g, df)[0])
             out.append(pairwise_comparison(i, j, diff, se, df, p, crit))
     return two_sided_family("Games-Howell", alpha, out, g)
 
@@ -444,7 +460,7 @@ def kruskal_wallis_ranked(ranks: RankSums, n) -> KruskalWallisResult:
 # HC3 Wald F
 
 
-def hc3_wald(C, n, mean, ss, *, h=None) -> RobustWaldResult:
+def hc3_wald(C, n, mean, ss, *, h=None, labels=None) -> RobustWaldResult:
     """Wald F of C mu = h on the full cell-means model with the HC3 covariance.
 
     In the cell-means model every row of cell c has leverage 1/n_c, so the HC3 sandwich
@@ -455,7 +471,9 @@ def hc3_wald(C, n, mean, ss, *, h=None) -> RobustWaldResult:
     number of observed cells.
 
     A cell with one row has leverage 1 and no HC3 variance: a contrast that uses such a cell
-    raises FitError; such cells that C does not use are harmless.
+    raises FitError; such cells that C does not use are harmless. ``mean`` may be offsets from a
+    pivot p when ``h`` is given as h - p·(row sums of C), computed exactly by the caller;
+    ``labels`` name the cells in messages.
     """
     n, mean, ss = _cell_stats(n, mean, ss)
     k = n.size
@@ -470,9 +488,9 @@ def hc3_wald(C, n, mean, ss, *, h=None) -> RobustWaldResult:
     single = np.flatnonzero(used & (n == 1))
     if single.size:
         raise FitError(
-            f"HC3 needs 1 - leverage > 0, but cells {single.tolist()} have one row (leverage "
-            "1), so their variance cannot be estimated; drop those cells from the hypothesis or "
-            "use the pooled-variance F."
+            f"the HC3 Wald F needs 1 - leverage > 0, but {name_cells(single, labels)} "
+            f"{'has' if single.size == 1 else 'have'} one row (leverage 1), so no variance can "
+            "be estimated there"
         )
     big_n = int(n.sum())
     g = int(np.count_nonzero(n))
@@ -492,10 +510,10 @@ def hc3_wald(C, n, mean, ss, *, h=None) -> RobustWaldResult:
     except np.linalg.LinAlgError:
         chol = None
     if chol is None or np.min(np.diag(chol)) <= 1e-12 * np.sqrt(np.max(np.diag(m))):
-        raise FitError(
-            "the HC3 covariance of the contrasts is singular (the cells they use have no "
-            "spread), so the Wald F is undefined; check the data or use the rank test."
-        )
+        flat = np.flatnonzero(used & (n > 0) & (v == 0.0))
+        why = (f"{name_cells(flat, labels)} {'has' if flat.size == 1 else 'have'} zero variance "
+               "(all values equal)") if flat.size else "the cells it uses have too little spread"
+        raise FitError(f"the HC3 Wald F is undefined: its covariance of the contrasts is singular because {why}")
     z = np.linalg.solve(chol, diff)
     q = cm.shape[0]
     f = float(z @ z) / q

@@ -603,9 +603,11 @@ class _Builder:
             items.append((runs_of("Estimate"), runs_of(_num(t.estimate), ", ", ci,
                                                        f" (one-sided bound{which})" if t.ci_sides == 1 else
                                                        (f" ({which[2:]})" if which else ""))))
-        es = self.effect_size_runs(h)
+        es = self.effect_size_runs(h, every=True)
         if es:
             items.append((runs_of("Effect size"), es))
+        elif h.extras is not None and h.extras.effect_size_note:
+            items.append((runs_of("Effect size"), runs_of(h.extras.effect_size_note[0].upper() + h.extras.effect_size_note[1:] + ".")))
         size = self.family_size(h.family)
         items.append((runs_of("Family"), runs_of(f"{h.family}; {N.format_count(size)} "
                                                  f"{'hypothesis' if size == 1 else 'hypotheses'}, {CORRECTION_NAMES[h.correction]}")))
@@ -675,11 +677,16 @@ class _Builder:
         word = "larger" if rel == ">" else "smaller"
         return f"{left.strip()} is {word} than {right.strip()}"
 
-    def effect_size_runs(self, h):
+    def effect_size_runs(self, h, every: bool = False):
+        """The primary effect size; with ``every``, also Hedges' g beside a standardized contrast."""
         es = getattr(h, "effect_size", None)
         if es is None:
             return None
-        return runs_of(self.effect_size_stat(es))
+        more = [x for x in h.extras.effect_sizes if x.name == "hedges_g"] if every and h.extras else []
+        parts = [self.effect_size_stat(es)]
+        for x in more:
+            parts += [N.text("; "), self.effect_size_stat(x)]
+        return runs_of(*parts)
 
     def effect_size_stat(self, es) -> N.Stat:
         sym = {"standardized_contrast_d": "d", "hedges_g": "g", "partial_eta_squared": "η²p", "cohens_f": "f"}.get(es.name, es.name)
@@ -1061,7 +1068,9 @@ class _Builder:
                       N.stat_p(welch.p), ". "]
         if kw is not None:
             parts += ["Kruskal–Wallis test across the cells (ranks; tie-corrected): ",
-                      N.symbol("H"), f"({kw.df}) = {_num(kw.statistic)}, ", N.stat_p(kw.p), "."]
+                      N.symbol("H"), f"({kw.df}) = {_num(kw.statistic)}, ", N.stat_p(kw.p), ". "]
+        for what, why in self.inf.unavailable:
+            parts += [f"{what}: not available, because {why}. "]
         return Paragraph(runs_of(*parts)) if parts else None
 
     def outlier_table(self) -> Table:

@@ -127,6 +127,7 @@ def _inference_dict(prep, analysis) -> dict[str, Any]:
                 "p": _num(inf.welch_oneway.p)},
         },
         "posthoc": [_family(*f) for f in inf.posthoc],
+        "not_available": [{"result": what, "reason": why} for what, why in inf.unavailable],
         "games_howell": None if inf.games_howell is None else _family(
             "all-pairs-unequal-variances", "cells", inf.games_howell, tuple(c.short for c in analysis.design.cells)),
     }
@@ -278,6 +279,8 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
         if h.extras is not None:
             e = h.extras
             entry["effect_size"] = _effect(e.effect_size)
+            if e.effect_size_note:
+                entry["effect_size_note"] = e.effect_size_note
             entry["effect_sizes"] = [_effect(x) for x in e.effect_sizes]
             entry["robust"] = _robust(e.robust)
             entry["permutation"] = _perm(e.permutation)

@@ -10,7 +10,9 @@ import pytest
 from scipy import stats
 
 from reporter.errors import FitError
-from reporter.fitting.posthoc import dunnett, scheffe_contrast, scheffe_pairs, tukey_kramer
+from reporter.fitting.posthoc import (
+    dunnett, dunnett_critical, dunnett_exceedance, scheffe_contrast, scheffe_pairs, tukey_kramer,
+)
 
 from conftest import plant_growth_codes
 
@@ -111,14 +113,14 @@ def test_tukey_kramer_weights_identity_equals_cells():
 @pytest.mark.parametrize("name", list(DATASETS), ids=list(DATASETS))
 @pytest.mark.parametrize("alternative", ["two-sided", "greater", "less"], ids=str)
 def test_dunnett_matches_scipy_dunnett(name, alternative):
-    """p values and intervals equal scipy.stats.dunnett (reference library; both use quasi-Monte
-    Carlo, scipy with 1000 points per dimension and a noisy root search for the interval, so
-    tolerance 5e-4 on p and 0.2% of the half-width on the limits)."""
+    """p values and intervals equal scipy.stats.dunnett (reference library; scipy integrates by
+    randomized quasi-Monte Carlo with 1000 points per dimension and a noisy root search for the
+    interval, so the comparison is at its accuracy: 5e-4 on p, 0.2% of the half-width on limits)."""
     y, codes, k = DATASETS[name]()
     samples, n, means, mse, df = _groups(y, codes, k)
     ref = stats.dunnett(*samples[1:], control=samples[0], alternative=alternative, rng=12345)
     ref_ci = ref.confidence_interval(0.95)
-    fam = dunnett(means, n, mse, df, control=0, alternative=alternative, seed=12345)
+    fam = dunnett(means, n, mse, df, control=0, alternative=alternative)
     for pos, comp in enumerate(fam.comparisons):
         assert comp.first == pos + 1 and comp.second == 0
         assert comp.statistic == pytest.approx(ref.statistic[pos], rel=1e-10)
@@ -131,27 +133,76 @@ def test_dunnett_matches_scipy_dunnett(name, alternative):
                 assert ours == pytest.approx(theirs, abs=2e-3 * half)
 
 
-def test_dunnett_seed_reproduces_and_is_recorded():
-    """The same seed gives the same family; a drawn seed is recorded and replays it."""
-    y, codes, k = _random_unbalanced()
-    _, n, means, mse, df = _groups(y, codes, k)
-    a = dunnett(means, n, mse, df, control=2, seed=7)
-    assert a == dunnett(means, n, mse, df, control=2, seed=7)
-    drawn = dunnett(means, n, mse, df, control=2)
-    assert drawn == dunnett(means, n, mse, df, control=2, seed=drawn.seed)
+# Dunnett's critical values at alpha = .05 for m comparisons with a control, equal n, from memory
+# of the published tables: one-sided from Dunnett (1955), JASA 50, Table 1a; two-sided from
+# Dunnett (1964), Biometrics 20, 482-491, Table II. Two decimals, as printed.
+DUNNETT_TABLE = [
+    ("greater", 10, 2, 2.15), ("greater", 10, 3, 2.34), ("greater", 10, 4, 2.47), ("greater", 10, 5, 2.56),
+    ("greater", 1e9, 2, 1.92), ("greater", 1e9, 3, 2.06), ("greater", 1e9, 5, 2.23), ("greater", 1e9, 9, 2.42),
+    ("two-sided", 10, 2, 2.57), ("two-sided", 10, 3, 2.76), ("two-sided", 10, 4, 2.89), ("two-sided", 10, 5, 2.99),
+    ("two-sided", 20, 2, 2.38), ("two-sided", 20, 5, 2.73),
+    ("two-sided", 1e9, 2, 2.21), ("two-sided", 1e9, 3, 2.35), ("two-sided", 1e9, 5, 2.51), ("two-sided", 1e9, 9, 2.69),
+]
 
 
-def test_dunnett_critical_value_consistent_with_p():
-    """A comparison's |t| exceeds the critical value exactly when its adjusted p is below alpha,
-    and the critical value lies between the single-test and Bonferroni t quantiles (Bonferroni
-    inequality)."""
+@pytest.mark.parametrize("alternative, df, m, printed", DUNNETT_TABLE)
+def test_dunnett_critical_values_match_published_tables(alternative, df, m, printed):
+    """Critical values round to the published two-decimal table entries (Dunnett 1955, 1964;
+    from memory of the tables)."""
+    lam = np.full(m, np.sqrt(0.5))  # equal n: corr = 1/2
+    assert dunnett_critical(lam, df, 0.05, alternative) == pytest.approx(printed, abs=0.005 + 1e-9)
+
+
+def test_dunnett_exceedance_independent_case_is_sidak_exact():
+    """With lam = 0 and (practically) infinite df the comparisons are independent normals:
+    P(max |Z_i| >= c) = 1 - (1 - 2 Phi(-c))^m exactly (scipy.stats.norm as reference)."""
+    for m, c in ((2, 1.5), (4, 2.4), (7, 3.1)):
+        exact = 1 - (1 - 2 * stats.norm.sf(c)) ** m
+        assert dunnett_exceedance(np.zeros(m), 1e12, c, True) == pytest.approx(exact, abs=1e-9)
+        exact_one = 1 - (1 - stats.norm.sf(c)) ** m
+        assert dunnett_exceedance(np.zeros(m), 1e12, c, False) == pytest.approx(exact_one, abs=1e-9)
+
+
+def test_dunnett_exceedance_bivariate_normal():
+    """Two comparisons with corr 1/2 and df -> infinity: a bivariate normal rectangle probability,
+    from scipy.stats.multivariate_normal (Genz's deterministic bivariate algorithm; reference)."""
+    mvn = stats.multivariate_normal(mean=[0, 0], cov=[[1, 0.5], [0.5, 1]])
+    for c in (1.0, 2.0, 2.8):
+        inside = mvn.cdf([c, c], lower_limit=[-c, -c])
+        assert dunnett_exceedance(np.full(2, np.sqrt(0.5)), 1e12, c, True) == pytest.approx(1 - inside, abs=1e-7)
+        assert dunnett_exceedance(np.full(2, np.sqrt(0.5)), 1e12, c, False) == pytest.approx(
+            1 - mvn.cdf([c, c]), abs=1e-7)
+
+
+@pytest.mark.parametrize("m, df, lam2", [(3, 5, 0.5), (4, 24, 0.3), (6, 87, 0.62)])
+def test_dunnett_exceedance_matches_multivariate_t_with_many_points(m, df, lam2):
+    """Against scipy.stats.multivariate_t.cdf with 200,000 quasi-Monte Carlo points per
+    dimension (reference library; stochastic, so compared at 2e-5, well above its error)."""
+    lam = np.full(m, np.sqrt(lam2))
+    corr = np.full((m, m), lam2)
+    np.fill_diagonal(corr, 1.0)
+    ref_dist = stats.multivariate_t(shape=corr, df=df)
+    for c in (1.8, 2.6):
+        inside = ref_dist.cdf(np.full(m, c), lower_limit=np.full(m, -c), maxpts=200_000 * m,
+                              random_state=np.random.default_rng(1))
+        assert dunnett_exceedance(lam, df, c, True) == pytest.approx(1 - inside, abs=2e-5)
+
+
+def test_dunnett_is_deterministic_and_consistent_with_p():
+    """The same input gives the same family; a comparison's |t| exceeds the critical value exactly
+    when its adjusted p is below alpha; the critical value lies between the single-test and
+    Bonferroni t quantiles (scipy.stats.t; Bonferroni inequality); at the critical value the
+    exceedance is alpha to 1e-9."""
     y, codes, k = _random_unbalanced()
     _, n, means, mse, df = _groups(y, codes, k)
-    fam = dunnett(means, n, mse, df, control=0, seed=3)
+    fam = dunnett(means, n, mse, df, control=0)
+    assert fam == dunnett(means, n, mse, df, control=0)
     crit = fam.comparisons[0].critical_value
     assert stats.t.isf(0.025, df) < crit < stats.t.isf(0.025 / (k - 1), df)
     for comp in fam.comparisons:
         assert (abs(comp.statistic) > crit) == (comp.p_adjusted < 0.05)
+    lam = np.sqrt(n[1:] / (n[1:] + n[0]))  # Dunnett (1955): corr = lam_i lam_j for cells
+    assert dunnett_exceedance(lam, df, crit, True) == pytest.approx(0.05, abs=1e-9)
 
 
 def test_dunnett_two_groups_is_the_t_test():
@@ -159,7 +210,7 @@ def test_dunnett_two_groups_is_the_t_test():
     y, codes, k = plant_growth_codes()
     _, n, means, mse, df = _groups(y, codes, k)
     w = np.array([[1.0, 0, 0], [0, 0.5, 0.5]])
-    comp = dunnett(w @ means, n, mse, df, weights=w, seed=1).comparisons[0]
+    comp = dunnett(w @ means, n, mse, df, weights=w).comparisons[0]
     se = np.sqrt(mse * (1 / 10 + 0.25 / 10 + 0.25 / 10))
     assert comp.se == pytest.approx(se, rel=1e-12)
     assert comp.p_adjusted == pytest.approx(2 * stats.t.sf(abs(comp.difference) / se, df), rel=1e-10)
@@ -173,7 +224,7 @@ def test_dunnett_marginal_correlation_matches_statsmodels():
     w = np.zeros((3, 6))
     for d in range(3):
         w[d, [d, 3 + d]] = 0.5
-    fam = dunnett(w @ means, n, mse, df, weights=w, control=0, seed=5)
+    fam = dunnett(w @ means, n, mse, df, weights=w, control=0)
     fit = sm.OLS(y, np.eye(k)[codes]).fit()
     for comp in fam.comparisons:
         test = fit.t_test(w[comp.first] - w[0])

@@ -129,8 +129,11 @@ def test_welch_contrast_three_cells_matches_hand_formula():
 
 def test_welch_contrast_rejects_single_row_cell():
     """A used cell with one row has no variance: FitError names the cell."""
-    with pytest.raises(FitError, match="cells \\[1\\] have fewer than 2 rows"):
+    with pytest.raises(FitError, match="cell 1 has one row"):
         welch_contrast([1, -1, 0], [4, 1, 5], [1.0, 2.0, 3.0], [2.0, 0.0, 3.0])
+    with pytest.raises(FitError, match="cell dose=high has one row"):
+        welch_contrast([1, -1, 0], [4, 1, 5], [1.0, 2.0, 3.0], [2.0, 0.0, 3.0],
+                       labels=["dose=low", "dose=high", "dose=mid"])
 
 
 @pytest.mark.parametrize("name", list(DATASETS), ids=list(DATASETS))
@@ -248,7 +251,7 @@ def test_hc3_wald_rejects_leverage_one_cell():
     n = np.array([1, 5, 6])
     mean = np.array([1.0, 2.0, 2.5])
     ss = np.array([0.0, 3.0, 4.0])
-    with pytest.raises(FitError, match="cells \\[0\\] have one row"):
+    with pytest.raises(FitError, match="cell 0 has one row"):
         hc3_wald([[1.0, -1.0, 0.0]], n, mean, ss)
     assert hc3_wald([[0.0, 1.0, -1.0]], n, mean, ss).df2 == 12 - 3
 

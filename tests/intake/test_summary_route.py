@@ -279,4 +279,4 @@ def test_single_observation_cell_runs_through(tmp_path):
     analysis = analyse(prep)
     assert analysis.cells.ss[1] == 0.0 and analysis.anova.df_error == 34 - 4
     md = render_outputs(prep, analysis, ("md",))["md"].decode()
-    assert "robust test not available" in md and "fewer than 2 rows" in md
+    assert "robust test not available" in md and "cell medium=coir has one row" in md

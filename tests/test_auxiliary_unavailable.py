@@ -1,0 +1,104 @@
+"""An auxiliary result that cannot be computed is reported as not available; the analysis goes on.
+
+Members of the class: a cell of one row, a constant cell (zero variance), every cell constant
+but one, two cells only (one residual df). The classical ANOVA is defined in each, so the run
+must succeed under the default policy; only a confirmatory robust test that cannot be computed
+is an error (exit 2). The classical F of each run is checked against scipy.stats.f_oneway
+(reference library).
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+
+import pytest
+from scipy import stats
+
+import reporter
+
+PLAN = """
+title = "Auxiliary results at the edges"
+[data]
+path = "d.csv"
+outcome = "y"
+[[factors]]
+name = "dose"
+levels = {levels}
+[analysis]
+unequal_variances = "{policy}"
+posthoc = ["all-pairs", "versus-control", "any-contrast"]
+control = "low"
+permutations = 200
+[[hypotheses]]
+name = "high above low"
+means = "high > low"
+[[hypotheses]]
+name = "doses differ"
+effect = "dose"
+"""
+
+CASES = {
+    "one-row cell": {"low": [1.1, 2.3, 1.7, 2.0], "mid": [2.5, 3.1, 2.2], "high": [4.0]},
+    "constant cell": {"low": [1.1, 2.3, 1.7, 2.0], "mid": [2.5, 3.1, 2.2], "high": [4.0, 4.0, 4.0]},
+    "all constant but one": {"low": [1.1, 2.3, 1.7, 2.0], "mid": [2.5, 2.5, 2.5], "high": [4.0, 4.0, 4.0]},
+    "two cells, one residual df": {"low": [1.1, 2.3], "high": [4.0]},
+    "two cells, one constant": {"low": [1.1, 2.3, 1.5], "high": [4.0, 4.0]},
+}
+
+# What each case must report as not available (result name, words the reason must contain).
+EXPECTED = {
+    "one-row cell": [("Welch's ANOVA", "cell dose=high has one row"),
+                     ("Games–Howell pairs on the cells", "cell dose=high has one row")],
+    "constant cell": [("Welch's ANOVA", "cell dose=high has zero variance")],
+    "all constant but one": [("Welch's ANOVA", "cells dose=mid and dose=high have zero variance"),
+                             ("Games–Howell pairs on the cells", "cells dose=mid and dose=high both have zero variance")],
+    "two cells, one residual df": [("Welch's ANOVA", "cell dose=high has one row")],
+    "two cells, one constant": [("Welch's ANOVA", "cell dose=high has zero variance")],
+}
+
+
+def _write(project, case, policy="classical"):
+    data = CASES[case]
+    rows = "".join(f"{v},{k}\n" for k, vs in data.items() for v in vs)
+    return project(PLAN.format(levels=json.dumps(list(data)), policy=policy), {"d.csv": "y,dose\n" + rows})
+
+
+@pytest.mark.parametrize("case", list(CASES))
+def test_the_analysis_runs_and_says_what_is_not_available(project, case):
+    plan = _write(project, case)
+    report = reporter.report(plan)
+    doc = json.loads(report.render("json"))
+    ref = stats.f_oneway(*[CASES[case][k] for k in CASES[case]])
+    assert doc["anova"]["rows"][0]["F"] == pytest.approx(ref.statistic, rel=1e-10)
+    missing = {x["result"]: x["reason"] for x in doc["not_available"]}
+    for what, words in EXPECTED[case]:
+        assert words in missing[what], (what, missing)
+    assert doc["robust"]["welch_anova"] is None
+    effect = next(h for h in doc["hypotheses"] if h["name"] == "doses differ")
+    assert effect["robust"]["method"] == "not available" and "Welch's ANOVA" in effect["robust"]["note"]
+    assert effect["confirmatory"]["test"] == "classical"
+    text = report.render("md").decode("utf-8")
+    assert "Welch's ANOVA: not available, because" in text
+    report.render("html")
+
+
+def test_one_residual_df_drops_the_outlier_scan_and_the_standardized_contrast(project):
+    plan = _write(project, "two cells, one residual df")
+    doc = json.loads(reporter.report(plan).render("json"))
+    assert any("Outlier check and Q–Q plot not possible" in n for n in doc["assumptions"]["notes"])
+    h = next(h for h in doc["hypotheses"] if h["name"] == "high above low")
+    assert h["effect_size"] is None and "more than 1 residual degree of freedom" in h["effect_size_note"]
+
+
+@pytest.mark.parametrize("case", ["one-row cell", "constant cell"])
+def test_a_confirmatory_robust_test_that_cannot_be_computed_is_an_error(project, case):
+    plan = _write(project, case, policy="always-robust")
+    with pytest.raises(reporter.FitError, match="the robust test cannot be computed: .*dose=high"):
+        reporter.report(plan)
+    run = subprocess.run([sys.executable, "-m", "reporter", "run", str(plan), "--out", str(plan.parent / "out")],
+                         capture_output=True, text=True)
+    assert run.returncode == 2
+    assert "always-robust" in run.stderr and "Traceback" not in run.stderr
+    assert not (plan.parent / "out").exists()
