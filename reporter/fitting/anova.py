@@ -22,6 +22,7 @@ from __future__ import annotations
 import itertools
 import math
 from dataclasses import dataclass
+from fractions import Fraction
 
 import numpy as np
 
@@ -39,7 +40,11 @@ SS_LABELS = {
 
 @dataclass(frozen=True)
 class AnovaRow:
-    """One effect of the table; F and p are None when the effect is not testable."""
+    """One effect of the table; F and p are None when the effect is not testable.
+
+    With empty cells a Type III row tests the estimable part of its hypothesis: ``df`` is that
+    part's rank, ``df_hypothesis`` the full hypothesis's, ``tested`` its contrast rows.
+    """
 
     source: str
     factors: tuple[str, ...]
@@ -49,6 +54,10 @@ class AnovaRow:
     F: float | None
     p: float | None
     note: str | None = None
+    # Type III with empty cells: the df of the whole hypothesis, and the rows of the part that
+    # was tested (over cell means), when only part of it (or none) is estimable.
+    df_hypothesis: int | None = None
+    tested: tuple[tuple[Fraction, ...], ...] | None = None
 
     @property
     def testable(self) -> bool:
@@ -138,25 +147,116 @@ def _nested_rows(design: Design, fit: ModelFit, ss_type: str) -> list[AnovaRow]:
     return rows
 
 
-def _row(term, df, ss, fit, note=None) -> AnovaRow:
+def _row(term, df, ss, fit, note=None, **extra) -> AnovaRow:
     ms = ss / df
     F = ms / fit.mse
-    return AnovaRow(_source(term), term, df, ss, ms, F, float(f_sf(F, df, fit.df_error)), note)
+    return AnovaRow(_source(term), term, df, ss, ms, F, float(f_sf(F, df, fit.df_error)), note, **extra)
+
+
+def _rref(rows: list[list[Fraction]]) -> tuple[list[list[Fraction]], list[int]]:
+    """Reduced row echelon form, exactly, and the pivot columns (Gauss–Jordan elimination)."""
+    m = [list(r) for r in rows]
+    pivots: list[int] = []
+    rank = 0
+    for c in range(len(m[0]) if m else 0):
+        p = next((r for r in range(rank, len(m)) if m[r][c] != 0), None)
+        if p is None:
+            continue
+        m[rank], m[p] = m[p], m[rank]
+        lead = m[rank][c]
+        m[rank] = [x / lead for x in m[rank]]
+        for r in range(len(m)):
+            if r != rank and m[r][c] != 0:
+                f = m[r][c]
+                m[r] = [a - f * b for a, b in zip(m[r], m[rank])]
+        pivots.append(c)
+        rank += 1
+    return m[:rank], pivots
+
+
+def _primitive(row: list[Fraction]) -> tuple[Fraction, ...]:
+    """The row scaled to coprime integers with a positive first non-zero entry (same hypothesis)."""
+    lcm = 1
+    for x in row:
+        lcm = lcm * x.denominator // math.gcd(lcm, x.denominator)
+    ints = [int(x * lcm) for x in row]
+    g = 0
+    for v in ints:
+        g = math.gcd(g, v)
+    first = next(v for v in ints if v != 0)
+    g = g if first > 0 else -g
+    return tuple(Fraction(v, g) for v in ints)
+
+
+def estimable_part(C, empty) -> tuple[tuple[Fraction, ...], ...]:
+    """The rows of C's row space that put no weight on the ``empty`` cells, as a basis.
+
+    A contrast a'C is estimable from the observed cells exactly when (a'C)_e = 0 for every empty
+    cell e, i.e. a lies in the null space of C_E' (C_E: the columns of the empty cells). The
+    basis of {a'C} returned has rank = the degrees of freedom of the testable part. (In the
+    cell-means model a linear function of the cell means is estimable exactly when it gives no
+    weight to an empty cell; Searle 1987, *Linear Models for Unbalanced Data*, on data with some
+    cells empty.) Rows are in reduced echelon form scaled to coprime integers, computed exactly.
+    """
+    C = [[Fraction(x) for x in row] for row in C]
+    q = len(C)
+    if not empty:
+        return tuple(tuple(r) for r in C)
+    M = [[C[r][e] for r in range(q)] for e in empty]  # |E| x q: a must satisfy M a = 0
+    red, piv = _rref(M)
+    free = [j for j in range(q) if j not in piv]
+    basis = []
+    for f in free:
+        a = [Fraction(0)] * q
+        a[f] = Fraction(1)
+        for row, pc in zip(red, piv):
+            a[pc] = -row[f]
+        basis.append([sum((a[r] * C[r][c] for r in range(q)), Fraction(0)) for c in range(len(C[0]))])
+    if not basis:
+        return ()
+    rows, _ = _rref(basis)
+    return tuple(_primitive(r) for r in rows)
+
+
+def _describe_row(row, design: Design) -> str:
+    terms = []
+    for w, cell in zip(row, design.cells):
+        if w == 0:
+            continue
+        size = abs(w)
+        coef = "" if size == 1 else f"{size}·"
+        sign = "−" if w < 0 else "+"
+        terms.append((sign, f"{coef}μ({cell.short})"))
+    text = ("−" if terms[0][0] == "−" else "") + terms[0][1]
+    for sign, t in terms[1:]:
+        text += f" {sign} {t}"
+    return text + " = 0"
 
 
 def _type3_rows(design: Design, fit: ModelFit) -> list[AnovaRow]:
     rows = []
-    empty = ~fit.cells.observed
+    empty = [int(c) for c in np.flatnonzero(~fit.cells.observed)]
     for term in _terms(design):
         C = effect_weights(design, term)
-        touched = [design.cells[c].label for c in np.flatnonzero(empty) if any(r[c] != 0 for r in C)]
-        if touched:
-            rows.append(AnovaRow(_source(term), term, len(C), None, None, None, None,
-                                 "not testable as unweighted means: it needs the empty cell(s) "
-                                 + ", ".join(f"({t})" for t in touched[:4])))
+        needed = [e for e in empty if any(r[e] != 0 for r in C)]
+        if not needed:
+            res = fit_contrast(fit, C, [0] * len(C), test="F")
+            rows.append(_row(term, len(C), res.ss, fit))
             continue
-        res = fit_contrast(fit, C, [0] * len(C), test="F")
-        rows.append(_row(term, len(C), res.ss, fit))
+        cells_text = ", ".join(f"({design.cells[e].label})" for e in needed[:4]) + (" …" if len(needed) > 4 else "")
+        part = estimable_part(C, needed)
+        if not part:
+            rows.append(AnovaRow(_source(term), term, 0, None, None, None, None,
+                                 f"not testable as unweighted means: every contrast of this effect needs the empty "
+                                 f"cell(s) {cells_text}, so none of its {len(C)} df can be tested",
+                                 df_hypothesis=len(C), tested=()))
+            continue
+        res = fit_contrast(fit, part, [0] * len(part), test="F")
+        shown = "; ".join(_describe_row(r, design) for r in part[:3]) + (" …" if len(part) > 3 else "")
+        note = (f"partly testable: the empty cell(s) {cells_text} leave {len(part)} of the effect's {len(C)} df "
+                f"estimable, and only that part was tested ({shown}); the remaining {len(C) - len(part)} df "
+                f"{'needs' if len(C) - len(part) == 1 else 'need'} the empty cell(s) and could not be tested")
+        rows.append(_row(term, len(part), res.ss, fit, note, df_hypothesis=len(C), tested=part))
     return rows
 
 
@@ -186,6 +286,9 @@ def fit_anova(design: Design, fit: ModelFit, ss_type: str = "III") -> AnovaTable
             )
     if any(not r.testable for r in rows):
         notes.append("Some effects are not testable because cells are empty; see the row notes.")
+    if any(r.testable and r.df_hypothesis is not None for r in rows):
+        notes.append("Some effects are tested only in the part the observed cells can estimate, with fewer df; "
+                     "see the row notes.")
     return AnovaTable(
         ss_type=ss_type,
         rows=tuple(rows),

@@ -1114,9 +1114,12 @@ class _Builder:
             cols = (Column(runs_of("difference")), Column(runs_of("estimate"), "right"), Column(runs_of(N.symbol("SE")), "right"),
                     Column(runs_of(f"{N.format_confidence_level(1 - res.alpha)} simultaneous ", N.symbol("CI")), "right"),
                     Column(runs_of("adjusted ", N.symbol("p")), "right"))
+            notes = [runs_of("Follow-up comparisons are exploratory unless the plan lists them as planned hypotheses; "
+                             "their p values are adjusted within this family.")]
+            if key in POSTHOC_METHOD_NOTES:
+                notes.append(runs_of(POSTHOC_METHOD_NOTES[key]))
             out.append(Table(f"posthoc-{i}", runs_of(f"{names[key]}, on the {target}"), cols, tuple(rows),
-                             notes=(runs_of("Follow-up comparisons are exploratory unless the plan lists them as planned hypotheses; "
-                                           "their p values are adjusted within this family."),)))
+                             notes=tuple(notes)))
         return out
 
 
@@ -1244,6 +1247,17 @@ def _places(r) -> str:
 def _num_exact(x: float) -> str:
     """A half unit such as 0.005, written as it is (no rounding to two decimals)."""
     return format(x, ".15g").replace("-", N.MINUS)
+
+
+POSTHOC_METHOD_NOTES = {
+    "versus-control": "Adjusted p values and the critical value come from Dunnett's (1955) distribution, "
+                      "computed by deterministic numerical integration (adaptive Gauss–Kronrod quadrature over "
+                      "the normal and chi variables), accurate to better than 1e-8.",
+    "all-pairs": "Adjusted p values and the critical value come from the studentized range distribution, computed "
+                 "by deterministic numerical integration (adaptive Gauss–Kronrod quadrature), accurate to better "
+                 "than 1e-8.",
+}
+POSTHOC_METHOD_NOTES["games-howell"] = POSTHOC_METHOD_NOTES["all-pairs"]
 
 
 def build_document(prep, analysis, provenance) -> Document:

@@ -219,6 +219,9 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
                "F": _num(r.F), "p": _num(r.p)}
         if r.note:
             row["note"] = r.note
+        if r.df_hypothesis is not None:
+            row["df_hypothesis"] = r.df_hypothesis
+            row["tested_contrast"] = [[_frac(w) for w in t] for t in r.tested]
         extra = analysis.inference.rows[len(rows)] if analysis.inference else None
         if extra is not None and extra.effect_sizes is not None:
             es = extra.effect_sizes
