@@ -12,7 +12,7 @@ from scipy import optimize, special, stats
 import reporter
 from reporter.errors import FitError
 from reporter.fitting.effectsizes import standardized_contrast
-from conftest import ONEWAY_DATA
+from conftest import ONEWAY_DATA, ONEWAY_PLAN
 
 
 def _j_exact(df):
@@ -48,15 +48,8 @@ def test_weights_that_do_not_sum_to_zero_have_no_standardized_contrast():
         standardized_contrast([2.0, -1.0], 0.0, 3.0, [5, 6], 1.0, 9)
 
 
-PLAN = """
-title = "Contrast weights"
-[data]
-path = "heights.csv"
-outcome = "height_mm"
-[[factors]]
-name = "medium"
-levels = ["peat", "coir", "bark", "soil"]
-[analysis]
+# The small one-way project of conftest, with its own hypotheses.
+PLAN = ONEWAY_PLAN.split("[[hypotheses]]")[0] + """[analysis]
 permutations = 0
 [[hypotheses]]
 name = "twice coir against bark"
