@@ -119,7 +119,7 @@ RULES = [
      r"|robust/.*|sensitivity/.*)", "free"),
     (r"/hypotheses/\*/(df/\*|statistic|p|p_adjusted|ci_level|ci_sides|confirmatory/p|contrast/.*"
      r"|effect_sizes?/.*|permutation/.*|robust/(df/\*|p|statistic))", "free"),
-    (r"/assumptions/(brown_forsythe|levene|shapiro_wilk|qq)/.*|/assumptions/outliers/(threshold|rows/\*/"
+    (r"/assumptions/(brown_forsythe|levene|shapiro_wilk|qq)/.*|/assumptions/outliers/(threshold|total|listed|rows/\*/"
      r"(row|studentized))", "free"),
     (r"/outlier_sensitivity/.*|/robust/.*", "free"),
     (r"/posthoc/\*/(alpha|comparisons/\*/(df|p_adjusted|statistic))", "free"),
