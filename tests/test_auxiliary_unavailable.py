@@ -87,7 +87,7 @@ def test_the_analysis_runs_and_says_what_is_not_available(project, case):
 def test_one_residual_df_drops_the_outlier_scan_and_the_standardized_contrast(project):
     plan = _write(project, "two cells, one residual df")
     doc = json.loads(reporter.report(plan).render("json"))
-    assert any("Outlier check and Q–Q plot not possible" in n for n in doc["assumptions"]["notes"])
+    assert any("Residual checks not possible" in n for n in doc["assumptions"]["notes"])
     h = next(h for h in doc["hypotheses"] if h["name"] == "high above low")
     assert h["effect_size"] is None and "more than 1 residual degree of freedom" in h["effect_size_note"]
 
