@@ -54,7 +54,7 @@ from typing import Sequence
 import numpy as np
 
 from reporter.fitting.distributions import f_sf, t_cdf, t_sf
-from reporter.fitting.linear import _constant_part
+from reporter.fitting.linear import constant_part
 from reporter.intake.cells import CellStats
 from reporter.model.design import Design, build_design
 from reporter.model.hypotheses import effect_weights
@@ -138,7 +138,7 @@ def bound_rounding(
     hyps = []
     for c, t in zip(contrasts, tests):
         C = c.C[:, o]
-        const = _constant_part(c.weights, c.rhs, cells.pivot_exact)
+        const = constant_part(c.weights, c.rhs, cells.pivot_exact)
         if t.test == "t":
             hyps.append(_t_bounds(c.name, C[0], float(const[0]), n, mu, u, dfe, sse, c.alternative, t))
         else:
