@@ -517,7 +517,7 @@ def _exact_from_text(arr, plan, keep, status, source: str = "data", line_of=None
     return y, status, float(pivot), str(pivot), True
 
 
-def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of) -> None:
+def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of, n_values: int | None = None) -> None:
     """Refuse offsets from the pivot that float64 cannot hold, and a spread of the outcome so wide
     or so narrow that the fit's sums would overflow or underflow float64.
 
@@ -540,12 +540,13 @@ def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of) -
         )
     lo, hi = int(idx[int(np.argmin(vals))]), int(idx[int(np.argmax(vals))])
     spread = float(y[hi]) - float(y[lo])
-    upper = (sys.float_info.max / (64.0 * float(idx.size) ** 2)) ** 0.25
+    count = idx.size if n_values is None else n_values  # the out-of-core reader passes min and max only
+    upper = (sys.float_info.max / (64.0 * float(count) ** 2)) ** 0.25
     shown = (f"the outcome '{outcome}' ranges from {float(y[lo]) + pivot!r} ({line_of(lo)}) to "
              f"{float(y[hi]) + pivot!r} ({line_of(hi)})")
     if not (spread <= upper):
         raise DataError(
-            f"{source}: {shown}; with {idx.size} values a spread over {upper:.3g} makes the fit's sums "
+            f"{source}: {shown}; with {count} values a spread over {upper:.3g} makes the fit's sums "
             "of squares overflow float64 (about 1.8e308). Rescale the outcome (for example use larger units)."
         )
     if 0 < spread < _MIN_SPREAD:

@@ -72,6 +72,8 @@ from typing import Any, Sequence
 import numpy as np
 
 from reporter.errors import DataError
+from reporter.intake import defaults as D
+from reporter.intake import numtext
 from reporter.intake.cells import CellStats
 from reporter.intake.rows import CellPoints, FlaggedRows, RankSums
 
@@ -80,7 +82,7 @@ MAX_THREADS = 4
 _LEVEL_CAP = 100_000  # distinct factor-value combinations fetched into Python
 # What str.strip() removes: every character whose str.isspace() is true (a test checks the list).
 _WS = "\t\n\x0b\x0c\r\x1c\x1d\x1e\x1f \x85\xa0\u1680\u2000\u2001\u2002\u2003\u2004\u2005\u2006\u2007\u2008\u2009\u200a\u2028\u2029\u202f\u205f\u3000"
-_NA_WORDS = ("na", "nan", "null", "none")
+_NA_WORDS = ("nan", "+nan", "-nan")  # missing whatever the plan lists, as in the in-memory reader
 
 
 def is_glob(path: Path | str) -> bool:
@@ -309,19 +311,17 @@ class _RowNumbers:
 # ---------------------------------------------------------------------------------------------
 # The outcome and the factors as SQL
 
-_PLAIN = re.compile(r"[+-]?([0-9]+\.?[0-9]*|\.[0-9]+)([eE][+-]?[0-9]+)?")
-
-
 def _clean_number(raw: Any, plan) -> str | None:
     """The text of a valid outcome (trimmed, decimal comma and U+2212 minus replaced), else None:
-    the rule that the SQL of :func:`_status_sql` applies to every row."""
+    the rule of the in-memory reader (:mod:`reporter.intake.numtext`) that the SQL of
+    :func:`_status_sql` applies to every row."""
     t = "" if raw is None else str(raw).strip()
     if t in plan.data.missing or t.lower() in _NA_WORDS:
         return None
     if plan.data.decimal == ",":
         t = t.replace(",", ".")
     t = t.replace("\u2212", "-")
-    if _PLAIN.fullmatch(t) and math.isfinite(float(t)):
+    if numtext.is_plain(t) and len(t) <= D.MAX_NUMBER_CHARS and numtext.range_problem(decimal.Decimal(t)) is None:
         return t
     return None
 
@@ -331,23 +331,35 @@ def _status_sql(y: str, plan) -> tuple[str, str, str, str]:
 
     Each is computed as a column of its own query layer (``fast``, then ``t``, then ``st`` and
     ``yv``), so that DuckDB cannot hoist the costly string work out of its CASE and run it for
-    every row. ``fast`` is a cheap test that most valid values pass (DuckDB's DOUBLE cast
-    accepts surrounding ASCII blanks, so no string is built). Only the other rows are trimmed of
-    every Unicode space (``t``, as ``str.strip``) and tested again. ``status`` is 0 valid,
-    1 missing, 2 non-numeric. The test equals the regular expression ``_PLAIN`` plus the float64
-    range (checked in the tests); it is cheaper than a regex."""
+    every row. ``fast`` is a cheap test that most valid values pass: no exponent, at most
+    ``MAX_NUMBER_CHARS`` characters and a finite DOUBLE cast (which accepts surrounding ASCII
+    blanks, so no string is built; without an exponent and within 100 characters the value is
+    inside float64's normal range). The other rows are trimmed of every Unicode space (``t``, as
+    ``str.strip``) and tested by the regular expression of :mod:`reporter.intake.numtext` and the
+    float64 range. ``status`` is 0 valid, 1 missing, 2 anything else (non-numeric, or a number
+    the in-memory reader refuses: see :func:`load_out_of_core`). The tests check the SQL against
+    :func:`_clean_number` on random texts."""
     fast_text = f"replace({y}, ',', '.')" if plan.data.decimal == "," else y
     numeric_tokens = [m for m in plan.data.missing if _clean_number(m, _NoMissing(plan)) is not None]
-    fast = _valid_number(fast_text)
+    d = f"TRY_CAST({fast_text} AS DOUBLE)"
+    fast = (
+        f"(strlen({y}) <= {D.MAX_NUMBER_CHARS} AND NOT contains({y}, 'e') AND NOT contains({y}, 'E') "
+        f"AND NOT contains({y}, '_') AND NOT contains({y}, '+-') AND NOT contains({y}, '-+') AND isfinite({d}))"
+    )
     if numeric_tokens:
         fast = f"({fast} AND trim({y}) NOT IN ({', '.join(map(_lit, numeric_tokens))}))"
     trimmed = f"(CASE WHEN fast THEN NULL ELSE trim(coalesce({y}, ''), {_lit(_WS)}) END)"
     clean = "replace(t, ',', '.')" if plan.data.decimal == "," else "t"
     clean = f"replace({clean}, '\u2212', '-')"
+    x = f"TRY_CAST({clean} AS DOUBLE)"
+    valid = (
+        f"(regexp_full_match({clean}, {_lit(numtext.PLAIN_NUMBER.pattern)}) AND strlen({clean}) <= {D.MAX_NUMBER_CHARS} "
+        f"AND isfinite({x}) AND (abs({x}) >= {sys.float_info.min!r} OR NOT regexp_matches(split_part(lower({clean}), 'e', 1), '[1-9]')))"
+    )
     missing = ", ".join(_lit(m) for m in plan.data.missing) or "NULL"
     status = (
         f"(CASE WHEN fast THEN 0 WHEN t IN ({missing}) OR lower(t) IN ({', '.join(map(_lit, _NA_WORDS))}) "
-        f"THEN 1 WHEN {_valid_number(clean)} THEN 0 ELSE 2 END)"
+        f"THEN 1 WHEN {valid} THEN 0 ELSE 2 END)"
     )
     value = f"(CASE WHEN fast THEN {fast_text} ELSE {clean} END)"
     return fast, trimmed, status, value
@@ -358,13 +370,6 @@ class _NoMissing:
 
     def __init__(self, plan):
         self.data = type("D", (), {"missing": (), "decimal": plan.data.decimal})()
-
-
-def _valid_number(t: str) -> str:
-    """A plain decimal number in float64 range (the regular expression ``_PLAIN``), written with
-    DuckDB's DOUBLE cast, which also accepts ``1_000`` and ``+-1``: those are refused here."""
-    d = f"TRY_CAST({t} AS DOUBLE)"
-    return f"({d} IS NOT NULL AND isfinite({d}) AND NOT contains({t}, '_') AND NOT contains({t}, '+-') AND NOT contains({t}, '-+'))"
 
 
 def _factor_text_sql(col: str, type_name: str | None) -> str:
@@ -496,6 +501,15 @@ def load_out_of_core(plan, quiet: bool | None = None):
                 raise DataError(f"{source}: is not a readable Parquet file ({_short_error(exc)}).") from None
             columns = [r[0] for r in rel]
             types = {r[0]: r[1] for r in rel}
+            for name in dict.fromkeys([plan.data.outcome] + [f.data_column for f in plan.factors]):
+                kind = str(types.get(name, "")).upper()
+                if kind.endswith("]") or kind.startswith(("STRUCT", "MAP", "UNION", "BLOB")) or kind.strip('"') == "NULL":
+                    role = "outcome" if name == plan.data.outcome else "factor"
+                    need = "a number" if role == "outcome" else "a text or a number"
+                    raise DataError(
+                        f"{source}: column '{name}' (the {role} named in the plan) has the Parquet type "
+                        f"{types[name]}; the {role} needs {need} in every row. Write that column as plain values."
+                    )
             col_of = {c: _ident(c) for c in columns}
             scan = f"read_parquet({file_list})"
         _needed_columns(plan, columns, source)
@@ -630,6 +644,17 @@ def load_out_of_core(plan, quiet: bool | None = None):
                 "WHERE obs.rowid + 1 = m.r"
             )
 
+        # Outcomes that read as numbers but break the plain-decimal rule or float64's range are
+        # errors in analysed rows, as in the in-memory reader, whose check runs on each such text
+        # (in the order of their first rows, so the first offending row is named).
+        factor_kept = " AND ".join(f"c{j} >= 0" for j in range(nf))
+        odd = con.execute(
+            f"SELECT e.bad, min(e.r) AS first FROM extra e JOIN (SELECT rowid + 1 AS r FROM obs WHERE st = 2 AND "
+            f"{factor_kept}) k USING (r) GROUP BY e.bad ORDER BY first"
+        ).fetchall() if n_odd else []
+        for value, first in odd:
+            _refuse(plan, value, ytext, source, f"{rownum.word} {rownum.number(first)}")
+
         shape = tuple(len(f.levels) for f in plan.factors)
         strides = [int(np.prod(shape[j + 1 :])) for j in range(nf)]
         cell_sql = " + ".join(f"CAST(c{j} AS INTEGER) * {strides[j]}" for j in range(nf))
@@ -678,6 +703,7 @@ def load_out_of_core(plan, quiet: bool | None = None):
         k = int(np.prod(shape))
         pivot_exact = Fraction(pivot_text) if exact else Fraction(pivot)
         cells = cell_stats(con, k, pivot, pivot_exact)
+        _check_spread(con, plan, pivot, source, rownum)
         rows = DuckRows(con, folder, k, rownum, files)
     except BaseException:
         _close(con, folder)
@@ -750,6 +776,32 @@ def _offset_sql(pv: decimal.Decimal, head: Sequence[str]) -> tuple[str, bool]:
         )
         routes.insert(0, f"(CASE WHEN {fits} THEN CAST(TRY_CAST(yv AS {d18}) - CAST({_lit(pivot_text)} AS {d18}) AS DOUBLE) END)")
     return f"coalesce({', '.join(routes)})", True
+
+
+def _refuse(plan, value: str, text: bool, source: str, where: str) -> None:
+    """Raise the in-memory reader's error for one outcome value of an analysed row, if it has one
+    (a non-numeric text that is no number at all is only left out)."""
+    from reporter.intake.data import _exact_from_text, _read_outcome
+
+    keep = np.ones(1, dtype=bool)
+    if text:
+        _exact_from_text(np.array([value], dtype=object), plan, keep, np.zeros(1, dtype=np.int8), source, lambda i: where)
+    else:
+        _read_outcome(np.array([float(value)]), plan, keep, source, lambda i: where)
+
+
+def _check_spread(con, plan, pivot: float, source: str, rownum: "_RowNumbers") -> None:
+    """The in-memory reader's check that the outcome's spread keeps the sums within float64,
+    on the smallest and largest analysed values."""
+    from reporter.intake.data import _check_spread as check
+
+    lo, hi, n = con.execute("SELECT min(d), max(d), count(*) FROM kept").fetchall()[0]
+    if not n:
+        return
+    lo_r, hi_r = (con.execute(f"SELECT min(r) FROM kept WHERE d = CAST('{v!r}' AS DOUBLE)").fetchall()[0][0] for v in (lo, hi))
+    rows = (lo_r, hi_r)
+    check(np.array([lo, hi]), np.ones(2, dtype=bool), 0, pivot, plan, source,
+          lambda i: f"{rownum.word} {rownum.number(rows[i])}", n_values=int(n))
 
 
 def _glob_digest(files: Sequence[Path], digests) -> str:
