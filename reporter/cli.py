@@ -218,6 +218,8 @@ def _cmd_run(args) -> int:
         from reporter.api import prepare
         from reporter.run import write_outputs
 
+        if args.quiet:  # also silences the out-of-core reader's progress bar (duckdb_source)
+            os.environ["ANOVA_REPORT_QUIET"] = "1"
         prep = prepare(args.plan)
         written = write_outputs(prep, args.out, formats, quiet=args.quiet)
     except KeyboardInterrupt as exc:
