@@ -30,7 +30,7 @@ Cost. Each permutation costs a shuffle of the N rows, so a run costs O(m N). Two
   ``benchmarks/bench_permutation_threshold.py`` for the measurement behind the value): there
   the F reference distribution is accurate and the run would take minutes.
 
-Before a run estimated (from its first block) to exceed ``TIME_BUDGET`` seconds a line is
+Before a run estimated (from its first 50 ms or 1% of permutations) to exceed ``TIME_BUDGET`` seconds a line is
 passed to ``notify``; a progress bar (tqdm) is drawn on stderr for runs expected to take more
 than a second when ``progress`` is set and stderr is a terminal.
 """
@@ -210,7 +210,7 @@ def _null_distribution(
     template = np.tile(resid, (block, 1))
     buffer = np.empty_like(template)
     done = extreme = 0
-    stopped = False
+    stopped = announced = False
     bar = None
     started = time.perf_counter()
     try:
@@ -232,10 +232,15 @@ def _null_distribution(
                 break
             extreme += int(hits.sum())
             done += size
-            if done == size and done < n_permutations:
-                estimate = (time.perf_counter() - started) / size * n_permutations
-                bar = _announce(estimate, n_permutations, big_n, label, progress, notify)
-            if bar is not None:
+            if not announced and done < n_permutations:
+                # estimate the whole run once the first 50 ms (or 1% of the permutations) are done
+                elapsed = time.perf_counter() - started
+                if elapsed >= 0.05 or done * 100 >= n_permutations:
+                    announced = True
+                    bar = _announce(elapsed / done * n_permutations, n_permutations, big_n, label, progress, notify)
+                    if bar is not None:
+                        bar.update(done)
+            elif bar is not None:
                 bar.update(size)
     finally:
         if bar is not None:
