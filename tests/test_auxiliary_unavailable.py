@@ -13,10 +13,13 @@ import json
 import subprocess
 import sys
 
+import jsonschema
+import numpy as np
 import pytest
 from scipy import stats
 
 import reporter
+from reporter.render.results_json import load_schema
 
 PLAN = """
 title = "Auxiliary results at the edges"
@@ -70,6 +73,7 @@ def test_the_analysis_runs_and_says_what_is_not_available(project, case):
     plan = _write(project, case)
     report = reporter.report(plan)
     doc = json.loads(report.render("json"))
+    jsonschema.validate(doc, load_schema())
     ref = stats.f_oneway(*[CASES[case][k] for k in CASES[case]])
     assert doc["anova"]["rows"][0]["F"] == pytest.approx(ref.statistic, rel=1e-10)
     missing = {x["result"]: x["reason"] for x in doc["not_available"]}
@@ -102,3 +106,49 @@ def test_a_confirmatory_robust_test_that_cannot_be_computed_is_an_error(project,
     assert run.returncode == 2
     assert "always-robust" in run.stderr and "Traceback" not in run.stderr
     assert not (plan.parent / "out").exists()
+
+
+def test_follow_up_families_with_an_empty_cell_say_why(project):
+    """An empty control cell, and marginal means that need an empty cell, make those families not
+    available; the families that can run compare the observed cells (Tukey p from
+    scipy.stats.studentized_range as reference)."""
+    one_way = PLAN.format(levels='["low", "mid", "high"]', policy="classical").split("[[hypotheses]]")[0]
+    plan = project(one_way + '[[hypotheses]]\nname = "high above mid"\nmeans = "high > mid"\n',
+                   {"d.csv": "y,dose\n1.1,mid\n2.3,mid\n1.7,high\n2.9,high\n3.3,high\n"})
+    doc = json.loads(reporter.report(plan).render("json"))
+    missing = {x["result"]: x["reason"] for x in doc["not_available"]}
+    assert "the control cell dose=low is empty" in missing["Dunnett comparisons with the control on the cells"]
+    pairs = next(f for f in doc["posthoc"] if f["family"] == "all-pairs")
+    (comp,) = pairs["comparisons"]
+    assert (comp["first"], comp["second"]) == ("mid", "high")
+    mid, high = np.array([1.1, 2.3]), np.array([1.7, 2.9, 3.3])
+    mse = (((mid - mid.mean()) ** 2).sum() + ((high - high.mean()) ** 2).sum()) / 3
+    q = abs(mid.mean() - high.mean()) / (mse * (1 / 2 + 1 / 3)) ** 0.5 * 2**0.5
+    assert comp["p_adjusted"] == pytest.approx(stats.studentized_range.sf(q, 2, 3), abs=1e-8)
+
+
+def test_marginal_means_that_need_an_empty_cell_are_not_compared(project):
+    plan = project("""
+        title = "Two factors, one cell empty"
+        [data]
+        path = "d.csv"
+        outcome = "y"
+        [[factors]]
+        name = "A"
+        levels = ["a1", "a2"]
+        [[factors]]
+        name = "B"
+        levels = ["b1", "b2", "b3"]
+        [analysis]
+        posthoc = ["all-pairs"]
+        posthoc_on = "A"
+        permutations = 0
+        """, {"d.csv": "y,A,B\n" + "".join(f"{v},{a},{b}\n" for v, (a, b) in zip(
+            [1.0, 1.4, 2.2, 2.0, 3.1, 2.7, 1.9, 2.5, 3.3, 2.9],
+            [("a1", "b1"), ("a1", "b1"), ("a1", "b2"), ("a1", "b2"), ("a1", "b3"), ("a1", "b3"),
+             ("a2", "b1"), ("a2", "b1"), ("a2", "b2"), ("a2", "b2")]))})
+    doc = json.loads(reporter.report(plan).render("json"))
+    missing = {x["result"]: x["reason"] for x in doc["not_available"]}
+    assert "the marginal mean of A=a2 needs cell A=a2, B=b3, which is empty" in missing[
+        "Tukey–Kramer pairs on the levels of A"]
+    assert doc["posthoc"] == []

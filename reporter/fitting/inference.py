@@ -391,6 +391,11 @@ def _posthoc_family(fam, design, cells, fit, alpha, on, control, names):
     if fam == "all-pairs":
         res = P.tukey_kramer(est, n, fit.mse, fit.df_error, weights=weights, alpha=alpha)
     elif fam == "versus-control":
+        if on == "cells":
+            empty = [c for c in design.cells if not o[c.index]]
+            gone = [c for c in empty if level_key(c.short) == level_key(control)]
+            if gone:
+                raise FitError(f"the control cell {names[gone[0].index]} is empty, so nothing can be compared with it")
         ctrl = _control_index(labels, control, design, on)
         res = P.dunnett(est, n, fit.mse, fit.df_error, control=ctrl, weights=weights, alpha=alpha)
     else:

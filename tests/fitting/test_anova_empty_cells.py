@@ -10,6 +10,7 @@ from __future__ import annotations
 import json
 from fractions import Fraction
 
+import jsonschema
 import numpy as np
 import pandas as pd
 import pytest
@@ -18,6 +19,7 @@ import statsmodels.api as sm
 import reporter
 from conftest import DATA_DIR
 from reporter.fitting.anova import estimable_part
+from reporter.render.results_json import load_schema
 
 PLAN = """
 title = "ToothGrowth without one cell"
@@ -79,6 +81,7 @@ def test_partial_rows_match_statsmodels_f_test_of_the_estimable_contrast(project
     plan, frame = _project(project, doses, ("VC", "d2"))
     report = reporter.report(plan)
     doc = json.loads(report.render("json"))
+    jsonschema.validate(doc, load_schema())
     cells = [(s, d) for s in ("OJ", "VC") for d in doses]
     observed = [c for c in cells if c != ("VC", "d2")]
     X = np.column_stack([((frame["supp"] == s) & (frame["dose"] == d)).to_numpy(float) for s, d in observed])
