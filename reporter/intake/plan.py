@@ -446,6 +446,9 @@ def _read_data(doc, ck: _Checker, base_dir: Path) -> DataSpec:
         ck.length(m, D.MAX_NAME_CHARS, f"data.missing[{j}]", key="missing", **loc)
     layout = ck.choice(t, "layout", "data.layout", D.LAYOUTS, D.DATA_DEFAULTS["layout"], **loc)
     reader = ck.choice(t, "reader", "data.reader", D.READERS, D.DATA_DEFAULTS["reader"], **loc)
+    if layout == "cell-summaries" and reader == "out-of-core":
+        raise ck.fail("data.reader", 'is "out-of-core", but a table of cell summaries (one row per cell) is small and '
+                      "always read in memory; remove the key.", key="reader", **loc)
     return DataSpec(
         path=path,
         outcome=outcome,

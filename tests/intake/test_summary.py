@@ -194,8 +194,9 @@ def test_missing_cells_are_listed_with_a_count(project):
      ('spread_decimals = 2.5', "'data.spread_decimals' must be a whole number"),
      ('mean_column = "n"', "'data.mean_column' names the column \"n\", which data.n_column names too"),
      ('n_column = "medium"', "'factors[1].name' reads the column \"medium\", which [data] names as the n"),
-     ('spred = "sd"', "'data.spred' is not a known key. Did you mean 'spread'?")],
-    ids=["layout", "spread", "decimals-negative", "decimals-float", "same-column", "factor-column", "typo"],
+     ('spred = "sd"', "'data.spred' is not a known key. Did you mean 'spread'?"),
+     ('reader = "out-of-core"', "'data.reader' is \"out-of-core\", but a table of cell summaries")],
+    ids=["layout", "spread", "decimals-negative", "decimals-float", "same-column", "factor-column", "typo", "reader"],
 )
 def test_plan_keys_are_checked(project, extra, fragment):
     """The summary keys of [data] are validated with the key path, the value and the fix."""
