@@ -153,69 +153,71 @@ def _row(term, df, ss, fit, note=None, **extra) -> AnovaRow:
     return AnovaRow(_source(term), term, df, ss, ms, F, float(f_sf(F, df, fit.df_error)), note, **extra)
 
 
-def _rref(rows: list[list[Fraction]]) -> tuple[list[list[Fraction]], list[int]]:
-    """Reduced row echelon form, exactly, and the pivot columns (Gauss–Jordan elimination)."""
-    m = [list(r) for r in rows]
-    pivots: list[int] = []
+def _rref(m: np.ndarray, tol: float) -> np.ndarray:
+    """Reduced row echelon form of a float matrix (Gauss–Jordan with partial pivoting)."""
+    m = m.copy()
     rank = 0
-    for c in range(len(m[0]) if m else 0):
-        p = next((r for r in range(rank, len(m)) if m[r][c] != 0), None)
-        if p is None:
+    for c in range(m.shape[1]):
+        if rank == m.shape[0]:
+            break
+        p = rank + int(np.argmax(np.abs(m[rank:, c])))
+        if abs(m[p, c]) <= tol:
             continue
-        m[rank], m[p] = m[p], m[rank]
-        lead = m[rank][c]
-        m[rank] = [x / lead for x in m[rank]]
-        for r in range(len(m)):
-            if r != rank and m[r][c] != 0:
-                f = m[r][c]
-                m[r] = [a - f * b for a, b in zip(m[r], m[rank])]
-        pivots.append(c)
+        m[[rank, p]] = m[[p, rank]]
+        m[rank] /= m[rank, c]
+        others = np.arange(m.shape[0]) != rank
+        m[others] -= np.outer(m[others, c], m[rank])
+        m[others, c] = 0.0
         rank += 1
-    return m[:rank], pivots
+    return m[:rank]
 
 
-def _primitive(row: list[Fraction]) -> tuple[Fraction, ...]:
-    """The row scaled to coprime integers with a positive first non-zero entry (same hypothesis)."""
-    lcm = 1
-    for x in row:
-        lcm = lcm * x.denominator // math.gcd(lcm, x.denominator)
-    ints = [int(x * lcm) for x in row]
-    g = 0
-    for v in ints:
-        g = math.gcd(g, v)
-    first = next(v for v in ints if v != 0)
-    g = g if first > 0 else -g
-    return tuple(Fraction(v, g) for v in ints)
+def _rational(row: np.ndarray) -> tuple[Fraction, ...]:
+    """The row as exact fractions: recovered rationals (denominators up to 10^6) when they match the
+    floats to 1e-12, scaled to coprime integers with a positive leading entry; otherwise the floats
+    with one entry corrected so that the exact sum is 0 (effect contrasts sum to zero)."""
+    snapped = [Fraction(float(x)).limit_denominator(10**6) for x in row]
+    if all(abs(float(f) - x) <= 1e-12 * max(1.0, float(np.max(np.abs(row)))) for f, x in zip(snapped, row)):
+        lcm = 1
+        for f in snapped:
+            lcm = lcm * f.denominator // math.gcd(lcm, f.denominator)
+        ints = [int(f * lcm) for f in snapped]
+        g = 0
+        for v in ints:
+            g = math.gcd(g, v)
+        g = g if next(v for v in ints if v != 0) > 0 else -g
+        return tuple(Fraction(v, g) for v in ints)
+    exact = [Fraction(float(x)) for x in row]
+    j = int(np.argmax(np.abs(row)))
+    exact[j] -= sum(exact, Fraction(0))
+    return tuple(exact)
 
 
 def estimable_part(C, empty) -> tuple[tuple[Fraction, ...], ...]:
-    """The rows of C's row space that put no weight on the ``empty`` cells, as a basis.
+    """A basis of the rows of C's row space that put no weight on the ``empty`` cells.
 
     A contrast a'C is estimable from the observed cells exactly when (a'C)_e = 0 for every empty
-    cell e, i.e. a lies in the null space of C_E' (C_E: the columns of the empty cells). The
-    basis of {a'C} returned has rank = the degrees of freedom of the testable part. (In the
-    cell-means model a linear function of the cell means is estimable exactly when it gives no
-    weight to an empty cell; Searle 1987, *Linear Models for Unbalanced Data*, on data with some
-    cells empty.) Rows are in reduced echelon form scaled to coprime integers, computed exactly.
+    cell e, i.e. a lies in the left null space of C_E (C_E: the columns of the empty cells). The
+    number of rows returned is the rank of that part, the degrees of freedom of the testable part.
+    (In the cell-means model a linear function of the cell means is estimable exactly when it
+    gives no weight to an empty cell; Searle 1987, *Linear Models for Unbalanced Data*, on data
+    with some cells empty.) The null space comes from an SVD; the rows are put in reduced echelon
+    form and recovered as exact rationals (coprime integers), so the hypothesis stated and tested
+    is exact and its weights sum to zero exactly.
     """
-    C = [[Fraction(x) for x in row] for row in C]
-    q = len(C)
     if not empty:
-        return tuple(tuple(r) for r in C)
-    M = [[C[r][e] for r in range(q)] for e in empty]  # |E| x q: a must satisfy M a = 0
-    red, piv = _rref(M)
-    free = [j for j in range(q) if j not in piv]
-    basis = []
-    for f in free:
-        a = [Fraction(0)] * q
-        a[f] = Fraction(1)
-        for row, pc in zip(red, piv):
-            a[pc] = -row[f]
-        basis.append([sum((a[r] * C[r][c] for r in range(q)), Fraction(0)) for c in range(len(C[0]))])
-    if not basis:
+        return tuple(tuple(Fraction(x) for x in row) for row in C)
+    Cf = np.array([[float(x) for x in row] for row in C])
+    scale = float(np.max(np.abs(Cf)))
+    tol = 1e-10 * scale * max(Cf.shape)
+    u, sv, _ = np.linalg.svd(Cf[:, list(empty)], full_matrices=True)
+    A = u[:, int(np.sum(sv > tol)):]
+    if A.shape[1] == 0:
         return ()
-    rows, _ = _rref(basis)
-    return tuple(_primitive(r) for r in rows)
+    part = _rref(A.T @ Cf, tol)
+    part[np.abs(part) <= tol] = 0.0
+    part[:, list(empty)] = 0.0
+    return tuple(_rational(r) for r in part)
 
 
 def _describe_row(row, design: Design) -> str:
