@@ -949,35 +949,69 @@ class DuckRows:
             rank_sum[c] = float(Fraction(int(twice), 2))
         return RankSums(rank_sum=rank_sum, tie_term=float(int(tie or 0)), n=self.n)
 
+    def _order_stats(self, counts: dict[int, int], source: str, positions: dict[int, list[int]]) -> dict[tuple[int, int], float]:
+        """Order statistics (0-based positions within each cell) of ``v`` in ``source``, by one
+        sort over (cell, v) (a window ``row_number`` without partitions, which DuckDB runs in
+        parallel and spills to disk beyond its memory limit)."""
+        start, at = {}, 0
+        for c in sorted(counts):
+            start[c], at = at, at + counts[c]
+        wanted = {start[c] + int(q): (c, int(q)) for c, qs in positions.items() for q in qs}
+        if not wanted:
+            return {}
+        listed = "[" + ", ".join(map(str, sorted(wanted))) + "]::BIGINT[]"
+        got = self._q(
+            f"SELECT rn, v FROM (SELECT v, row_number() OVER (ORDER BY cell, v) - 1 AS rn FROM ({source})) "
+            f"WHERE rn IN (SELECT unnest({listed}))"
+        )
+        return {wanted[int(r)]: float(v) for r, v in got}
+
+    def _quantiles(self, counts: dict[int, int], source: str, probs: Sequence[float]) -> dict[int, np.ndarray]:
+        """Type 7 quantiles per cell (numpy's default: h = (n − 1)p, linear interpolation written
+        as numpy writes it), from the order statistics of one sort."""
+        p = np.asarray(probs, dtype=np.float64)
+        plan = {}
+        for c, n in counts.items():
+            h = (n - 1) * p
+            lo = np.floor(h).astype(np.int64)
+            hi = np.minimum(lo + 1, n - 1)
+            plan[c] = (lo, hi, h - lo)
+        stats = self._order_stats(counts, source, {c: [*lo.tolist(), *hi.tolist()] for c, (lo, hi, _) in plan.items()})
+        out = {}
+        for c, (lo, hi, t) in plan.items():
+            a = np.array([stats[(c, int(i))] for i in lo])
+            b = np.array([stats[(c, int(i))] for i in hi])
+            diff = b - a
+            out[c] = np.where(t >= 0.5, b - diff * (1 - t), a + diff * t)
+        return out
+
     def residual_quantiles(self, means: np.ndarray, scale: np.ndarray, probs: Sequence[float]) -> np.ndarray:
         probs = [float(p) for p in probs]
         if not probs:
             return np.empty(0)
         m, s = _doubles(means), _doubles(scale)
-        rows = self._q(
-            f"SELECT quantile_cont(z, {_doubles(probs)}) FROM (SELECT (d - {m}[cell + 1]) / {s}[cell + 1] AS z, "
-            f"{s}[cell + 1] AS s FROM kept) WHERE isfinite(s) AND s > 0"
-        )
-        got = rows[0][0] if rows else None
-        return np.asarray(got if got is not None else [np.nan] * len(probs), dtype=np.float64)
+        source = (f"SELECT 0 AS cell, (d - {m}[cell + 1]) / {s}[cell + 1] AS v FROM kept "
+                  f"WHERE isfinite({s}[cell + 1]) AND {s}[cell + 1] > 0")
+        n = int(self._q(f"SELECT count(*) FROM ({source})")[0][0])
+        if n == 0:
+            return np.full(len(probs), np.nan)
+        return self._quantiles({0: n}, source, probs)[0]
 
     def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
         """Small cells: every value in increasing order; large cells: ``max_points`` quantiles."""
         counts = dict(self._q("SELECT cell, count(*) FROM kept GROUP BY cell"))
         small = [c for c, n in counts.items() if n <= max_points]
-        large = [c for c, n in counts.items() if n > max_points]
-        values: dict[int, list[float]] = {}
+        large = {c: n for c, n in counts.items() if n > max_points}
+        values: dict[int, Sequence[float]] = {}
         if small:
             for c, vals in self._q(
                 f"SELECT cell, list(d ORDER BY d) FROM kept WHERE cell IN ({', '.join(map(str, small))}) GROUP BY cell"
             ):
                 values[c] = vals
         if large:
-            probs = _doubles(np.linspace(0.0, 1.0, max_points))
-            for c, vals in self._q(
-                f"SELECT cell, quantile_cont(d, {probs}) FROM kept WHERE cell IN ({', '.join(map(str, large))}) GROUP BY cell"
-            ):
-                values[c] = vals
+            listed = ", ".join(map(str, large))
+            values.update(self._quantiles(large, f"SELECT cell, d AS v FROM kept WHERE cell IN ({listed})",
+                                          np.linspace(0.0, 1.0, max_points)))
         return tuple(
             CellPoints(n=int(counts.get(c, 0)), values=tuple(float(v) for v in values.get(c, ())), summarized=c in large)
             for c in range(self.k)
@@ -1002,7 +1036,7 @@ class DuckRows:
             got = self._q("SELECT d, cell FROM kept ORDER BY r")
         else:
             got = self._q(
-                f"SELECT d, cell FROM (SELECT d, cell, r, {_splitmix64('r', int(seed))} AS h FROM kept "
+                f"SELECT d, cell FROM (SELECT d, cell, r, h FROM ({_fmix32_sql('kept', int(seed))}) "
                 f"ORDER BY h, r LIMIT {int(size)}) ORDER BY r"
             )
         values = np.array([v for v, _ in got], dtype=np.float64)
@@ -1013,24 +1047,15 @@ class DuckRows:
         return None
 
 
-_M64 = "18446744073709551616"
+_M32 = 4294967296
 
 
-def _splitmix64(col: str, seed: int) -> str:
-    """SQL for the SplitMix64 output of (``col`` + seed · golden gamma) mod 2^64, computed in
-    HUGEINT so no step overflows (Steele, Lea & Flood 2014)."""
-    gamma = 0x9E3779B97F4A7C15
-    z = f"((CAST({col} AS HUGEINT) * {gamma} + {(seed * gamma) % (1 << 64)}) % {_M64})"
-
-    def mul(x: str, c: int) -> str:
-        # (x * c) mod 2^64 with x < 2^64 and c < 2^64: split c into 32-bit halves to stay in 128 bits.
-        hi, lo = c >> 32, c & 0xFFFFFFFF
-        h = f"CAST({x} AS HUGEINT)"
-        return f"((({h} * {lo}) % {_M64} + (({h} * {hi}) % 4294967296) * 4294967296) % {_M64})"
-
-    def xorshift(x: str, s: int) -> str:
-        return f"xor(CAST({x} AS UBIGINT), CAST({x} AS UBIGINT) >> {s})"
-
-    z = mul(xorshift(z, 30), 0xBF58476D1CE4E5B9)
-    z = mul(xorshift(z, 27), 0x94D049BB133111EB)
-    return xorshift(z, 31)
+def _fmix32_sql(table: str, seed: int) -> str:
+    """SQL adding to ``table`` a column ``h``: MurmurHash3's 32-bit finalizer (Appleby 2011,
+    public domain) of (r · 2654435761 + seed) mod 2^32. Both steps are bijections of 32-bit
+    numbers, so rows below 2^32 get distinct keys; every product stays below 2^64 (UBIGINT)."""
+    s = int(seed) % _M32
+    q = f"SELECT *, (CAST(r AS UBIGINT) % {_M32} * 2654435761 + {s}) % {_M32} AS h FROM {table}"
+    for shift, mult in ((16, 0x85EBCA6B), (13, 0xC2B2AE35)):
+        q = f"SELECT * REPLACE ((xor(h, h >> {shift}) * {mult}) % {_M32} AS h) FROM ({q})"
+    return f"SELECT * REPLACE (xor(h, h >> 16) AS h) FROM ({q})"

@@ -285,21 +285,25 @@ def test_quantiles_points_flagged_and_sample(rows_pair):
     assert rows.arrays() is None and rows.kind == "duckdb" and rows.n == y.size and rows.k == 6
 
 
-def test_splitmix64_matches_the_reference_algorithm():
-    """The SQL hash equals SplitMix64 written in Python (Steele, Lea & Flood 2014)."""
+def test_sample_hash_is_murmur3_fmix32():
+    """The SQL hash equals MurmurHash3's fmix32 (Appleby 2011) of (r · 2654435761 + seed) mod 2^32,
+    written here in Python; distinct rows get distinct keys."""
     import duckdb
 
-    mask = (1 << 64) - 1
+    m = (1 << 32) - 1
 
-    def splitmix(x: int, seed: int) -> int:
-        z = (x * 0x9E3779B97F4A7C15 + seed * 0x9E3779B97F4A7C15) & mask
-        z = ((z ^ (z >> 30)) * 0xBF58476D1CE4E5B9) & mask
-        z = ((z ^ (z >> 27)) * 0x94D049BB133111EB) & mask
-        return z ^ (z >> 31)
+    def fmix32(h: int) -> int:
+        h ^= h >> 16
+        h = (h * 0x85EBCA6B) & m
+        h ^= h >> 13
+        h = (h * 0xC2B2AE35) & m
+        return h ^ (h >> 16)
 
     con = duckdb.connect()
-    got = con.execute(f"SELECT r, {ds._splitmix64('r', 99)} FROM range(1, 200) t(r)").fetchall()
-    assert all(int(h) == splitmix(int(r), 99) for r, h in got)
+    con.execute("CREATE TABLE t AS SELECT range AS r FROM range(1, 5000)")
+    got = con.execute(f"SELECT r, h FROM ({ds._fmix32_sql('t', 2**40 + 99)}) ORDER BY r").fetchall()
+    assert all(int(h) == fmix32((int(r) * 2654435761 + (2**40 + 99)) & m) for r, h in got)
+    assert len({h for _, h in got}) == len(got)
 
 
 # ---------------------------------------------------------------------------------------------
