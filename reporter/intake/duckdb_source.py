@@ -925,6 +925,10 @@ class DuckRows:
         with self._lock:
             return self._con.execute(sql, list(params)).fetchall()
 
+    def _np(self, sql: str) -> dict[str, np.ndarray]:
+        with self._lock:
+            return self._con.execute(sql).fetchnumpy()
+
     def medians(self) -> np.ndarray:
         out = np.full(self.k, np.nan)
         for c, m in self._q("SELECT cell, quantile_cont(d, 0.5) FROM kept GROUP BY cell"):
@@ -950,21 +954,70 @@ class DuckRows:
         return RankSums(rank_sum=rank_sum, tie_term=float(int(tie or 0)), n=self.n)
 
     def _order_stats(self, counts: dict[int, int], source: str, positions: dict[int, list[int]]) -> dict[tuple[int, int], float]:
-        """Order statistics (0-based positions within each cell) of ``v`` in ``source``, by one
-        sort over (cell, v) (a window ``row_number`` without partitions, which DuckDB runs in
-        parallel and spills to disk beyond its memory limit)."""
-        start, at = {}, 0
-        for c in sorted(counts):
-            start[c], at = at, at + counts[c]
-        wanted = {start[c] + int(q): (c, int(q)) for c, qs in positions.items() for q in qs}
-        if not wanted:
-            return {}
-        listed = "[" + ", ".join(map(str, sorted(wanted))) + "]::BIGINT[]"
-        got = self._q(
-            f"SELECT rn, v FROM (SELECT v, row_number() OVER (ORDER BY cell, v) - 1 AS rn FROM ({source})) "
-            f"WHERE rn IN (SELECT unnest({listed}))"
-        )
-        return {wanted[int(r)]: float(v) for r, v in got}
+        """Order statistics (0-based ranks within each cell) of ``v`` in ``source``, exactly and
+        without a sort: a histogram of :data:`_BUCKETS` equal-width buckets per cell locates each
+        rank's bucket (bucket numbers are monotone in the value, so buckets hold consecutive ranks);
+        the values of those buckets are fetched and sorted when they number at most
+        :data:`_FETCH`, and a larger bucket is refined the same way. Each step is one linear scan
+        with memory bounded by the buckets, so it stays out-of-core (the selection algorithm of
+        Floyd & Rivest 1975, CACM 18(3), 165-172, by bucketing instead of sampling)."""
+        result: dict[tuple[int, int], float] = {}
+        wanted = {c: sorted({int(q) for q in qs}) for c, qs in positions.items() if qs}
+        self._refine(source, "true", wanted, result, 0)
+        return result
+
+    def _refine(self, source: str, where: str, wanted: dict[int, list[int]], result, depth: int) -> None:
+        cells = ", ".join(map(str, sorted(wanted)))
+        scope = f"FROM ({source}) WHERE {where} AND cell IN ({cells})"
+        lo = np.zeros(self.k)
+        scale = np.zeros(self.k)
+        live = {}
+        for c, a, b in self._q(f"SELECT cell, min(v), max(v) {scope} GROUP BY cell"):
+            if a == b:  # every value of the cell (in this bucket) is the same
+                result.update({(c, q): float(a) for q in wanted[c]})
+                continue
+            step = _BUCKETS / (b - a)
+            if not math.isfinite(step):
+                step = 0.0  # a range below float64's resolution for the division: one bucket
+            lo[c], scale[c], live[c] = a, step, wanted[c]
+        if not live:
+            return
+        bucket = f"least(CAST(floor((v - {_doubles(lo)}[cell + 1]) * {_doubles(scale)}[cell + 1]) AS BIGINT), {_BUCKETS - 1})"
+        cells = ", ".join(map(str, sorted(live)))
+        scope = f"FROM ({source}) WHERE {where} AND cell IN ({cells})"
+        sizes = {c: np.zeros(_BUCKETS, dtype=np.int64) for c in live}
+        hist = self._np(f"SELECT cell, {bucket} AS b, count(*) AS m {scope} GROUP BY ALL")
+        for c in live:
+            pick = hist["cell"] == c
+            sizes[c][hist["b"][pick].astype(np.int64)] = hist["m"][pick]
+        targets: dict[tuple[int, int], list[tuple[int, int]]] = {}
+        for c, ranks in live.items():
+            ends = np.cumsum(sizes[c])
+            for q in ranks:
+                b = int(np.searchsorted(ends, q, side="right"))
+                targets.setdefault((c, b), []).append((q, q - int(ends[b] - sizes[c][b])))
+        fetch, total = [], 0
+        for (c, b), items in sorted(targets.items(), key=lambda kv: sizes[kv[0][0]][kv[0][1]]):
+            m = int(sizes[c][b])
+            if total + m <= _FETCH or depth >= 6:
+                fetch.append((c, b))
+                total += m
+            else:
+                sub: dict[tuple[int, int], float] = {}
+                self._refine(source, f"{where} AND cell = {c} AND {bucket} = {b}", {c: [w for _, w in items]}, sub, depth + 1)
+                result.update({(c, q): sub[(c, w)] for q, w in items})
+        if fetch:
+            keys = "[" + ", ".join(str(c * _BUCKETS + b) for c, b in fetch) + "]::BIGINT[]"
+            got = self._np(
+                f"SELECT cell, b, v FROM (SELECT cell, v, {bucket} AS b {scope}) "
+                f"WHERE cell * {_BUCKETS} + b IN (SELECT unnest({keys})) ORDER BY cell, b, v"
+            )
+            cell_b = got["cell"].astype(np.int64) * _BUCKETS + got["b"].astype(np.int64)
+            vals = np.asarray(got["v"], dtype=np.float64)
+            for c, b in fetch:
+                start = int(np.searchsorted(cell_b, c * _BUCKETS + b, side="left"))
+                for q, w in targets[(c, b)]:
+                    result[(c, q)] = float(vals[start + w])
 
     def _quantiles(self, counts: dict[int, int], source: str, probs: Sequence[float]) -> dict[int, np.ndarray]:
         """Type 7 quantiles per cell (numpy's default: h = (n − 1)p, linear interpolation written
@@ -1048,6 +1101,8 @@ class DuckRows:
 
 
 _M32 = 4294967296
+_BUCKETS = 1 << 16  # histogram buckets per cell when locating order statistics
+_FETCH = 1_000_000  # values fetched into Python at most per refinement step
 
 
 def _fmix32_sql(table: str, seed: int) -> str:
