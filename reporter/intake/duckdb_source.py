@@ -930,9 +930,12 @@ class DuckRows:
             return self._con.execute(sql).fetchnumpy()
 
     def medians(self) -> np.ndarray:
+        """Per-cell medians from exact order statistics (DuckDB's median aggregate would hold
+        every value of a cell in memory)."""
+        counts = {int(c): int(n) for c, n in self._q("SELECT cell, count(*) FROM kept GROUP BY cell")}
         out = np.full(self.k, np.nan)
-        for c, m in self._q("SELECT cell, quantile_cont(d, 0.5) FROM kept GROUP BY cell"):
-            out[c] = m
+        for c, q in self._quantiles(counts, "SELECT cell, d AS v FROM kept", [0.5]).items():
+            out[c] = q[0]
         return out
 
     def deviation_stats(self, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
