@@ -92,7 +92,7 @@ import io
 import math
 import re
 import textwrap
-from xml.sax.saxutils import escape
+from html import escape as _html_escape
 
 from reporter.errors import RenderError
 from reporter.narrative.document import FigureSpec
@@ -178,22 +178,54 @@ def draw_svg(spec: FigureSpec, *, id_prefix: str | None = None, title: str | Non
     data = {key: _plain(value) for key, value in dict(spec.data).items()}
 
     import matplotlib
-    from matplotlib.backends.backend_svg import FigureCanvasSVG
     from matplotlib.figure import Figure
     from matplotlib.layout_engine import TightLayoutEngine
 
     with matplotlib.rc_context(_RC):
         # One axes: a single pass of the tight layout is exact (rect=None skips the second).
-        fig = Figure(figsize=FIGSIZE, layout=TightLayoutEngine(pad=0.4, rect=None))
-        FigureCanvasSVG(fig)
+        # 72 dpi: one SVG unit per point, as the SVG writer would set while printing.
+        fig = Figure(figsize=FIGSIZE, dpi=72, layout=TightLayoutEngine(pad=0.4, rect=None))
+        buf = io.StringIO()
+        canvas = _canvas_type()(fig, buf)
         ax = fig.add_subplot()
         _style_axes(ax)
         _DRAWERS[spec.kind](ax, data)
-        buf = io.StringIO()
-        fig.canvas.print_svg(
-            buf, metadata={"Date": None, "Creator": None, "Format": None, "Type": None}
-        )
+        canvas.write_svg()
     return _clean_svg(buf.getvalue(), id_prefix, title)
+
+
+@functools.cache
+def _canvas_type():
+    """An SVG canvas that writes into one text buffer with one renderer, made up front.
+
+    The layout pass asks the canvas for a renderer to measure text with (matplotlib's
+    ``Figure._get_renderer`` uses ``canvas.get_renderer()`` where a canvas has one). Handing it
+    the renderer that then draws the figure means every label is measured once: matplotlib
+    caches text metrics per renderer, and the stock SVG canvas makes a throw-away renderer for
+    the layout and a second one for the drawing. The SVG text is the same, byte for byte.
+    """
+    from matplotlib.backends.backend_mixed import MixedModeRenderer
+    from matplotlib.backends.backend_svg import FigureCanvasSVG, RendererSVG
+
+    class Canvas(FigureCanvasSVG):
+        def __init__(self, figure, out):
+            super().__init__(figure)
+            width, height = figure.get_size_inches()
+            self._renderer = MixedModeRenderer(
+                figure, width, height, figure.dpi,
+                RendererSVG(width * 72, height * 72, out, image_dpi=figure.dpi,
+                            metadata={"Date": None, "Creator": None, "Format": None, "Type": None}),
+            )
+
+        def get_renderer(self):
+            return self._renderer
+
+        def write_svg(self) -> None:
+            """Lay out and draw the figure into the buffer, then close the document."""
+            self.figure.draw(self._renderer)
+            self._renderer.finalize()
+
+    return Canvas
 
 
 # ---------------------------------------------------------------- the four kinds
@@ -530,6 +562,13 @@ _STYLE_BLOCK = re.compile(r"\s*<defs>\s*<style[^>]*>.*?</style>\s*</defs>", re.S
 _COMMENT = re.compile(r"[ \t]*<!--.*?-->\n?", re.S)
 
 
+def _escape(text: str) -> str:
+    """``&``, ``<`` and ``>`` as entities (text content and double-quoted attribute values with no
+    quotes in them). ``html.escape`` rather than ``xml.sax.saxutils``, which pulls in
+    ``urllib.request`` and ``ssl`` on import."""
+    return _html_escape(text, quote=False)
+
+
 def _clean_svg(text: str, prefix: str, title: str | None = None) -> str:
     """Cut matplotlib's prolog, style block and comments (the text of each label, written
     beside its glyph outlines), prefix every id, put the stroke defaults on the root."""
@@ -550,9 +589,9 @@ def _clean_svg(text: str, prefix: str, title: str | None = None) -> str:
     svg = _ID_REF.sub(rename, svg)
     head_end = svg.index(">")
     head = svg[:head_end] + (
-        f' id="{escape(prefix)}" class="report-figure" role="img"'
+        f' id="{_escape(prefix)}" class="report-figure" role="img"'
         ' stroke-linejoin="round" stroke-linecap="butt">'
     )
     if title:
-        head += f"\n <title>{escape(title)}</title>"
+        head += f"\n <title>{_escape(title)}</title>"
     return head + svg[head_end + 1:]
