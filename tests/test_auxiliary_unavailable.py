@@ -31,8 +31,8 @@ name = "dose"
 levels = {levels}
 [analysis]
 unequal_variances = "{policy}"
-posthoc = ["all-pairs", "versus-control", "any-contrast"]
-control = "low"
+follow_up = ["all-pairs-tukey", "versus-control-dunnett", "all-contrasts-scheffe"]
+follow_up_control = "low"
 permutations = 200
 [[hypotheses]]
 name = "high above low"
@@ -118,7 +118,7 @@ def test_follow_up_families_with_an_empty_cell_say_why(project):
     doc = json.loads(reporter.report(plan).render("json"))
     missing = {x["result"]: x["reason"] for x in doc["not_available"]}
     assert "the control cell dose=low is empty" in missing["Dunnett comparisons with the control on the cells"]
-    pairs = next(f for f in doc["posthoc"] if f["family"] == "all-pairs")
+    pairs = next(f for f in doc["follow_up"] if f["family"] == "all-pairs-tukey")
     (comp,) = pairs["comparisons"]
     assert (comp["first"], comp["second"]) == ("mid", "high")
     mid, high = np.array([1.1, 2.3]), np.array([1.7, 2.9, 3.3])
@@ -140,8 +140,8 @@ def test_marginal_means_that_need_an_empty_cell_are_not_compared(project):
         name = "B"
         levels = ["b1", "b2", "b3"]
         [analysis]
-        posthoc = ["all-pairs"]
-        posthoc_on = "A"
+        follow_up = ["all-pairs-tukey"]
+        follow_up_compares = "A"
         permutations = 0
         """, {"d.csv": "y,A,B\n" + "".join(f"{v},{a},{b}\n" for v, (a, b) in zip(
             [1.0, 1.4, 2.2, 2.0, 3.1, 2.7, 1.9, 2.5, 3.3, 2.9],
@@ -151,4 +151,4 @@ def test_marginal_means_that_need_an_empty_cell_are_not_compared(project):
     missing = {x["result"]: x["reason"] for x in doc["not_available"]}
     assert "the marginal mean of A=a2 needs cell A=a2, B=b3, which is empty" in missing[
         "Tukey–Kramer pairs on the levels of A"]
-    assert doc["posthoc"] == []
+    assert doc["follow_up"] == []

@@ -21,7 +21,7 @@ def run(args, cwd=None):
 
 def test_check_prints_design_and_writes_nothing(project, tmp_path):
     """check shows cells with n, the design matrix, beta meanings and compiled contrasts."""
-    path = project(ONEWAY_PLAN.replace("[[hypotheses]]", '[analysis]\nparameterization = "effects"\n[[hypotheses]]', 1),
+    path = project(ONEWAY_PLAN.replace("[[hypotheses]]", '[analysis]\ncoding = "sum-to-zero"\n[[hypotheses]]', 1),
                    {"heights.csv": ONEWAY_DATA})
     before = sorted(p.name for p in tmp_path.iterdir())
     res = run(["check", str(path)], cwd=tmp_path)

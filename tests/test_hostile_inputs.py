@@ -441,7 +441,7 @@ def test_a_sums_of_squares_type_that_does_not_exist_gets_no_look_alike(capsys, t
     assert "Did you mean" not in line
 
 
-_SS_KEY = "ss_type"
+_SS_KEY = "sums_of_squares"
 
 
 # ---------------------------------------------------------------------------------------------
@@ -468,8 +468,8 @@ def test_a_duplicated_follow_up_entry_is_refused(capsys, tmp_path):
     refused(capsys, tmp_path, path, "plan.toml", "line 12", f"analysis.{_FOLLOW_UP}[2]", "repeats")
 
 
-_FOLLOW_UP = "posthoc"
-_ALL_PAIRS = "all-pairs"
+_FOLLOW_UP = "follow_up"
+_ALL_PAIRS = "all-pairs-tukey"
 
 
 @pytest.mark.parametrize("column", ["height_mm", "medium"])
@@ -514,3 +514,44 @@ def test_the_pdf_attachment_is_the_plan_as_hashed(tmp_path):
     assert hashlib.sha256(prep.plan.source_bytes).hexdigest() == prep.plan.sha256
     path.write_text("title = 'changed after the run started'\n", encoding="utf-8")
     assert _attachments(prep, b"{}")["plan.toml"] == original
+
+
+# ---------------------------------------------------------------------------------------------
+# The plan's own names for options
+
+
+@pytest.mark.parametrize(
+    "setting, hint",
+    [
+        ('parameterization = "effects"', "Did you mean 'coding'?"),
+        ('ss_type = "III"', "Did you mean 'sums_of_squares'?"),
+        ('posthoc = ["all-pairs"]', "Did you mean 'follow_up'?"),
+        ('posthoc_on = "cells"', "Did you mean 'follow_up_compares'?"),
+        ('control = "peat"', "Did you mean 'follow_up_control'?"),
+        ('coding = "effects"', 'Did you mean "sum-to-zero"?'),
+        ('coding = "reference"', 'Did you mean "reference-level"?'),
+        ('sums_of_squares = "III"', 'Did you mean "type-III"?'),
+        ("sums_of_squares = 2", 'Write it as text: "type-II"'),
+        ('follow_up = ["any-contrast"]', 'Did you mean "all-contrasts-scheffe"?'),
+        ('follow_up = ["versus-control"]', 'Did you mean "versus-control-dunnett"?'),
+    ],
+)
+def test_old_option_names_point_to_the_new_ones(capsys, tmp_path, setting, hint):
+    path = write(tmp_path, with_analysis(setting))
+    line = refused(capsys, tmp_path, path, "plan.toml", "line 12")
+    assert hint in line
+
+
+def test_new_option_names_reach_results_json(tmp_path):
+    import json
+
+    settings = ('coding = "sum-to-zero"\nsums_of_squares = "type-II"\nfollow_up = ["versus-control-dunnett"]\n'
+                'follow_up_compares = "medium"\nfollow_up_control = "peat"\npermutations = 0')
+    path = write(tmp_path, with_analysis(settings))
+    assert main(["run", str(path), "--out", str(tmp_path / "out"), "--format", "json"]) == 0
+    doc = json.loads((tmp_path / "out" / "results.json").read_text(encoding="utf-8"))
+    a = doc["analysis"]
+    assert (a["coding"], a["sums_of_squares"], a["follow_up"], a["follow_up_compares"], a["follow_up_control"]) == (
+        "sum-to-zero", "type-II", ["versus-control-dunnett"], "medium", "peat")
+    assert doc["design"]["coding"] == "sum-to-zero" and doc["anova"]["sums_of_squares"] == "type-II"
+    assert [f["family"] for f in doc["follow_up"]] == ["versus-control-dunnett"]

@@ -40,10 +40,10 @@ name = "schedule"
 levels = ["none", "massed", "spaced-short", "spaced-long"]
 [analysis]
 alpha = 0.05
-parameterization = "cell-means"
+coding = "cell-means"
 unequal_variances = "always-robust"
-posthoc = ["all-pairs", "versus-control", "any-contrast"]
-control = "none"
+follow_up = ["all-pairs-tukey", "versus-control-dunnett", "all-contrasts-scheffe"]
+follow_up_control = "none"
 permutations = 300
 [[hypotheses]]
 name = "long beats massed"
@@ -77,11 +77,11 @@ name = "feedback"
 levels = ["none", "delayed", "immediate"]
 [analysis]
 alpha = 0.05
-parameterization = "effects"
+coding = "sum-to-zero"
 unequal_variances = "classical"
-posthoc = ["all-pairs", "versus-control", "any-contrast"]
-posthoc_on = "feedback"
-control = "none"
+follow_up = ["all-pairs-tukey", "versus-control-dunnett", "all-contrasts-scheffe"]
+follow_up_compares = "feedback"
+follow_up_control = "none"
 permutations = 300
 [[hypotheses]]
 name = "schedules differ"
@@ -110,7 +110,7 @@ RULES = [
     (r"/design/coefficients/\*/estimate", "loc"),
     (r"/hypotheses/\*/(estimate|ci/\*|robust/estimate|robust/ci/\*)", "loc"),
     (r"/(anova/residual_sd|cells/\*/(sd|se)|design/coefficients/\*/se|hypotheses/\*/se)", "spread"),
-    (r"/posthoc/\*/comparisons/\*/(difference|se|ci/\*)", "spread"),
+    (r"/follow_up/\*/comparisons/\*/(difference|se|ci/\*)", "spread"),
     (r"/games_howell/comparisons/\*/(difference|se|ci/\*)", "spread"),
     (r"/assumptions/outliers/rows/\*/residual", "spread"),
     (r"/(anova/rows/\*/(ss|ms)|anova/total/ss|hypotheses/\*/ss)", "square"),
@@ -122,7 +122,7 @@ RULES = [
     (r"/assumptions/(brown_forsythe|levene|shapiro_wilk|qq)/.*|/assumptions/outliers/(threshold|total|listed|rows/\*/"
      r"(row|studentized))", "free"),
     (r"/outlier_sensitivity/.*|/robust/.*", "free"),
-    (r"/posthoc/\*/(alpha|comparisons/\*/(df|p_adjusted|statistic))", "free"),
+    (r"/follow_up/\*/(alpha|comparisons/\*/(df|p_adjusted|statistic))", "free"),
     (r"/games_howell/(alpha|comparisons/\*/(df|p_adjusted|statistic))", "free"),
 ]
 

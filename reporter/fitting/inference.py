@@ -409,7 +409,7 @@ def _control_index(labels, control, design, on) -> int:
     if k in keys:
         return keys.index(k)
     raise PlanError(
-        f"'analysis.control' is \"{control}\", which is not one of the compared groups "
+        f"'analysis.follow_up_control' is \"{control}\", which is not one of the compared groups "
         f"({', '.join(labels)}). Name one of them (for cells of several factors use the form a/b)."
     )
 

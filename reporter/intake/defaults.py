@@ -9,22 +9,31 @@ from __future__ import annotations
 ANALYSIS_DEFAULTS: dict[str, object] = {
     # Two-sided significance level of every test; confidence intervals are at 1 - alpha.
     "alpha": 0.05,
-    # How the design matrix is coded: "cell-means" (one beta per cell), "effects"
-    # (sum to zero, last listed level coded -1) or "reference" (first listed level is the reference).
-    "parameterization": "cell-means",
-    # Sums of squares of the ANOVA table: "I" (sequential), "II" (adjusted for the other main
-    # effects) or "III" (unweighted means). Hypotheses written as `effect = ...` always test
-    # unweighted means, whatever the table uses.
-    "ss_type": "III",
+    # How the design matrix is coded, which fixes what each coefficient (beta) means:
+    # "cell-means" (one beta per cell, each a cell mean), "sum-to-zero" (each factor's codes sum
+    # to zero, the last listed level coded -1: betas are deviations from averages of cell means) or
+    # "reference-level" (the first listed level of each factor is the reference: betas are
+    # differences from the reference cell). Tests of hypotheses do not depend on this choice.
+    "coding": "cell-means",
+    # Sums of squares of the ANOVA table: "type-I" (sequential, in the order the factors are
+    # listed), "type-II" (each effect adjusted for the other main effects) or "type-III"
+    # (unweighted means). Hypotheses written as `effect = ...` always test unweighted means,
+    # whatever the table uses.
+    "sums_of_squares": "type-III",
     # Multiplicity correction across the planned hypotheses:
     # "holm", "hochberg", "bonferroni", "benjamini-hochberg" or "none".
     "correction": "holm",
-    # Optional post-hoc families: any of "all-pairs", "versus-control", "any-contrast".
-    "posthoc": (),
-    # What the post-hoc families compare: "cells", or the name of one factor (its marginal means).
-    "posthoc_on": "cells",
-    # The control level of the "versus-control" family.
-    "control": None,
+    # Optional exploratory follow-up families, run after the planned tests: any of
+    # "all-pairs-tukey" (every pair of groups, Tukey–Kramer), "versus-control-dunnett" (each group
+    # against the control, Dunnett) and "all-contrasts-scheffe" (pairs, with Scheffé's bound that
+    # holds for every contrast one might look at afterwards).
+    "follow_up": (),
+    # What the follow-up families compare: "cells", or the name of one factor (its unweighted
+    # marginal means).
+    "follow_up_compares": "cells",
+    # The control group of "versus-control-dunnett": a level of the compared factor, or a cell
+    # written as its levels joined by "/" (e.g. "placebo/young").
+    "follow_up_control": None,
     # How unequal variances are handled: "classical", "robust-if-heterogeneous" or "always-robust".
     "unequal_variances": "classical",
     # Number of permutations of the permutation F test, and its random seed.
@@ -70,10 +79,44 @@ SUMMARY_DEFAULTS: dict[str, object] = {
     "spread_decimals": None,
 }
 
-PARAMETERIZATIONS = ("cell-means", "effects", "reference")
-SS_TYPES = ("I", "II", "III")
+# Plan values of the options above, each with the internal value the code uses.
+CODINGS = {"cell-means": "cell-means", "sum-to-zero": "effects", "reference-level": "reference"}
+SUMS_OF_SQUARES = {"type-I": "I", "type-II": "II", "type-III": "III"}
+FOLLOW_UPS = {
+    "all-pairs-tukey": "all-pairs",
+    "versus-control-dunnett": "versus-control",
+    "all-contrasts-scheffe": "any-contrast",
+}
+PARAMETERIZATIONS = tuple(CODINGS.values())
+SS_TYPES = tuple(SUMS_OF_SQUARES.values())
+POSTHOC_FAMILIES = tuple(FOLLOW_UPS.values())
 CORRECTIONS = ("holm", "hochberg", "bonferroni", "benjamini-hochberg", "none")
-POSTHOC_FAMILIES = ("all-pairs", "versus-control", "any-contrast")
+# Keys of [analysis] that had other names before the first release: a plan using one is told the
+# new name.
+RENAMED_KEYS = {
+    "parameterization": "coding",
+    "ss_type": "sums_of_squares",
+    "posthoc": "follow_up",
+    "posthoc_on": "follow_up_compares",
+    "control": "follow_up_control",
+}
+
+# Option values renamed likewise (the sums-of-squares types "I", "II", "III" are hinted in plan.py).
+RENAMED_VALUES = {
+    "effects": "sum-to-zero",
+    "reference": "reference-level",
+    "all-pairs": "all-pairs-tukey",
+    "versus-control": "versus-control-dunnett",
+    "any-contrast": "all-contrasts-scheffe",
+}
+
+
+def plan_value(mapping: dict[str, str], internal: str) -> str:
+    """The plan's name of an internal option value (for results.json, messages and the report)."""
+    for name, value in mapping.items():
+        if value == internal:
+            return name
+    return internal
 UNEQUAL_VARIANCES = ("classical", "robust-if-heterogeneous", "always-robust")
 ROLES = ("planned", "exploratory")
 DATA_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet")

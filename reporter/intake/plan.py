@@ -87,7 +87,15 @@ class HypothesisSpec:
 
 @dataclass(frozen=True)
 class AnalysisSpec:
-    """The ``[analysis]`` table with every default filled in."""
+    """The ``[analysis]`` table with every default filled in.
+
+    Attributes hold the code's internal names; the plan's keys and values are mapped in
+    :mod:`reporter.intake.defaults`: ``coding`` → ``parameterization`` ("sum-to-zero" →
+    "effects", "reference-level" → "reference"), ``sums_of_squares`` → ``ss_type`` ("type-III" →
+    "III"), ``follow_up`` → ``posthoc`` ("all-pairs-tukey" → "all-pairs", "versus-control-dunnett"
+    → "versus-control", "all-contrasts-scheffe" → "any-contrast"), ``follow_up_compares`` →
+    ``posthoc_on``, ``follow_up_control`` → ``control``.
+    """
 
     alpha: float = 0.05
     parameterization: str = "cell-means"
@@ -198,6 +206,8 @@ class _Checker:
         for key in mapping:
             if key not in allowed:
                 hint = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
+                if D.RENAMED_KEYS.get(key) in allowed:
+                    hint = [D.RENAMED_KEYS[key]]
                 fix = f" Did you mean '{hint[0]}'?" if hint else f" Allowed keys: {', '.join(allowed)}."
                 path = f"{prefix}{key}"
                 raise self.fail(path, f"is not a known key.{fix}", key=key, **loc)
@@ -242,6 +252,8 @@ class _Checker:
                 if isinstance(value, str)
                 else []
             )
+            if isinstance(value, str) and D.RENAMED_VALUES.get(value) in choices:
+                hint = [D.RENAMED_VALUES[value]]
             fix = f" Did you mean \"{hint[0]}\"?" if hint else ""
             raise self.fail(path, f"must be one of {allowed} (got {_show(value)}).{fix}", key=key, **loc)
         return value
@@ -611,34 +623,37 @@ def _read_analysis(doc, ck: _Checker, factors) -> AnalysisSpec:
             f"must be a number between {_plain_exp(D.MIN_ALPHA)} and 0.5 (0.5 excluded), such as 0.05 "
             f"(got {ck.raw('alpha', alpha, **loc)}).",
             key="alpha", **loc)
-    param = ck.choice(t, "parameterization", "analysis.parameterization", D.PARAMETERIZATIONS, a["parameterization"], **loc)
+    coding = ck.choice(t, "coding", "analysis.coding", tuple(D.CODINGS), a["coding"], **loc)
     ss = _sums_of_squares(t, ck, loc)
     corr = ck.choice(t, "correction", "analysis.correction", D.CORRECTIONS, a["correction"], **loc)
-    posthoc = t.get("posthoc", [])
-    if isinstance(posthoc, str):
-        posthoc = [posthoc]
-    if not isinstance(posthoc, list):
-        raise ck.fail("analysis.posthoc", f"must be a list such as [\"all-pairs\"] (got {_show(posthoc)}).", key="posthoc", **loc)
+    follow_up = t.get("follow_up", [])
+    if isinstance(follow_up, str):
+        follow_up = [follow_up]
+    if not isinstance(follow_up, list):
+        raise ck.fail("analysis.follow_up", f"must be a list such as [\"all-pairs-tukey\"] (got {_show(follow_up)}).",
+                      key="follow_up", **loc)
     first_at: dict[str, int] = {}
-    for j, fam in enumerate(posthoc, start=1):
-        ck.choice({"posthoc": fam}, "posthoc", f"analysis.posthoc[{j}]", D.POSTHOC_FAMILIES, None, **loc)
+    for j, fam in enumerate(follow_up, start=1):
+        ck.choice({"follow_up": fam}, "follow_up", f"analysis.follow_up[{j}]", tuple(D.FOLLOW_UPS), None, **loc)
         if fam in first_at:
             raise ck.fail(
-                f"analysis.posthoc[{j}]",
+                f"analysis.follow_up[{j}]",
                 f'repeats "{fam}" (first at position {first_at[fam]}); list each family once.',
-                key="posthoc", **loc,
+                key="follow_up", **loc,
             )
         first_at[fam] = j
     names = [f.name for f in factors]
-    on = t.get("posthoc_on", "cells")
+    on = t.get("follow_up_compares", "cells")
     if on != "cells" and on not in names:
         choices = ["cells", *names]
-        ck.choice({"posthoc_on": on}, "posthoc_on", "analysis.posthoc_on", tuple(choices), None, **loc)
-    control = t.get("control")
+        ck.choice({"follow_up_compares": on}, "follow_up_compares", "analysis.follow_up_compares", tuple(choices), None, **loc)
+    control = t.get("follow_up_control")
     if control is not None:
         if not isinstance(control, (str, int, float)) or isinstance(control, bool):
-            raise ck.fail("analysis.control", f"must be a level name (got {_show(control)}).", key="control", **loc)
+            raise ck.fail("analysis.follow_up_control", f"must be a level name (got {_show(control)}).",
+                          key="follow_up_control", **loc)
         control = level_text(control)
+        ck.length(control, D.MAX_NAME_CHARS * D.MAX_FACTORS, "analysis.follow_up_control", key="follow_up_control", **loc)
     if control is not None and factors:
         if on == "cells":
             groups = ["/".join(combo) for combo in itertools.product(*(f.levels for f in factors))]
@@ -648,10 +663,13 @@ def _read_analysis(doc, ck: _Checker, factors) -> AnalysisSpec:
             hint = difflib.get_close_matches(control, groups, n=1, cutoff=0.5)
             fix = f" Did you mean \"{hint[0]}\"?" if hint else ""
             shown = ", ".join(f'"{g}"' for g in groups[:12])
-            raise ck.fail("analysis.control", f"must be one of the compared groups ({shown}) (got \"{control}\").{fix}",
-                          key="control", **loc)
-    if "versus-control" in posthoc and control is None:
-        raise ck.fail("analysis.control", 'is required by posthoc "versus-control": name the control level, e.g. control = "placebo".', key="posthoc", **loc)
+            raise ck.fail("analysis.follow_up_control",
+                          f"must be one of the compared groups ({shown}) (got {_show(control)}).{fix}",
+                          key="follow_up_control", **loc)
+    if "versus-control-dunnett" in follow_up and control is None:
+        raise ck.fail("analysis.follow_up_control",
+                      'is required by follow_up "versus-control-dunnett": name the control group, '
+                      'e.g. follow_up_control = "placebo".', key="follow_up", **loc)
     uv = ck.choice(t, "unequal_variances", "analysis.unequal_variances", D.UNEQUAL_VARIANCES, a["unequal_variances"], **loc)
     perms = t.get("permutations", a["permutations"])
     if isinstance(perms, bool) or not isinstance(perms, int) or not (0 <= perms <= 10_000_000):
@@ -664,10 +682,10 @@ def _read_analysis(doc, ck: _Checker, factors) -> AnalysisSpec:
         raise ck.fail("analysis.permutation_max_rows", f"must be a whole number ≥ 0 of rows, above which the permutation F is skipped (got {ck.raw('permutation_max_rows', max_rows, **loc)}).", key="permutation_max_rows", **loc)
     return AnalysisSpec(
         alpha=float(alpha),
-        parameterization=param,
-        ss_type=ss,
+        parameterization=D.CODINGS[coding],
+        ss_type=D.SUMS_OF_SQUARES[ss],
         correction=corr,
-        posthoc=tuple(posthoc),
+        posthoc=tuple(D.FOLLOW_UPS[f] for f in follow_up),
         posthoc_on=on,
         control=control,
         unequal_variances=uv,
@@ -681,20 +699,20 @@ _ROMAN = re.compile(r"(?i)(?:type[\s_-]*)?([ivx]+|[0-9]+)")
 
 
 def _sums_of_squares(t, ck: _Checker, loc: dict) -> str:
-    """The type of sums of squares. A value naming a type the tool does not compute (IV, 4) gets
-    no look-alike suggestion: Type IV is not Type I."""
-    key, path = "ss_type", "analysis.ss_type"
+    """The plan's type of sums of squares ("type-I", "type-II", "type-III"). A value naming a type
+    the tool does not compute (IV, 4) gets no look-alike suggestion: Type IV is not Type I."""
+    key, path = "sums_of_squares", "analysis.sums_of_squares"
     value = t.get(key, D.ANALYSIS_DEFAULTS[key])
-    if value in D.SS_TYPES:
+    if isinstance(value, str) and value in D.SUMS_OF_SQUARES:
         return value
-    allowed = ", ".join(f'"{c}"' for c in D.SS_TYPES)
+    allowed = ", ".join(f'"{c}"' for c in D.SUMS_OF_SQUARES)
     m = _ROMAN.fullmatch(value.strip()) if isinstance(value, str) else None
     roman = {"1": "I", "2": "II", "3": "III"}.get(m.group(1), m.group(1).upper()) if m else None
     if isinstance(value, int) and not isinstance(value, bool):
         roman = {1: "I", 2: "II", 3: "III"}.get(value)
-        fix = f' Write it as text: "{roman}".' if roman else ""
-    elif roman in D.SS_TYPES:
-        fix = f' Did you mean "{roman}"?'
+        fix = f' Write it as text: "type-{roman}".' if roman else f" Type {value} sums of squares are not computed here."
+    elif roman in ("I", "II", "III"):
+        fix = f' Did you mean "type-{roman}"?'
     elif roman is not None:
         fix = f" Type {roman} sums of squares are not computed here."
     else:

@@ -266,7 +266,7 @@ def build_design(factors: Sequence[Factor], parameterization: str = "cell-means"
     factors = tuple(factors)
     if parameterization not in ("cell-means", "effects", "reference"):
         raise PlanError(
-            f"'analysis.parameterization' must be one of \"cell-means\", \"effects\", "
+            f"'parameterization' must be one of \"cell-means\", \"effects\", "
             f"\"reference\" (got \"{parameterization}\")."
         )
     names = tuple(f.name for f in factors)

@@ -17,6 +17,7 @@ from fractions import Fraction
 from typing import Sequence
 
 from reporter.fitting.permutation import SEQUENTIAL_EXCEEDANCES
+from reporter.intake.defaults import CODINGS
 from reporter.intake.summary import ROW_LEVEL_STEPS, SPREAD_WORDS
 from reporter.narrative import numbers as N
 from reporter.narrative.document import (
@@ -40,7 +41,7 @@ CORRECTION_SHORT = {
 #: The plan key that chooses between the classical and the robust tests, as the report names it.
 POLICY_KEY = "unequal_variances"
 #: The plan's name of each coding (the key ``coding``), by its internal value.
-CODING_NAMES = {"cell-means": "cell-means", "effects": "sum-to-zero", "reference": "reference-level"}
+CODING_NAMES = {internal: name for name, internal in CODINGS.items()}
 PARAM_WORDS = {
     "cell-means": "cell-means coding (one coefficient per cell, each the mean of its cell)",
     "effects": "sum-to-zero coding (the last listed level of each factor is coded −1, "

@@ -12,6 +12,7 @@ from fractions import Fraction
 
 import numpy as np
 
+from reporter.intake.defaults import CODINGS, plan_value
 from reporter.render.visible import show_controls
 
 
@@ -54,7 +55,7 @@ def render_check(prep) -> str:
     out.append("")
 
     coefs = design.coefficients
-    out.append(f"Design matrix, parameterization \"{design.parameterization}\": one row per cell, "
+    out.append(f"Design matrix, coding \"{plan_value(CODINGS, design.parameterization)}\": one row per cell, "
                "with the number of data rows it stands for")
     header = ["/".join(names) if len(names) > 1 else "cell", *[c.symbol for c in coefs], "rows"]
     rows = [[c.short, *[str(int(v)) for v in design.matrix[c.index]], str(n)]

@@ -12,6 +12,7 @@ from fractions import Fraction
 from importlib import resources
 from typing import Any
 
+from reporter.intake import defaults as D
 from reporter.intake.summary import ROW_LEVEL_STEPS
 
 SCHEMA_ID = "anova-report/results/1"
@@ -126,7 +127,7 @@ def _inference_dict(prep, analysis) -> dict[str, Any]:
                 "statistic": _num(inf.welch_oneway.statistic), "df": [_num(inf.welch_oneway.df1), _num(inf.welch_oneway.df2)],
                 "p": _num(inf.welch_oneway.p)},
         },
-        "posthoc": [_family(*f) for f in inf.posthoc],
+        "follow_up": [_family(D.plan_value(D.FOLLOW_UPS, f[0]), *f[1:]) for f in inf.posthoc],
         "not_available": [{"result": what, "reason": why} for what, why in inf.unavailable],
         "games_howell": None if inf.games_howell is None else _family(
             "all-pairs-unequal-variances", "cells", inf.games_howell, tuple(c.short for c in analysis.design.cells)),
@@ -316,13 +317,13 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
         "analysis": {
             "alpha": a.alpha,
             "confidence_level": 1 - a.alpha,
-            "parameterization": a.parameterization,
-            "ss_type": a.ss_type,
+            "coding": D.plan_value(D.CODINGS, a.parameterization),
+            "sums_of_squares": D.plan_value(D.SUMS_OF_SQUARES, a.ss_type),
             "correction": a.correction,
             "unequal_variances": a.unequal_variances,
-            "posthoc": list(a.posthoc),
-            "posthoc_on": a.posthoc_on,
-            "control": a.control,
+            "follow_up": [D.plan_value(D.FOLLOW_UPS, f) for f in a.posthoc],
+            "follow_up_compares": a.posthoc_on,
+            "follow_up_control": a.control,
             "permutations": a.permutations,
             "permutation_max_rows": a.permutation_max_rows,
             "seed": a.seed,
@@ -339,13 +340,13 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
         },
         "design": {
             "factors": [{"name": f.name, "levels": list(f.levels)} for f in design.factors],
-            "parameterization": design.parameterization,
+            "coding": D.plan_value(D.CODINGS, design.parameterization),
             "matrix": [[int(v) for v in row] for row in design.matrix],
             "coefficients": coefficients,
         },
         "cells": cells,
         "anova": {
-            "ss_type": table.ss_type,
+            "sums_of_squares": D.plan_value(D.SUMS_OF_SQUARES, table.ss_type),
             "ss_label": table.label,
             "rows": rows,
             "total": {"df": table.df_total, "ss": _num(table.ss_total)},

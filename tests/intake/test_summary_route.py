@@ -67,10 +67,11 @@ def _plan(folder: Path, path: str, factorial: bool, full_posthoc: bool = True, *
     return plan_from_dict(
         {"title": "Seedling height", "data": {"path": path, "outcome": "height_mm", **data},
          "factors": factors, "hypotheses": hyps,
-         "analysis": {"permutations": 0, "ss_type": "II" if factorial else "III",
+         "analysis": {"permutations": 0, "sums_of_squares": "type-II" if factorial else "type-III",
                       # the studentized-range families are slow; Scheffé stands in for them where not needed
-                      "posthoc": ["all-pairs", "versus-control", "any-contrast"] if full else ["any-contrast"],
-                      **({"control": "peat"} if full else {})}},
+                      "follow_up": ["all-pairs-tukey", "versus-control-dunnett", "all-contrasts-scheffe"] if full
+                      else ["all-contrasts-scheffe"],
+                      **({"follow_up_control": "peat"} if full else {})}},
         base_dir=folder,
     )
 
