@@ -555,3 +555,45 @@ def test_new_option_names_reach_results_json(tmp_path):
         "sum-to-zero", "type-II", ["versus-control-dunnett"], "medium", "peat")
     assert doc["design"]["coding"] == "sum-to-zero" and doc["anova"]["sums_of_squares"] == "type-II"
     assert [f["family"] for f in doc["follow_up"]] == ["versus-control-dunnett"]
+
+
+# ---------------------------------------------------------------------------------------------
+# Cell-summary tables follow the same rules for numbers and files
+
+SUMMARY_PLAN = PLAN.replace('outcome = "height_mm"', 'outcome = "height_mm"\nlayout = "cell-summaries"').replace(
+    "heights.csv", "cells.csv")
+CELLS = "medium,n,mean,sd\npeat,12,101.23,4.12\ncoir,9,103.87,5.01\nbark,11,105.40,6.20\nsoil,10,108.02,7.33\n"
+
+
+@pytest.mark.parametrize(
+    "old, new, why",
+    [("103.87", "1e999999999", "exponent of more than"), ("103.87", "1e400", "larger in magnitude"),
+     ("103.87", "1_03.87", "uses '_'"), ("5.01", "５.01", "outside ASCII"), ("5.01", "inf", "infinite")],
+    ids=["1e999999999", "1e400", "underscore", "full-width", "inf"],
+)
+def test_summary_numbers_follow_the_plain_decimal_rule(capsys, tmp_path, old, new, why):
+    path = write(tmp_path, SUMMARY_PLAN, CELLS.replace(old, new), "cells.csv")
+    refused(capsys, tmp_path, path, "cells.csv", "line 3", why)
+
+
+def test_summary_table_that_is_a_fifo(capsys, tmp_path):
+    os.mkfifo(tmp_path / "cells.csv")
+    path = write(tmp_path, SUMMARY_PLAN, None)
+    refused(capsys, tmp_path, path, "cells.csv", "named pipe")
+
+
+@pytest.mark.parametrize("scale", [1e200, 1e-80], ids=["overflow", "underflow"])
+def test_the_fit_refuses_sums_float64_cannot_hold(scale):
+    """Arrays given from Python skip the reader's check; the fit itself refuses them clearly."""
+    import numpy as np
+
+    from reporter.errors import FitError
+    from reporter.fitting.analysis import fit_analysis_on_rows
+    from reporter.model.design import Factor, build_design
+    from reporter.model.hypotheses import compile_effect
+
+    design = build_design([Factor("g", ("a", "b", "c"))])
+    y = np.array([1.0, 2.0, 4.0, 3.0, 5.0, 9.0]) * scale
+    cell = np.array([0, 0, 1, 1, 2, 2])
+    with pytest.raises(FitError, match="rescale the outcome"):
+        fit_analysis_on_rows(design, y, cell, [compile_effect(design, "g")], permutations=0)

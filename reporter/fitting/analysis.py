@@ -9,8 +9,10 @@ from typing import Callable, Sequence
 
 import numpy as np
 
+from reporter.errors import FitError
 from reporter.fitting.anova import AnovaTable, fit_anova
 from reporter.intake.cells import CellStats, describe_cells
+from reporter.intake.numtext import spread_limits
 from reporter.fitting.distributions import t_ppf
 from reporter.fitting.inference import ROWS_UNAVAILABLE, HypothesisExtras, Inference, describe_inference
 from reporter.fitting.permutation import PERMUTATION_MAX_ROWS
@@ -166,6 +168,7 @@ def fit_analysis(
     and, separately, the exploratory ones, each with ``correction``. The p that enters the
     adjustment is that of the confirmatory test chosen by ``unequal_variances``.
     """
+    _check_float_range(cells)
     fit = fit_model(cells, design.matrix)
     table = fit_anova(design, fit, ss_type)
     tests = [fit_contrast(fit, c.weights, c.rhs, c.alternative, alpha, c.test) for c in contrasts]
@@ -221,12 +224,43 @@ def with_rounding_bounds(analysis: Analysis, summary) -> Analysis:
     return replace(analysis, rounding=bounds)
 
 
+def _check_float_range(cells: CellStats) -> None:
+    """Refuse a cell table whose sums would overflow or underflow float64 in the fit.
+
+    The limits are :func:`reporter.intake.numtext.spread_limits`. The data reader refuses such
+    outcomes with their lines; this guard also covers cell tables and arrays given from Python.
+    """
+    o = cells.observed
+    means, ss, n = cells.offset_mean[o], cells.ss[o], cells.n[o]
+    if not (np.isfinite(means).all() and np.isfinite(ss).all()):
+        raise FitError(
+            "a cell mean or sum of squares is beyond what float64 can hold (about 1.8e308) after "
+            "centring; rescale the outcome (for example use larger units)."
+        )
+    with np.errstate(all="ignore"):
+        sd = np.sqrt(ss / np.maximum(n - 1, 1))
+    spread = max(float(np.ptp(means)) if means.size else 0.0, float(sd.max()) if sd.size else 0.0)
+    total = max(cells.n_total, 1)
+    lower, upper = spread_limits(total)
+    if spread > upper:
+        raise FitError(
+            f"the outcome's spread (about {spread:.3g}) makes the fit's sums of squares overflow float64 "
+            f"(the limit is {upper:.3g} for {total} values); rescale the outcome (for example use larger units)."
+        )
+    if 0 < spread < lower:
+        raise FitError(
+            f"the outcome's spread (about {spread:.3g}) makes the fit's sums of squares underflow float64 "
+            f"(below {lower:g}); rescale the outcome (for example use smaller units)."
+        )
+
+
 def fit_analysis_on_rows(design: Design, y, cell, contrasts: Sequence[Contrast], *, pivot: float = 0.0,
                          pivot_exact: Fraction | None = None, row_numbers=None, **options) -> Analysis:
     """:func:`fit_analysis` on row arrays (offsets ``y`` from ``pivot``, the cell of each row),
     held in memory; rows are numbered 0..N-1 unless ``row_numbers`` are given."""
     y = np.asarray(y, dtype=np.float64)
     cell = np.asarray(cell)
-    cells = describe_cells(y, cell, design.k, pivot, pivot_exact)
+    with np.errstate(over="ignore", invalid="ignore"):  # overflow is refused by fit_analysis, in words
+        cells = describe_cells(y, cell, design.k, pivot, pivot_exact)
     numbers = np.arange(y.size, dtype=np.int64) if row_numbers is None else np.asarray(row_numbers)
     return fit_analysis(design, cells, MemoryRows(y, cell, design.k, numbers), contrasts, **options)

@@ -27,7 +27,6 @@ import difflib
 import hashlib
 import io
 import math
-import sys
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Sequence
@@ -521,9 +520,7 @@ def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of, n
     """Refuse offsets from the pivot that float64 cannot hold, and a spread of the outcome so wide
     or so narrow that the fit's sums would overflow or underflow float64.
 
-    The fit forms squares of deviations (sums of squares) and squares of variances (the Welch
-    degrees of freedom), so fourth powers of the spread must stay within float64:
-    64·n²·spread⁴ ≤ 1.8e308 (about spread ≤ 1e76 / √n) and spread ≥ 1e-70 unless every value is equal.
+    The limits are :func:`reporter.intake.numtext.spread_limits`.
     """
     if first < 0:
         return
@@ -541,7 +538,7 @@ def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of, n
     lo, hi = int(idx[int(np.argmin(vals))]), int(idx[int(np.argmax(vals))])
     spread = float(y[hi]) - float(y[lo])
     count = idx.size if n_values is None else n_values  # the out-of-core reader passes min and max only
-    upper = (sys.float_info.max / (64.0 * float(count) ** 2)) ** 0.25
+    lower, upper = numtext.spread_limits(count)
     shown = (f"the outcome '{outcome}' ranges from {float(y[lo]) + pivot!r} ({line_of(lo)}) to "
              f"{float(y[hi]) + pivot!r} ({line_of(hi)})")
     if not (spread <= upper):
@@ -549,14 +546,11 @@ def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of, n
             f"{source}: {shown}; with {count} values a spread over {upper:.3g} makes the fit's sums "
             "of squares overflow float64 (about 1.8e308). Rescale the outcome (for example use larger units)."
         )
-    if 0 < spread < _MIN_SPREAD:
+    if 0 < spread < lower:
         raise DataError(
-            f"{source}: {shown}; a spread under {_MIN_SPREAD:g} makes the fit's sums of squares "
+            f"{source}: {shown}; a spread under {lower:g} makes the fit's sums of squares "
             "underflow float64. Rescale the outcome (for example use smaller units)."
         )
-
-
-_MIN_SPREAD = 1e-70
 
 
 # ---------------------------------------------------------------------------------------------

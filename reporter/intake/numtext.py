@@ -77,3 +77,14 @@ def range_problem(value: decimal.Decimal) -> str | None:
     if mag and mag < FLOAT_MIN_NORMAL:
         return "is smaller in magnitude than the smallest normal float64 (about 2.2e-308) and would be read as 0"
     return None
+
+
+def spread_limits(n: int) -> tuple[float, float]:
+    """The narrowest and widest spread of n outcome values that the fit can square in float64.
+
+    The fit squares deviations (sums of squares) and squares variances (Welch's degrees of
+    freedom), so fourth powers of the spread must stay within float64: 64·n²·spread⁴ ≤ 1.8e308
+    (about spread ≤ 1e76/√n); below 1e-70 they underflow (common practice, no source).
+    """
+    upper = (sys.float_info.max / (64.0 * float(max(n, 1)) ** 2)) ** 0.25
+    return 1e-70, upper

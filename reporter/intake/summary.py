@@ -35,7 +35,6 @@ from __future__ import annotations
 
 import decimal
 import difflib
-import sys
 import math
 from dataclasses import dataclass
 from fractions import Fraction
@@ -49,7 +48,8 @@ from reporter.intake.cells import CellStats
 from reporter.intake import defaults as D
 from reporter.intake import numtext
 from reporter.intake.data import (Dataset, Exclusion, _match_levels, _parse_text, _read_text_file, check_widths, hash_file,
-                                  require_file, _MIN_SPREAD)
+                                  require_file)
+from reporter.intake.numtext import spread_limits
 from reporter.intake.plan import Plan
 
 _CTX = decimal.Context(prec=80, traps=[decimal.InvalidOperation])
@@ -437,7 +437,7 @@ def _check_range(source, word, lines, offset, ss, n, spec, pivot, given) -> None
     """Refuse summaries whose fit would overflow or underflow float64, as the row path does for
     rows: the fit squares deviations of means and squares variances (Welch's df), so the spread of
     the means and every SD must stay within (1.8e308 / (64·N²))^¼, and above 1e-70 unless 0."""
-    upper = (sys.float_info.max / (64.0 * float(n.sum()) ** 2)) ** 0.25
+    min_spread, upper = spread_limits(int(n.sum()))
     sd = np.sqrt(ss / np.maximum(n - 1, 1))
     fix = "Rescale the outcome (for example use other units) and compute the summaries again."
     if not np.all(np.isfinite(offset)):
@@ -446,15 +446,15 @@ def _check_range(source, word, lines, offset, ss, n, spec, pivot, given) -> None
                         f"mean ({pivot!r}) by more than float64 can hold (about 1.8e308). {fix}")
     lo, hi = int(np.argmin(offset)), int(np.argmax(offset))
     spread = float(offset[hi] - offset[lo])
-    if not spread <= upper or 0 < spread < _MIN_SPREAD:
+    if not spread <= upper or 0 < spread < min_spread:
         raise DataError(f"{source}: the means ({word}s {lines[lo]} and {lines[hi]}) differ by {spread:.3g}, "
-                        f"outside what the fit's sums of squares can hold in float64 ({_MIN_SPREAD:g} to {upper:.3g} "
+                        f"outside what the fit's sums of squares can hold in float64 ({min_spread:g} to {upper:.3g} "
                         f"with N = {int(n.sum())}). {fix}")
-    big = np.flatnonzero(~(sd <= upper) | ((sd > 0) & (sd < _MIN_SPREAD)))
+    big = np.flatnonzero(~(sd <= upper) | ((sd > 0) & (sd < min_spread)))
     if big.size:
         c = int(big[0])
         raise DataError(f"{source}, {word} {lines[c]}, column '{spec.spread_column}': the {_SHORT[spec.spread]} "
-                        f"{float(given[c]):.3g} gives an SD outside what the fit's sums of squares can hold in float64 ({_MIN_SPREAD:g} to "
+                        f"{float(given[c]):.3g} gives an SD outside what the fit's sums of squares can hold in float64 ({min_spread:g} to "
                         f"{upper:.3g} with N = {int(n.sum())}). {fix}")
 
 
