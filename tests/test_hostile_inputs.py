@@ -597,3 +597,11 @@ def test_the_fit_refuses_sums_float64_cannot_hold(scale):
     cell = np.array([0, 0, 1, 1, 2, 2])
     with pytest.raises(FitError, match="rescale the outcome"):
         fit_analysis_on_rows(design, y, cell, [compile_effect(design, "g")], permutations=0)
+
+
+def test_huge_values_are_shortened_in_messages(capsys, tmp_path):
+    """A 100,000-character unknown level or key is named, shortened, in a readable message."""
+    path = write(tmp_path, data=DATA + "12.0," + "z" * 100_000 + "\n")
+    refused(capsys, tmp_path, path, "heights.csv", "line 18", "zzzz…")
+    path = write(tmp_path, PLAN + "k" * 100_000 + ' = 1\n')
+    refused(capsys, tmp_path, path, "plan.toml", "line 11", "is not a known key")

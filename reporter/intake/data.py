@@ -261,7 +261,7 @@ def _needed_columns(plan: Plan, columns: Sequence[str], source: str) -> list[str
             role = "outcome" if name == plan.data.outcome else "factor"
             hint = difflib.get_close_matches(name, list(columns), n=1, cutoff=0.6)
             fix = f" Did you mean '{hint[0]}'?" if hint else ""
-            shown = ", ".join(f"'{c}'" for c in columns[:20])
+            shown = ", ".join(f"'{c}'" if len(c) <= 40 else f"'{c[:24]}…'" for c in columns[:20])
             raise DataError(
                 f"{source}: has no column '{name}' (the {role} named in the plan). "
                 f"Its columns are {shown}.{fix}"
@@ -305,7 +305,7 @@ def _build_columns(plan: Plan, source, sha, fmt, cols, n, *, row_numbers) -> Dat
         reasons.append((f"missing outcome '{plan.data.outcome}'", missing_y, ""))
     if bad_y.any():
         first = np.flatnonzero(bad_y)[:5]
-        shown = "; ".join(f'{line_of(int(i))}: "{str(raw_outcome[i]).strip()}"' for i in first)
+        shown = "; ".join(f'{line_of(int(i))}: {_shown(str(raw_outcome[i]).strip())}' for i in first)
         reasons.append((f"non-numeric outcome '{plan.data.outcome}'", bad_y, shown))
     dropped_outcome = missing_y | bad_y
     keep &= ~dropped_outcome
@@ -412,9 +412,9 @@ def _match_levels(plan, factor, values, source, line_of, counts=None):
         for u in unknown[:10]:
             where = np.flatnonzero(inv == u)
             size = where.size if counts is None else int(counts[u])
-            parts.append(f'"{_value_text(uniq[u])}" ({size} {"row" if size == 1 else "rows"}, first at {line_of(int(where[0]))})')
+            parts.append(f'{_shown(str(_value_text(uniq[u])))} ({size} {"row" if size == 1 else "rows"}, first at {line_of(int(where[0]))})')
         more = f" and {len(unknown) - 10} more" if len(unknown) > 10 else ""
-        listed = ", ".join(f'"{lv}"' for lv in factor.levels)
+        listed = ", ".join(f'"{lv}"' for lv in factor.levels[:20]) + (" …" if len(factor.levels) > 20 else "")
         raise DataError(
             f"{source}: column '{factor.data_column}' holds levels that the plan does not list for "
             f"factor '{factor.name}': {', '.join(parts)}{more}. The plan lists {listed}. Add them to "

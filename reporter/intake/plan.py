@@ -200,6 +200,8 @@ class _Checker:
     def fail(self, path: str, rule: str, *, table=None, index=None, key=None) -> PlanError:
         line = self.loc.line_of(table, index, key)
         where = f"{self.source}, line {line}" if line else self.source
+        if len(path) > 80:  # a key of any length may arrive; the message stays readable
+            path = f"{path[:60]}…"
         return PlanError(f"{where}: '{path}' {rule}")
 
     def unknown_keys(self, mapping: Mapping, allowed: tuple[str, ...], prefix: str, **loc) -> None:
