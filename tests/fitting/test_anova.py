@@ -7,6 +7,8 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
+from statsmodels.formula.api import ols as sm_ols
+from statsmodels.stats.anova import anova_lm
 from scipy import stats
 
 from conftest import DATA_DIR
@@ -14,8 +16,6 @@ from reporter.fitting.analysis import fit_analysis_on_rows as fit_analysis
 from reporter.model.design import Factor, build_design
 from reporter.model.hypotheses import compile_effect, compile_statement
 
-sm_ols = pytest.importorskip("statsmodels.formula.api").ols
-anova_lm = pytest.importorskip("statsmodels.stats.anova").anova_lm
 
 
 def frame_fit(df, factors, outcome, ss_type="III", param="cell-means", hyps=()):
@@ -30,7 +30,8 @@ def frame_fit(df, factors, outcome, ss_type="III", param="cell-means", hyps=()):
 
 
 def test_plantgrowth_published():
-    """PlantGrowth one-way: F(2, 27) = 4.846, p = .0159 (Dobson 1983; R datasets documentation)."""
+    """PlantGrowth one-way: F(2, 27) = 4.846, p = .0159 (the ANOVA of R's PlantGrowth example,
+    values from memory; the binding check is scipy.stats.f_oneway in the next test)."""
     df = pd.read_csv(DATA_DIR / "PlantGrowth.csv")
     a, _ = frame_fit(df, [("group", ["ctrl", "trt1", "trt2"])], "weight")
     row = a.anova.rows[0]

@@ -7,6 +7,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+import pandas as pd
+import statsmodels.api as sm
 from scipy import stats
 
 from reporter.errors import FitError
@@ -23,8 +25,6 @@ from reporter.fitting.assumptions import (
 
 from conftest import plant_growth_codes
 
-pd = pytest.importorskip("pandas")
-sm = pytest.importorskip("statsmodels.api")
 
 DATA = Path(__file__).parents[1] / "data"
 

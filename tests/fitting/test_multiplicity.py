@@ -4,11 +4,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+import statsmodels.stats.multitest as multitest
 
 from reporter.errors import PlanError
 from reporter.fitting.multiplicity import adjust_p
 
-multitest = pytest.importorskip("statsmodels.stats.multitest")
 
 # our method name -> statsmodels multipletests method name
 METHODS = {

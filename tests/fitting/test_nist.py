@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import pandas as pd
 import pytest
 
 from conftest import lre, nist_anova
@@ -62,7 +63,6 @@ def test_float_input_is_capped_without_exact_intake(tmp_path):
     This documents the cap stated in the README: values like 1000000000000.4 are already in
     error as float64, so LRE falls far below the text path's.
     """
-    pd = pytest.importorskip("pandas")
     cert, levels = read_nist("SmLs09", tmp_path)
     frame = pd.read_csv(tmp_path / "data.csv", dtype={"group": str})
     plan = plan_from_dict(

@@ -5,12 +5,12 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+import statsmodels.api as sm
 from scipy import stats
 
 from reporter.errors import FitError
 from reporter.fitting.permutation import _null_distribution, permutation_f_test
 
-sm = pytest.importorskip("statsmodels.api")
 
 INTERACTION_2X3 = np.kron([[1.0, -1.0]], [[1.0, -1.0, 0.0], [0.0, 1.0, -1.0]])
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 import pytest
+import statsmodels.stats.power as sm_power
 
 from reporter.errors import PlanError
 from reporter.fitting.power import (
@@ -15,7 +16,6 @@ from reporter.fitting.power import (
     solve_detectable_f,
 )
 
-sm_power = pytest.importorskip("statsmodels.stats.power")
 
 SENSITIVITY_CASES = [(1, 40, 0.80), (2, 60, 0.90), (3, 100, 0.80), (5, 30, 0.90), (2, 300, 0.80)]
 CELL_SIZE_CASES = [(0.25, 2, 0.80), (0.10, 1, 0.80), (0.40, 3, 0.90), (0.60, 4, 0.80), (0.18, 5, 0.90)]

@@ -6,6 +6,7 @@ import hashlib
 import os
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from conftest import ONEWAY_DATA, ONEWAY_PLAN
@@ -116,7 +117,6 @@ def test_exact_decimal_pivot(project):
 
 def test_parquet_and_dataframe_agree_with_csv(project, tmp_path):
     """Parquet files and pandas DataFrames give the same rows as the CSV."""
-    pd = pytest.importorskip("pandas")
     import io
 
     frame = pd.read_csv(io.StringIO(ONEWAY_DATA))
