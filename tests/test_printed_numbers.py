@@ -323,6 +323,7 @@ def test_results_json_every_number_is_checked(oneway):
     L.check(("analysis", "confidence_level"), 1 - ALPHA)
     L.check(("analysis", "permutations"), 0)
     L.skip(("analysis", "seed"), "the plan's default seed, echoed (no permutation ran)")
+    L.skip(("analysis", "permutation_max_rows"), "a row limit from the plan's defaults, echoed")
     L.check(("data", "n_read"), N)
     L.check(("data", "n_analysed"), N)
     # design: cell-means coding, β = the cell means (statsmodels params and bse)
@@ -435,6 +436,8 @@ def test_results_json_every_number_is_checked(oneway):
         L.check((*A, key, "df"), [k - 1, N - k])
         L.check((*A, key, "p"), float(res.pvalue), rel=1e-8)
     L.check((*A, "shapiro_wilk", "n"), N)
+    L.check((*A, "shapiro_wilk", "n_available"), N)
+    L.check((*A, "qq", "n_residuals"), N)
     L.check((*A, "shapiro_wilk", "statistic"), float(R["shapiro"].statistic), rel=1e-6)
     L.check((*A, "shapiro_wilk", "p"), float(R["shapiro"].pvalue), rel=1e-5)
     probplot = sm.ProbPlot(R["internal"], a=3 / 8)  # Blom (1958) positions
@@ -444,6 +447,9 @@ def test_results_json_every_number_is_checked(oneway):
     flagged = [int(i) for i in np.flatnonzero(np.abs(R["external"]) > 3)]
     assert flagged == [OUTLIER_ROW]
     assert len(doc["assumptions"]["outliers"]["rows"]) == 1
+    L.check((*A, "outliers", "total"), 1)
+    L.check((*A, "outliers", "listed"), 1)
+    L.check(("outlier_sensitivity", "n_removed"), 1)
     L.check((*A, "outliers", "rows", 0, "row"), OUTLIER_ROW + 2)  # the CSV line (header = line 1)
     L.check((*A, "outliers", "rows", 0, "residual"), float(R["resid"][OUTLIER_ROW]))
     L.check((*A, "outliers", "rows", 0, "studentized"), float(R["external"][OUTLIER_ROW]), rel=1e-9)
@@ -674,3 +680,68 @@ def test_factorial_printed_tables(factorial):
                            and r[4] in bracket(float(low), float(high)) for r in cand), (fmt, factor, level, cand)
                 rows_ok = True
             assert rows_ok
+
+
+# ---------------------------------------------------------------------------------------------
+# Robust tests confirmatory: the printed interval beside a Welch test is Welch's
+
+
+@pytest.fixture(scope="module")
+def robust_oneway(tmp_path_factory):
+    project = simulated([("g", ("a", "b", "c"))], [0.0, 0.7, 1.6], [12, 9, 15], sd=[0.6, 1.5, 3.0], seed=21)
+    hyps = [("c over a", "means", "c > a", "planned"), ("b under c", "means", "b < c", "planned")]
+    out = run(tmp_path_factory.mktemp("robust"), project, hyps, {"unequal_variances": "always-robust"})
+    return project, out
+
+
+def _welch_reference(project, first, second, alternative):
+    """Welch–Satterthwaite t of mean(first) − mean(second): scipy.stats.ttest_ind(equal_var=False)
+    and its one-sided 95% bound est ∓ t_{.95, df}·SE (Satterthwaite 1946)."""
+    a = project.y[project.cell == first]
+    b = project.y[project.cell == second]
+    res = stats.ttest_ind(a, b, equal_var=False, alternative=alternative)
+    se = math.sqrt(a.var(ddof=1) / a.size + b.var(ddof=1) / b.size)
+    est = a.mean() - b.mean()
+    q = stats.t.ppf(0.95, res.df)
+    ci = (est - q * se, math.inf) if alternative == "greater" else (-math.inf, est + q * se)
+    return est, res, ci
+
+
+ROBUST_CASES = [("c over a", 2, 0, "greater"), ("b under c", 1, 2, "less")]
+
+
+@pytest.mark.parametrize("name, first, second, alternative", ROBUST_CASES, ids=["greater", "less"])
+def test_robust_confirmatory_test_line_and_estimate(robust_oneway, name, first, second, alternative):
+    """Under always-robust the confirmatory test line prints Welch's t, df and p, and the estimate
+    bullet prints Welch's one-sided bound (scipy.stats.ttest_ind(equal_var=False), reference)."""
+    project, out = robust_oneway
+    est, res, ci = _welch_reference(project, first, second, alternative)
+    pr = Printed(out)
+    p_adj = out.hypothesis(name)["p_adjusted"]
+    assert out.hypothesis(name)["confirmatory"]["test"] == "robust"
+    pr.has_text(formats(lambda t, df, p: f"{stat_t(t, df).plain()}, {stat_p(p).plain()}",
+                        float(res.statistic), float(res.df), float(res.pvalue)), f"{name} Welch test")
+    pr.has_text(formats(lambda e, lo, hi: f"{format_number(e)}, {stat_ci(lo, hi, 0.95).plain()} (one-sided bound, Welch)",
+                        est, *ci), f"{name} Welch estimate")
+    holm = multipletests([_welch_reference(project, f, s, a)[1].pvalue for _, f, s, a in ROBUST_CASES],
+                         method="holm")[1]
+    assert p_adj == pytest.approx(holm[[c[0] for c in ROBUST_CASES].index(name)], rel=1e-8)
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "reporter/narrative/build.py result_sentence() and reading(): when the robust test is "
+    "confirmatory, the Results sentence prints the Welch t beside the classical (pooled-variance) "
+    "interval, and the Reading paragraph quotes the classical one-sided bound, while the estimate "
+    "bullet of the same hypothesis prints Welch's bound; reported to the lead"))
+@pytest.mark.parametrize("name, first, second, alternative", ROBUST_CASES, ids=["greater", "less"])
+def test_results_sentence_prints_the_confirmatory_interval(robust_oneway, name, first, second, alternative):
+    """The Results sentence 'Welch–Satterthwaite test, t(df) = …, p = …, Holm-adjusted p = …;
+    estimate …, 95% CI […]' carries Welch's interval (scipy.stats.ttest_ind(equal_var=False))."""
+    project, out = robust_oneway
+    est, res, ci = _welch_reference(project, first, second, alternative)
+    p_adj = out.hypothesis(name)["p_adjusted"]
+    pr = Printed(out)
+    pr.has_text(formats(lambda t, df, p, e, lo, hi: f"{stat_t(t, df).plain()}, {stat_p(p).plain()}, "
+                        f"Holm-adjusted {stat_p(p_adj).plain()}; estimate {format_number(e)}, "
+                        f"{stat_ci(lo, hi, 0.95).plain()}",
+                        float(res.statistic), float(res.df), float(res.pvalue), est, *ci), f"{name} Results sentence")
