@@ -6,6 +6,11 @@ import textwrap
 from pathlib import Path
 
 import pytest
+from hypothesis import settings
+
+# No timed assertions in tests: Hypothesis's per-example deadline fails tests on a busy machine.
+settings.register_profile("untimed", deadline=None)
+settings.load_profile("untimed")
 
 DATA_DIR = Path(__file__).parent / "data"
 

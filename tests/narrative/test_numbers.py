@@ -225,14 +225,14 @@ def test_adjusted_p_symbol_can_be_named():
 # --- negative values and the minus sign -------------------------------------------------------
 
 NEGATIVE_CASES = [
-    (format_number(-2.1), f"{M}2.10"),
-    (format_number(-2.1, minus=HYPHEN_MINUS), "-2.10"),
-    (format_bounded(-0.3), f"{M}.30"),
-    (format_bounded(-0.3, minus=HYPHEN_MINUS), "-.30"),
-    (stat_t(-2.104, 27).plain(), f"t(27) = {M}2.10"),
-    (stat_t(-2.104, 27).plain(minus=HYPHEN_MINUS), "t(27) = -2.10"),
-    (stat_value("d", -0.41).plain(), f"d = {M}0.41"),
-    (stat_ci(-1.5, -0.25).plain(), f"95% CI [{M}1.50, {M}0.25]"),
+    (lambda: format_number(-2.1), f"{M}2.10"),
+    (lambda: format_number(-2.1, minus=HYPHEN_MINUS), "-2.10"),
+    (lambda: format_bounded(-0.3), f"{M}.30"),
+    (lambda: format_bounded(-0.3, minus=HYPHEN_MINUS), "-.30"),
+    (lambda: stat_t(-2.104, 27).plain(), f"t(27) = {M}2.10"),
+    (lambda: stat_t(-2.104, 27).plain(minus=HYPHEN_MINUS), "t(27) = -2.10"),
+    (lambda: stat_value("d", -0.41).plain(), f"d = {M}0.41"),
+    (lambda: stat_ci(-1.5, -0.25).plain(), f"95% CI [{M}1.50, {M}0.25]"),
 ]
 
 
@@ -243,7 +243,7 @@ NEGATIVE_CASES = [
 )
 def test_negative_values_use_true_minus_by_default(printed, expected):
     """Negatives carry U+2212 unless ASCII is asked for (project decision, module docstring)."""
-    assert printed == expected
+    assert printed() == expected
 
 
 def test_with_minus_keeps_styling():
@@ -280,19 +280,19 @@ def test_negative_df_is_an_error():
 
 
 STAT_CASES = [
-    (stat_f(4.8512, 2, 27), "F(2, 27) = 4.85"),
-    (stat_f(5.1789, 2, 17.1262), "F(2, 17.13) = 5.18"),
-    (stat_f(1234.567, 1, 1500), "F(1, 1500) = 1,234.57"),
-    (stat_f(0.004, 3, 110), "F(3, 110) = 0.00"),
-    (stat_t(2.1, 27), "t(27) = 2.10"),
-    (stat_t(2.1, 15.6249), "t(15.62) = 2.10"),
-    (stat_value("M", 0.52), "M = 0.52"),
-    (stat_value("SD", 1.3), "SD = 1.30"),
-    (stat_value("SE", 0.1234, 3), "SE = 0.123"),
-    (stat_value("η²", 0.1249, leading_zero=False), "η² = .12"),
-    (stat_value("R²", 0.456, leading_zero=False), "R² = .46"),
-    (stat_count(28), "n = 28"),
-    (stat_count(1250, "N"), "N = 1,250"),
+    (lambda: stat_f(4.8512, 2, 27), "F(2, 27) = 4.85"),
+    (lambda: stat_f(5.1789, 2, 17.1262), "F(2, 17.13) = 5.18"),
+    (lambda: stat_f(1234.567, 1, 1500), "F(1, 1500) = 1,234.57"),
+    (lambda: stat_f(0.004, 3, 110), "F(3, 110) = 0.00"),
+    (lambda: stat_t(2.1, 27), "t(27) = 2.10"),
+    (lambda: stat_t(2.1, 15.6249), "t(15.62) = 2.10"),
+    (lambda: stat_value("M", 0.52), "M = 0.52"),
+    (lambda: stat_value("SD", 1.3), "SD = 1.30"),
+    (lambda: stat_value("SE", 0.1234, 3), "SE = 0.123"),
+    (lambda: stat_value("η²", 0.1249, leading_zero=False), "η² = .12"),
+    (lambda: stat_value("R²", 0.456, leading_zero=False), "R² = .46"),
+    (lambda: stat_count(28), "n = 28"),
+    (lambda: stat_count(1250, "N"), "N = 1,250"),
 ]
 
 
@@ -303,20 +303,20 @@ STAT_CASES = [
 )
 def test_statistic_texts(stat, expected):
     """Statistics read in APA form: symbol, df in parentheses, value to two decimals."""
-    assert stat.plain() == expected
+    assert stat().plain() == expected
 
 
 # --- confidence intervals and levels ----------------------------------------------------------
 
 CI_CASES = [
-    (stat_ci(0.1749, 1.5551), "95% CI [0.17, 1.56]"),
-    (stat_ci(0.17, math.inf), "95% CI [0.17, ∞]"),  # one-sided, project decision
-    (stat_ci(-math.inf, 1.56), f"95% CI [{M}∞, 1.56]"),
-    (stat_ci(0.05, 0.41, 0.90, leading_zero=False), "90% CI [.05, .41]"),
-    (stat_ci(0.17, 1.56, 0.995), "99.5% CI [0.17, 1.56]"),
-    (stat_ci(1200.0, 3400.5), "95% CI [1,200.00, 3,400.50]"),
-    (stat_ci(None, 1.56), f"95% CI [{MISSING}, 1.56]"),
-    (stat_ci(math.nan, math.nan), f"95% CI [{MISSING}, {MISSING}]"),
+    (lambda: stat_ci(0.1749, 1.5551), "95% CI [0.17, 1.56]"),
+    (lambda: stat_ci(0.17, math.inf), "95% CI [0.17, ∞]"),  # one-sided, project decision
+    (lambda: stat_ci(-math.inf, 1.56), f"95% CI [{M}∞, 1.56]"),
+    (lambda: stat_ci(0.05, 0.41, 0.90, leading_zero=False), "90% CI [.05, .41]"),
+    (lambda: stat_ci(0.17, 1.56, 0.995), "99.5% CI [0.17, 1.56]"),
+    (lambda: stat_ci(1200.0, 3400.5), "95% CI [1,200.00, 3,400.50]"),
+    (lambda: stat_ci(None, 1.56), f"95% CI [{MISSING}, 1.56]"),
+    (lambda: stat_ci(math.nan, math.nan), f"95% CI [{MISSING}, {MISSING}]"),
 ]
 
 
@@ -327,7 +327,7 @@ CI_CASES = [
 )
 def test_ci_formats(stat, expected):
     """A CI states its level and puts its limits in brackets; an open side prints as ∞."""
-    assert stat.plain() == expected
+    assert stat().plain() == expected
 
 
 def test_ci_label_is_upright():
@@ -375,23 +375,23 @@ def test_confidence_level_must_be_a_proportion(level):
 
 LEADING_ZERO_CASES = [
     # APA 7 section 6.36: no leading zero for quantities that cannot exceed 1
-    (format_bounded(0.12), ".12"),
-    (format_bounded(0.1249), ".12"),
-    (format_bounded(0.005), ".01"),
-    (format_bounded(0.0), ".00"),
-    (format_bounded(-0.004), ".00"),
-    (format_bounded(0.999), "1.00"),
-    (format_bounded(1.0), "1.00"),
-    (format_bounded(-1.0), f"{M}1.00"),
-    (format_bounded(0.71, 3), ".710"),
+    (lambda: format_bounded(0.12), ".12"),
+    (lambda: format_bounded(0.1249), ".12"),
+    (lambda: format_bounded(0.005), ".01"),
+    (lambda: format_bounded(0.0), ".00"),
+    (lambda: format_bounded(-0.004), ".00"),
+    (lambda: format_bounded(0.999), "1.00"),
+    (lambda: format_bounded(1.0), "1.00"),
+    (lambda: format_bounded(-1.0), f"{M}1.00"),
+    (lambda: format_bounded(0.71, 3), ".710"),
     # ... and a leading zero for quantities that can
-    (format_number(0.52), "0.52"),
-    (format_number(0.004), "0.00"),
-    (format_number(0.52, leading_zero=False), ".52"),
-    (stat_value("M", 0.52).plain(), "M = 0.52"),
-    (stat_value("d", 0.11).plain(), "d = 0.11"),
-    (stat_value("r", 0.71, leading_zero=False).plain(), "r = .71"),
-    (stat_value("ω²", 0.083, leading_zero=False).plain(), "ω² = .08"),
+    (lambda: format_number(0.52), "0.52"),
+    (lambda: format_number(0.004), "0.00"),
+    (lambda: format_number(0.52, leading_zero=False), ".52"),
+    (lambda: stat_value("M", 0.52).plain(), "M = 0.52"),
+    (lambda: stat_value("d", 0.11).plain(), "d = 0.11"),
+    (lambda: stat_value("r", 0.71, leading_zero=False).plain(), "r = .71"),
+    (lambda: stat_value("ω²", 0.083, leading_zero=False).plain(), "ω² = .08"),
 ]
 
 
@@ -406,7 +406,7 @@ LEADING_ZERO_CASES = [
 )
 def test_leading_zero_rules(printed, expected):
     """The leading zero is dropped only for quantities that cannot exceed 1."""
-    assert printed == expected
+    assert printed() == expected
 
 
 @pytest.mark.parametrize("value", [1.5, -1.01, 12.0], ids=["1.5", "-1.01", "12"])
