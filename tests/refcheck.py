@@ -20,6 +20,7 @@ import itertools
 import json
 import math
 import re
+import sys
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -31,6 +32,13 @@ from scipy import optimize, special, stats
 import reporter
 
 DATA_DIR = Path(__file__).parent / "data"
+
+def report_scope(fixture_name, config) -> str:
+    """Scope of a fixture that builds a report: the module normally; each test under a mutation
+    run (mutmut), whose map of which test calls which function would otherwise credit a shared
+    report only to the first test that built it."""
+    return "function" if "mutmut" in sys.modules else "module"
+
 
 # Plan keys of the [analysis] table, in one place (see /work/notes/RENAMES.md when keys move).
 ANALYSIS_KEYS = {

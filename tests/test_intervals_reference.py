@@ -22,7 +22,7 @@ from scipy import stats
 
 from refcheck import (
     FLIP, Reference, assert_close, eta_interval, hedges_j, make_project, oriented, run, simulated,
-    standardized_contrast, toothgrowth,
+    report_scope, standardized_contrast, toothgrowth,
 )
 
 ONEWAY = [("g", ("a", "b", "c", "d"))]
@@ -44,7 +44,7 @@ def _oneway(seed=3):
     return simulated(ONEWAY, [10.0, 11.0, 12.5, 10.5], [5, 8, 6, 7], sd=1.5, seed=seed)
 
 
-@pytest.fixture(scope="module", params=[0.05, 0.10], ids=["alpha.05", "alpha.10"])
+@pytest.fixture(scope=report_scope, params=[0.05, 0.10], ids=["alpha.05", "alpha.10"])
 def oneway_run(request, tmp_path_factory):
     project = _oneway()
     hyps = [(name, "means", text, "planned") for name, text, *_ in STATEMENTS]
@@ -196,7 +196,7 @@ def test_hedges_g_uses_the_exact_J_at_small_df(tmp_path):
 # Marginal means and the factorial case (ToothGrowth)
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(scope=report_scope)
 def tooth_run(tmp_path_factory):
     project = toothgrowth()
     hyps = [
