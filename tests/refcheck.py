@@ -40,20 +40,22 @@ def report_scope(fixture_name, config) -> str:
     return "function" if "mutmut" in sys.modules else "module"
 
 
-# Plan keys of the [analysis] table, in one place (see /work/notes/RENAMES.md when keys move).
+# Plan keys of the [analysis] table, in one place.
 ANALYSIS_KEYS = {
     "alpha": "alpha",
     "correction": "correction",
     "unequal_variances": "unequal_variances",
-    "posthoc": "posthoc",
-    "posthoc_on": "posthoc_on",
-    "control": "control",
-    "ss_type": "ss_type",
-    "parameterization": "parameterization",
+    "posthoc": "follow_up",
+    "posthoc_on": "follow_up_compares",
+    "control": "follow_up_control",
+    "ss_type": "sums_of_squares",
+    "parameterization": "coding",
     "permutations": "permutations",
 }
-# Values of the follow-up families, as the plan spells them.
-FAMILY_VALUES = {"tukey": "all-pairs", "dunnett": "versus-control", "scheffe": "any-contrast"}
+# Values of the follow-up families, as the plan and results.json spell them.
+FAMILY_VALUES = {"tukey": "all-pairs-tukey", "dunnett": "versus-control-dunnett", "scheffe": "all-contrasts-scheffe"}
+# Values of the coding, as the plan spells them.
+CODING_VALUES = {"cell-means": "cell-means", "effects": "sum-to-zero", "reference": "reference-level"}
 
 
 def _toml_value(value) -> str:
@@ -138,6 +140,8 @@ def write_project(tmp_path: Path, project: Project, hypotheses, analysis=None, t
     for key, value in options.items():
         if value is None:
             continue
+        if key == "parameterization":
+            value = CODING_VALUES[value]
         plan.append(f"{ANALYSIS_KEYS[key]} = {_toml_value(value)}")
     for name, kind, statement, role in hypotheses:
         plan += ["[[hypotheses]]", f"name = {json.dumps(name)}", f"{kind} = {json.dumps(statement)}",

@@ -262,7 +262,7 @@ ONEWAY_DATA = {"PlantGrowth": (plantgrowth, "ctrl"), "simulated-unbalanced": (_f
 
 
 def _family(out, key):
-    (fam,) = [f for f in out.results["posthoc"] if f["family"] == FAMILY_VALUES[key]]
+    (fam,) = [f for f in out.results["follow_up"] if f["family"] == FAMILY_VALUES[key]]
     return fam
 
 

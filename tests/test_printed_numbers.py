@@ -468,10 +468,10 @@ def test_results_json_every_number_is_checked(oneway):
     others = [1, 2, 3]
     dunnett = stats.dunnett(*(samples[c] for c in others), control=samples[0], rng=20261202)
     dunnett_ci = dunnett.confidence_interval(1 - ALPHA)
-    for f, fam in enumerate(doc["posthoc"]):
-        L.check(("posthoc", f, "alpha"), ALPHA)
+    for f, fam in enumerate(doc["follow_up"]):
+        L.check(("follow_up", f, "alpha"), ALPHA)
         for j, comp in enumerate(fam["comparisons"]):
-            P = ("posthoc", f, "comparisons", j)
+            P = ("follow_up", f, "comparisons", j)
             a, b = LEVELS.index(comp["first"]), LEVELS.index(comp["second"])
             w = np.zeros(k)
             w[a], w[b] = 1, -1
