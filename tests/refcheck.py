@@ -19,6 +19,7 @@ from __future__ import annotations
 import itertools
 import json
 import math
+import os
 import re
 import sys
 from dataclasses import dataclass
@@ -37,7 +38,8 @@ def report_scope(fixture_name, config) -> str:
     """Scope of a fixture that builds a report: the module normally; each test under a mutation
     run (mutmut), whose map of which test calls which function would otherwise credit a shared
     report only to the first test that built it."""
-    return "function" if "mutmut" in sys.modules else "module"
+    under_mutation = "mutmut" in sys.modules or "MUTANT_UNDER_TEST" in os.environ
+    return "function" if under_mutation else "module"
 
 
 # Plan keys of the [analysis] table, in one place.

@@ -147,15 +147,16 @@ def test_degenerate_data(y, cell, k, message):
 
 def test_cell_statistics_are_centred_and_exact():
     """Cell means and SS of values with 13 constant digits match exact decimal arithmetic."""
-    from decimal import Decimal, getcontext
+    from decimal import Decimal, localcontext
 
-    getcontext().prec = 50
     vals = ["1000000000000.4", "1000000000000.3", "1000000000000.5", "1000000000000.6"]
-    pivot = Decimal(vals[0])
-    y = np.array([float(Decimal(v) - pivot) for v in vals])
+    with localcontext() as context:  # 50 digits here only: the global context stays as it was
+        context.prec = 50
+        pivot = Decimal(vals[0])
+        y = np.array([float(Decimal(v) - pivot) for v in vals])
+        exact = [Decimal(v) for v in vals]
+        mean = sum(exact) / 4
+        ss = sum((v - mean) ** 2 for v in exact)
     cs = describe_cells(y, np.zeros(4, int), 1, float(pivot))
-    exact = [Decimal(v) for v in vals]
-    mean = sum(exact) / 4
-    ss = sum((v - mean) ** 2 for v in exact)
     assert math.isclose(cs.offset_mean[0], float(mean - pivot), rel_tol=1e-15)
     assert math.isclose(cs.ss[0], float(ss), rel_tol=1e-14)

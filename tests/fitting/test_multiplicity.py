@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 import statsmodels.stats.multitest as multitest
 
-from reporter.errors import PlanError
+from reporter.errors import FitError, PlanError
 from reporter.fitting.multiplicity import adjust_p
 
 
@@ -79,3 +79,10 @@ def test_unknown_method_names_the_supported_values():
     for name in ("holm", "hochberg", "bonferroni", "benjamini-hochberg", "none"):
         assert repr(name) in message
     assert "Did you mean 'holm'?" in message
+
+
+@pytest.mark.parametrize("bad", [1.5, 2.0, -0.1])
+def test_p_values_outside_the_unit_interval_are_refused(bad):
+    """A p above 1 or below 0 is not a p value: an error, not an adjusted value."""
+    with pytest.raises(FitError, match="between 0 and 1"):
+        adjust_p([0.2, bad])

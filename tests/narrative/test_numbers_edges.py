@@ -9,7 +9,7 @@ project decisions stated in reporter/narrative/numbers.py; each is written out b
 from __future__ import annotations
 
 import math
-from decimal import Decimal
+from decimal import Context, Decimal, localcontext
 
 import pytest
 
@@ -88,16 +88,19 @@ def test_large_numbers_keep_every_decimal():
 
 @pytest.mark.xfail(strict=True, reason=(
     "reporter/narrative/numbers.py _write(): abs(rounded) rounds to the default decimal context "
-    "(28 digits), so a number of 29 or more digits loses its decimals: format_number(1.5e26) "
-    "prints '150,000,000,000,000,000,000,000,000.0', not '….00'; reported to the lead"))
+    "(28 digits unless the caller raised it), so a number of 29 or more digits loses its "
+    "decimals: format_number(1.5e26) prints '150,000,000,000,000,000,000,000,000.0', not '….00', "
+    "and the printed text depends on the caller's decimal context; reported to the lead"))
 @pytest.mark.parametrize("value, decimals, expected", [
     (1.5e26, 2, "150,000,000,000,000,000,000,000,000.00"),
     (1e25, 6, "10,000,000,000,000,000,000,000,000.000000"),
     (1.2345e27, 2, "1,234,500,000,000,000,000,000,000,000.00"),
 ])
 def test_numbers_beyond_28_digits_keep_their_decimals(value, decimals, expected):
-    """APA 7 (6.36): the stated number of decimals, whatever the size of the number."""
-    assert format_number(value, decimals) == expected
+    """APA 7 (6.36): the stated number of decimals, whatever the size of the number and whatever
+    decimal context the caller left behind (here Python's default, 28 digits)."""
+    with localcontext(Context()):
+        assert format_number(value, decimals) == expected
 
 
 def test_p_overshoot_at_the_slack_limit():
