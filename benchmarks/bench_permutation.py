@@ -25,10 +25,10 @@ import numpy as np
 from scipy import stats
 
 try:
-    from reporter.fitting.permutation import permutation_f_test
+    from reporter.inference.permutation import permutation_f_test
 except ImportError:  # run from a checkout without installing
     sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-    from reporter.fitting.permutation import permutation_f_test
+    from reporter.inference.permutation import permutation_f_test
 
 
 def vectorized_f(*groups, axis=-1):

@@ -13,7 +13,7 @@ whose cost (measured here, per permutation, and scaled to 10,000) grows like N.
 
 The default of ``[analysis] permutation_max_rows`` (reporter/intake/defaults.py) is chosen from
 this table: the N beyond which 10,000 permutations take longer than the run budget
-(``reporter.fitting.permutation.TIME_BUDGET``) while the F reference matches them.
+(``reporter.inference.permutation.TIME_BUDGET``) while the F reference matches them.
 """
 
 from __future__ import annotations
@@ -27,12 +27,12 @@ from pathlib import Path
 import numpy as np
 
 try:
-    from reporter.fitting.distributions import f_isf
-    from reporter.fitting.permutation import TIME_BUDGET, _null_distribution
+    from reporter.numerics.distributions import f_isf
+    from reporter.inference.permutation import TIME_BUDGET, _null_distribution
 except ImportError:  # run from a checkout without installing
     sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-    from reporter.fitting.distributions import f_isf
-    from reporter.fitting.permutation import TIME_BUDGET, _null_distribution
+    from reporter.numerics.distributions import f_isf
+    from reporter.inference.permutation import TIME_BUDGET, _null_distribution
 
 
 def data(n: int, seed: int):

@@ -28,10 +28,10 @@ import numpy as np
 from scipy import stats
 
 try:
-    from reporter.fitting.posthoc import dunnett, studentized_range_isf, studentized_range_sf
+    from reporter.inference.posthoc import dunnett, studentized_range_isf, studentized_range_sf
 except ImportError:  # run from a checkout without installing
     sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-    from reporter.fitting.posthoc import dunnett, studentized_range_isf, studentized_range_sf
+    from reporter.inference.posthoc import dunnett, studentized_range_isf, studentized_range_sf
 
 
 def _timed(fn):

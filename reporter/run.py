@@ -26,7 +26,7 @@ from pathlib import Path
 from typing import Callable
 
 from reporter.errors import OptionError, RenderError
-from reporter.fitting.analysis import Analysis, fit_analysis, with_rounding_bounds
+from reporter.inference.analysis import Analysis, fit_analysis, with_rounding_bounds
 from reporter.provenance import collect_provenance
 
 FILE_NAMES = {"json": "results.json", "html": "report.html", "pdf": "report.pdf", "md": "report.md"}

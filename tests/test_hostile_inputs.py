@@ -588,7 +588,7 @@ def test_the_fit_refuses_sums_float64_cannot_hold(scale):
     import numpy as np
 
     from reporter.errors import FitError
-    from reporter.fitting.analysis import fit_analysis_on_rows
+    from reporter.inference.analysis import fit_analysis_on_rows
     from reporter.model.design import Factor, build_design
     from reporter.model.hypotheses import compile_effect
 

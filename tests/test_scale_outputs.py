@@ -105,7 +105,7 @@ def test_report_without_row_access_renders_and_says_why(tmp_path):
 
 def test_quiet_run_prints_nothing_on_stderr(tmp_path, capfd, monkeypatch):
     """--quiet: no notice and no progress on stderr, even for a run announced as long."""
-    import reporter.fitting.permutation as P
+    import reporter.inference.permutation as P
 
     monkeypatch.setattr(P, "TIME_BUDGET", 0.0)
     plan = _project(tmp_path, 400, means=(400.0, 450.0, 500.0, 550.0))  # a small p: no early stop

@@ -26,7 +26,7 @@ from fractions import Fraction
 
 import numpy as np
 
-from reporter.fitting.distributions import f_sf
+from reporter.numerics.distributions import f_sf
 from reporter.fitting.linear import ModelFit, fit_contrast
 from reporter.model.design import Design, build_design
 from reporter.model.hypotheses import effect_weights

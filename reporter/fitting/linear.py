@@ -27,7 +27,7 @@ import numpy as np
 
 from reporter.errors import FitError
 from reporter.intake.cells import CellStats
-from reporter.fitting.distributions import f_sf, t_cdf, t_ppf, t_sf
+from reporter.numerics.distributions import f_sf, t_cdf, t_ppf, t_sf
 from reporter.model.design import in_row_space
 
 

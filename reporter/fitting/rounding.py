@@ -53,7 +53,7 @@ from typing import Sequence
 
 import numpy as np
 
-from reporter.fitting.distributions import f_sf, t_cdf, t_sf
+from reporter.numerics.distributions import f_sf, t_cdf, t_sf
 from reporter.fitting.linear import constant_part
 from reporter.intake.cells import CellStats
 from reporter.model.design import Design, build_design

@@ -16,7 +16,7 @@ from __future__ import annotations
 from fractions import Fraction
 from typing import Sequence
 
-from reporter.fitting.permutation import SEQUENTIAL_EXCEEDANCES
+from reporter.inference.permutation import SEQUENTIAL_EXCEEDANCES
 from reporter.intake.defaults import CODINGS
 from reporter.intake.summary import ROW_LEVEL_STEPS, SPREAD_WORDS
 from reporter.narrative import numbers as N

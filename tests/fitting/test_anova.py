@@ -12,7 +12,7 @@ from statsmodels.stats.anova import anova_lm
 from scipy import stats
 
 from conftest import DATA_DIR
-from reporter.fitting.analysis import fit_analysis_on_rows as fit_analysis
+from reporter.inference.analysis import fit_analysis_on_rows as fit_analysis
 from reporter.model.design import Factor, build_design
 from reporter.model.hypotheses import compile_effect, compile_statement
 

@@ -1,4 +1,4 @@
-"""Edges of reporter.fitting.effectsizes that a mutation run found unguarded, each against an
+"""Edges of reporter.inference.effectsizes that a mutation run found unguarded, each against an
 independent computation: Hedges' (1981) gamma-function J, noncentral-t and noncentral-F
 inversions by brentq on scipy.stats.nct / scipy.stats.ncf, and the scaling rule of a
 standardized contrast written out by hand.
@@ -13,7 +13,7 @@ import pytest
 from scipy import special, stats
 
 from reporter.errors import FitError
-from reporter.fitting.effectsizes import (
+from reporter.inference.effectsizes import (
     hedges_correction, partial_eta_squared_ci, standardized_contrast, t_noncentrality_ci,
 )
 

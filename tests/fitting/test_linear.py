@@ -11,7 +11,7 @@ from hypothesis import strategies as st
 from scipy import stats
 
 from reporter.errors import FitError
-from reporter.fitting.analysis import fit_analysis_on_rows as fit_analysis
+from reporter.inference.analysis import fit_analysis_on_rows as fit_analysis
 from reporter.intake.cells import describe_cells
 from reporter.fitting.linear import fit_contrast, fit_model
 from reporter.model.design import Factor, build_design

@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from reporter.fitting.assumptions import homogeneity
-from reporter.fitting.robust import kruskal_wallis_ranked
+from reporter.inference.assumptions import homogeneity
+from reporter.inference.robust import kruskal_wallis_ranked
 from reporter.intake.cells import describe_cells
 from reporter.intake.memory_rows import MemoryRows
 

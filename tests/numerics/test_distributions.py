@@ -1,4 +1,4 @@
-"""Tests of reporter.fitting.distributions against scipy.stats (reference library) on grids that
+"""Tests of reporter.numerics.distributions against scipy.stats (reference library) on grids that
 include the extreme tails, the support's boundaries and invalid parameters, plus closed forms of
 the F distribution; and a check that a report run without post-hoc families never imports
 scipy.stats.
@@ -19,7 +19,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from reporter.fitting import distributions as D
+from reporter.numerics import distributions as D
 
 RTOL = 1e-12
 ROOT = Path(__file__).resolve().parents[2]

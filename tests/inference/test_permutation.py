@@ -1,4 +1,4 @@
-"""Tests of reporter.fitting.permutation against the F distribution, scipy.stats.permutation_test,
+"""Tests of reporter.inference.permutation against the F distribution, scipy.stats.permutation_test,
 statsmodels OLS and the p-value rule of Phipson & Smyth (2010)."""
 
 from __future__ import annotations
@@ -9,7 +9,7 @@ import statsmodels.api as sm
 from scipy import stats
 
 from reporter.errors import FitError
-from reporter.fitting.permutation import _null_distribution, permutation_f_test
+from reporter.inference.permutation import _null_distribution, permutation_f_test
 
 
 INTERACTION_2X3 = np.kron([[1.0, -1.0]], [[1.0, -1.0, 0.0], [0.0, 1.0, -1.0]])

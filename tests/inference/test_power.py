@@ -1,4 +1,4 @@
-"""Tests of reporter.fitting.power against statsmodels.stats.power (reference library)."""
+"""Tests of reporter.inference.power against statsmodels.stats.power (reference library)."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import pytest
 import statsmodels.stats.power as sm_power
 
 from reporter.errors import PlanError
-from reporter.fitting.power import (
+from reporter.inference.power import (
     NONCENTRALITY_CONVENTION,
     compute_power,
     describe_sensitivity,

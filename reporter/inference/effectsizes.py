@@ -47,8 +47,8 @@ import numpy as np
 from scipy import special
 
 from reporter.errors import FitError, PlanError
-from reporter.fitting.distributions import f_sf, ncf_sf
-from reporter.fitting.roots import find_root
+from reporter.numerics.distributions import f_sf, ncf_sf
+from reporter.numerics.roots import find_root
 
 __all__ = [
     "AnovaEffectSizes",
@@ -175,7 +175,7 @@ def noncentral_f_sf(x: float, df1: float, df2: float, nc: float) -> float:
 
     Boost's complement behind ``scipy.stats.ncf.sf`` returns ``-cdf`` at ``nc == 0`` (scipy
     issue 26188), hence the switch to the central F survival function at and near zero
-    (:func:`reporter.fitting.distributions.f_sf` and ``ncf_sf``, the ``scipy.stats`` values
+    (:func:`reporter.numerics.distributions.f_sf` and ``ncf_sf``, the ``scipy.stats`` values
     computed without importing ``scipy.stats``).
     """
     if nc <= _TINY_NONCENTRALITY:
@@ -238,7 +238,7 @@ def _solve_decreasing(func, start: float, lower: float | None) -> float:
     """Root of a decreasing function known to be positive at ``start``, searching upwards.
 
     Expands the bracket by doubling the step until the function turns negative, then refines
-    with Brent's method (:func:`reporter.fitting.roots.find_root`). ``lower`` is a floor the search may reuse as
+    with Brent's method (:func:`reporter.numerics.roots.find_root`). ``lower`` is a floor the search may reuse as
     the bracket's left end.
     """
     lo = start if lower is None else lower

@@ -1,4 +1,4 @@
-"""Tests of reporter.fitting.effectsizes against published values, scipy and statsmodels."""
+"""Tests of reporter.inference.effectsizes against published values, scipy and statsmodels."""
 
 from __future__ import annotations
 
@@ -13,7 +13,7 @@ import statsmodels.stats.anova as sm_stats
 from scipy import optimize, stats
 
 from reporter.errors import FitError, PlanError
-from reporter.fitting.effectsizes import (
+from reporter.inference.effectsizes import (
     PARTIAL_ETA_SQUARED_MAPPING,
     describe_anova_effect_sizes,
     f_noncentrality_ci,

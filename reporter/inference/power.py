@@ -20,9 +20,9 @@ import math
 from dataclasses import dataclass
 
 from reporter.errors import FitError, PlanError
-from reporter.fitting.distributions import f_isf
-from reporter.fitting.effectsizes import noncentral_f_sf
-from reporter.fitting.roots import find_root
+from reporter.numerics.distributions import f_isf
+from reporter.inference.effectsizes import noncentral_f_sf
+from reporter.numerics.roots import find_root
 
 __all__ = [
     "CellSizePlan",

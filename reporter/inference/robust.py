@@ -18,10 +18,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from reporter.errors import FitError
-from reporter.fitting.distributions import chi2_sf, f_sf, t_cdf, t_isf, t_sf
+from reporter.numerics.distributions import chi2_sf, f_sf, t_cdf, t_isf, t_sf
 from reporter.intake.memory_rows import MemoryRows, average_ranks
 from reporter.intake.rows import RankSums
-from reporter.fitting.posthoc import (
+from reporter.inference.posthoc import (
     Alternative, ComparisonFamily, _check_alpha, pairwise_comparison, studentized_range_isf, studentized_range_sf,
     two_sided_family,
 )

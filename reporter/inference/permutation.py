@@ -45,8 +45,8 @@ import numpy as np
 
 from reporter.errors import FitError
 from reporter.intake.defaults import ANALYSIS_DEFAULTS
-from reporter.fitting.posthoc import _check_seed
-from reporter.fitting.robust import _cell_stats_from_rows, _reduce_rows, _rows
+from reporter.inference.posthoc import _check_seed
+from reporter.inference.robust import _cell_stats_from_rows, _reduce_rows, _rows
 
 __all__ = ["PERMUTATION_MAX_ROWS", "SEQUENTIAL_EXCEEDANCES", "TIME_BUDGET", "PermutationResult", "permutation_f_test"]
 

@@ -1,4 +1,4 @@
-"""Tests of reporter.fitting.posthoc against scipy.stats (tukey_hsd, dunnett), statsmodels OLS and
+"""Tests of reporter.inference.posthoc against scipy.stats (tukey_hsd, dunnett), statsmodels OLS and
 published PlantGrowth values."""
 
 from __future__ import annotations
@@ -12,7 +12,7 @@ import statsmodels.api as sm
 from scipy import stats
 
 from reporter.errors import FitError
-from reporter.fitting.posthoc import (
+from reporter.inference.posthoc import (
     dunnett, dunnett_critical, dunnett_exceedance, scheffe_contrast, scheffe_pairs, tukey_kramer,
 )
 

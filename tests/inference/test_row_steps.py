@@ -14,10 +14,10 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 
-from reporter.fitting import assumptions as A
-from reporter.fitting.analysis import fit_analysis, fit_analysis_on_rows
-from reporter.fitting.distributions import norm_ppf
-from reporter.fitting.permutation import _null_distribution, permutation_f_test
+from reporter.inference import assumptions as A
+from reporter.inference.analysis import fit_analysis, fit_analysis_on_rows
+from reporter.numerics.distributions import norm_ppf
+from reporter.inference.permutation import _null_distribution, permutation_f_test
 from reporter.intake.cells import describe_cells
 from reporter.intake.memory_rows import MemoryRows
 from reporter.model.design import Factor, build_design
@@ -141,7 +141,7 @@ def test_sequential_permutation_runs_to_the_end_when_p_is_small():
 
 def test_long_run_is_announced_before_it_goes_on(monkeypatch):
     """A run whose estimated time exceeds the budget is announced through ``notify`` first."""
-    import reporter.fitting.permutation as P
+    import reporter.inference.permutation as P
 
     monkeypatch.setattr(P, "TIME_BUDGET", 0.0)
     said = []

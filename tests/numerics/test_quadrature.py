@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from reporter.fitting.posthoc import studentized_range_isf, studentized_range_sf
-from reporter.fitting.quadrature import GAUSS, KRONROD, NODES, integrate
+from reporter.inference.posthoc import studentized_range_isf, studentized_range_sf
+from reporter.numerics.quadrature import GAUSS, KRONROD, NODES, integrate
 
 
 def test_kronrod_and_gauss_rules_are_exact_to_their_degree():

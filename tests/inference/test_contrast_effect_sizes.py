@@ -11,7 +11,7 @@ from scipy import optimize, special, stats
 
 import reporter
 from reporter.errors import FitError
-from reporter.fitting.effectsizes import standardized_contrast
+from reporter.inference.effectsizes import standardized_contrast
 from conftest import ONEWAY_DATA, ONEWAY_PLAN
 
 

@@ -1,4 +1,4 @@
-"""Tests of reporter.fitting.assumptions against scipy.stats (levene, shapiro) and statsmodels
+"""Tests of reporter.inference.assumptions against scipy.stats (levene, shapiro) and statsmodels
 (OLS influence, ProbPlot)."""
 
 from __future__ import annotations
@@ -12,7 +12,7 @@ import statsmodels.api as sm
 from scipy import stats
 
 from reporter.errors import FitError
-from reporter.fitting.assumptions import (
+from reporter.inference.assumptions import (
     _royston_shapiro_wilk,
     _shapiro_wilk_coefficients,
     brown_forsythe,

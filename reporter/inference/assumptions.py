@@ -22,8 +22,8 @@ import numpy as np
 from scipy import special
 
 from reporter.errors import FitError
-from reporter.fitting.distributions import f_sf, norm_cdf, norm_ppf
-from reporter.fitting.robust import _cell_stats_from_rows, _rows
+from reporter.numerics.distributions import f_sf, norm_cdf, norm_ppf
+from reporter.inference.robust import _cell_stats_from_rows, _rows
 from reporter.intake.cells import CellStats, describe_cells
 from reporter.intake.memory_rows import MemoryRows
 from reporter.intake.rows import FlaggedRows, RowAccess

@@ -1,4 +1,4 @@
-"""Tests of reporter.fitting.multiplicity against statsmodels.stats.multitest (reference library)."""
+"""Tests of reporter.inference.multiplicity against statsmodels.stats.multitest (reference library)."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import pytest
 import statsmodels.stats.multitest as multitest
 
 from reporter.errors import FitError, PlanError
-from reporter.fitting.multiplicity import adjust_p
+from reporter.inference.multiplicity import adjust_p
 
 
 # our method name -> statsmodels multipletests method name

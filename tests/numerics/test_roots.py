@@ -8,7 +8,7 @@ import pytest
 from scipy import optimize, special
 
 from reporter.errors import FitError
-from reporter.fitting.roots import find_root
+from reporter.numerics.roots import find_root
 
 CASES = [
     (lambda x: x**3 - 2 * x - 5, 2.0, 3.0),  # Wallis's example, root 2.0945514815...

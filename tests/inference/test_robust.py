@@ -1,4 +1,4 @@
-"""Tests of reporter.fitting.robust against scipy.stats, statsmodels and published PlantGrowth
+"""Tests of reporter.inference.robust against scipy.stats, statsmodels and published PlantGrowth
 values."""
 
 from __future__ import annotations
@@ -13,7 +13,7 @@ import statsmodels.stats.oneway as oneway
 from scipy import stats
 
 from reporter.errors import FitError
-from reporter.fitting.robust import (
+from reporter.inference.robust import (
     _average_ranks,
     games_howell,
     hc3_wald,

@@ -34,9 +34,9 @@ from typing import Literal
 import numpy as np
 
 from reporter.errors import FitError
-from reporter.fitting.distributions import f_isf, f_sf, t_cdf, t_isf, t_sf
-from reporter.fitting.quadrature import integrate
-from reporter.fitting.roots import find_root
+from reporter.numerics.distributions import f_isf, f_sf, t_cdf, t_isf, t_sf
+from reporter.numerics.quadrature import integrate
+from reporter.numerics.roots import find_root
 
 __all__ = [
     "Comparison",
@@ -334,7 +334,7 @@ def dunnett_exceedance(lam, df: float, c: float, two_sided: bool) -> float:
     -expm1(sum log1p(-q_i))), so small p values keep their relative accuracy. The inner integral
     over z runs on [-8.5, 8.5]; the outer one is over S written as its quantile at Phi(w), w
     standard normal on [-8.5, 8.5] (a smooth change of variable for every df); both are
-    adaptive Gauss–Kronrod (:mod:`reporter.fitting.quadrature`) with error estimates below 1e-11
+    adaptive Gauss–Kronrod (:mod:`reporter.numerics.quadrature`) with error estimates below 1e-11
     (each inner integral) and 1e-10 (the outer), so the probability is accurate to about 1e-10
     absolute (truncating z adds less than 2e-17).
     """

@@ -24,15 +24,15 @@ from fractions import Fraction
 import numpy as np
 
 from reporter.errors import FitError
-from reporter.fitting import assumptions as A
-from reporter.fitting import posthoc as P
-from reporter.fitting import robust as R
+from reporter.inference import assumptions as A
+from reporter.inference import posthoc as P
+from reporter.inference import robust as R
 from reporter.intake.cells import CellStats
-from reporter.fitting.effectsizes import AnovaEffectSizes, EffectSize, describe_anova_effect_sizes, standardized_contrast
+from reporter.inference.effectsizes import AnovaEffectSizes, EffectSize, describe_anova_effect_sizes, standardized_contrast
 from reporter.fitting.linear import ContrastTest, ModelFit, constant_part, fit_contrast, fit_model
-from reporter.fitting.permutation import (PERMUTATION_MAX_ROWS, SEQUENTIAL_EXCEEDANCES, PermutationResult,
+from reporter.inference.permutation import (PERMUTATION_MAX_ROWS, SEQUENTIAL_EXCEEDANCES, PermutationResult,
                                          permutation_f_test)
-from reporter.fitting.power import Sensitivity, describe_sensitivity
+from reporter.inference.power import Sensitivity, describe_sensitivity
 from reporter.intake.plan import level_key
 from reporter.errors import PlanError
 from reporter.model.hypotheses import compile_effect

@@ -13,13 +13,13 @@ from reporter.errors import FitError
 from reporter.fitting.anova import AnovaTable, fit_anova
 from reporter.intake.cells import CellStats, describe_cells
 from reporter.intake.numtext import spread_limits
-from reporter.fitting.distributions import t_ppf
-from reporter.fitting.inference import ROWS_UNAVAILABLE, HypothesisExtras, Inference, describe_inference
-from reporter.fitting.permutation import PERMUTATION_MAX_ROWS
+from reporter.numerics.distributions import t_ppf
+from reporter.inference.collect import ROWS_UNAVAILABLE, HypothesisExtras, Inference, describe_inference
+from reporter.inference.permutation import PERMUTATION_MAX_ROWS
 from reporter.intake.memory_rows import MemoryRows
 from reporter.intake.rows import CellPoints, RowAccess
 from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model
-from reporter.fitting.multiplicity import adjust_p
+from reporter.inference.multiplicity import adjust_p
 from reporter.fitting.rounding import RoundingBounds, bound_rounding
 from reporter.model.design import Design
 from reporter.model.hypotheses import Contrast
@@ -162,7 +162,7 @@ def fit_analysis(
     ``cells`` is the cell table (:class:`reporter.intake.cells.CellStats`); ``rows`` answers the
     row-level steps (:class:`reporter.intake.rows.RowAccess`), or is None when there are no rows
     (those steps are then skipped, saying ``rows_unavailable``). ``progress`` and ``notify``
-    govern what the permutation F says on stderr (see :mod:`reporter.fitting.permutation`).
+    govern what the permutation F says on stderr (see :mod:`reporter.inference.permutation`).
 
     p-values are adjusted within two families: the planned hypotheses (the confirmatory family)
     and, separately, the exploratory ones, each with ``correction``. The p that enters the
