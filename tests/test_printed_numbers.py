@@ -728,11 +728,6 @@ def test_robust_confirmatory_test_line_and_estimate(robust_oneway, name, first, 
     assert p_adj == pytest.approx(holm[[c[0] for c in ROBUST_CASES].index(name)], rel=1e-8)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "reporter/narrative/build.py result_sentence() and reading(): when the robust test is "
-    "confirmatory, the Results sentence prints the Welch t beside the classical (pooled-variance) "
-    "interval, and the Reading paragraph quotes the classical one-sided bound, while the estimate "
-    "bullet of the same hypothesis prints Welch's bound; reported to the lead"))
 @pytest.mark.parametrize("name, first, second, alternative", ROBUST_CASES, ids=["greater", "less"])
 def test_results_sentence_prints_the_confirmatory_interval(robust_oneway, name, first, second, alternative):
     """The Results sentence 'Welch–Satterthwaite test, t(df) = …, p = …, Holm-adjusted p = …;

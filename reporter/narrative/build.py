@@ -166,6 +166,16 @@ class _Builder:
         low, high = t.ci
         return N.stat_ci(float("-inf") if low is None else low, float("inf") if high is None else high, t.ci_level)
 
+    def confirm_ci(self, h) -> tuple[float | None, float | None]:
+        """The interval of the confirmatory test: Welch's when the robust t is confirmatory."""
+        if self.robust_confirmatory(h) and h.extras.robust.ci is not None:
+            return h.extras.robust.ci
+        return h.test.ci
+
+    def confirm_ci_stat(self, h) -> N.Stat:
+        low, high = self.confirm_ci(h)
+        return N.stat_ci(float("-inf") if low is None else low, float("inf") if high is None else high, h.test.ci_level)
+
     def decision_p(self, h) -> float:
         return h.p_adjusted if h.p_adjusted is not None else h.test.p
 
@@ -595,12 +605,8 @@ class _Builder:
         else:
             items = [(runs_of("Test"), runs_of(self.test_stat(t), ", ", self.p_text(h)))]
         if t.test == "t":
-            ci = self.ci_stat(t)
-            which = ""
-            if self.robust_confirmatory(h) and h.extras.robust.ci is not None:
-                lo, hi = h.extras.robust.ci
-                ci = N.stat_ci(float("-inf") if lo is None else lo, float("inf") if hi is None else hi, t.ci_level)
-                which = ", Welch"
+            ci = self.confirm_ci_stat(h)
+            which = ", Welch" if self.robust_confirmatory(h) and h.extras.robust.ci is not None else ""
             items.append((runs_of("Estimate"), runs_of(_num(t.estimate), ", ", ci,
                                                        f" (one-sided bound{which})" if t.ci_sides == 1 else
                                                        (f" ({which[2:]})" if which else ""))))
@@ -739,7 +745,7 @@ class _Builder:
                     f"clear difference in either direction. This does not show the means are equal: the "
                     f"confidence interval still includes differences of either sign.{explor}")
         if sig:
-            bound = t.ci[0] if c.alternative == "greater" else t.ci[1]
+            bound = self.confirm_ci(h)[0 if c.alternative == "greater" else 1]
             side = "lower" if c.alternative == "greater" else "upper"
             return (f"Reading: the estimate, {est}, lies in the stated direction, and the one-sided test rejects the "
                     f"null hypothesis H0: {_unquote(c.null_text())}, at α = {alpha} ({adj} p). The one-sided "
@@ -855,7 +861,7 @@ class _Builder:
             claim = "the directional hypothesis was supported" if sig else "the directional hypothesis was not supported"
         parts = [N.text(f"{lead}{claim}, "), self.confirm_stat(h), N.text(", "), self.p_text(h)]
         if t.test == "t":
-            parts += [N.text("; estimate "), N.text(_num(t.estimate)), N.text(", "), self.ci_stat(t)]
+            parts += [N.text("; estimate "), N.text(_num(t.estimate)), N.text(", "), self.confirm_ci_stat(h)]
         es = self.effect_size_runs(h)
         if es:
             parts += [N.text("; "), es]

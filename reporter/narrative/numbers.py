@@ -220,11 +220,11 @@ def _quantize(exact: Decimal, decimals: int) -> Decimal:
     with localcontext() as context:
         context.prec = max(28, exact.adjusted() + decimals + 3)
         rounded = exact.quantize(Decimal(1).scaleb(-decimals), rounding=ROUND_HALF_UP)
-    return abs(rounded) if rounded == 0 else rounded
+    return rounded.copy_abs() if rounded == 0 else rounded
 
 
 def _write(rounded: Decimal, *, leading_zero: bool, grouping: bool, minus: str) -> str:
-    body = format(abs(rounded), ",f" if grouping else "f")
+    body = format(rounded.copy_abs(), ",f" if grouping else "f")
     if not leading_zero and body.startswith("0."):
         body = body[1:]
     return minus + body if rounded < 0 else body
@@ -285,7 +285,7 @@ def format_bounded(
     if exact is None:
         return missing
     rounded = _quantize(exact, decimals)
-    if abs(rounded) > 1:
+    if rounded.copy_abs() > 1:
         raise ValueError(
             f"format_bounded is for quantities between -1 and 1 (got {value!r}); "
             "use format_number for quantities that can exceed 1."

@@ -86,11 +86,6 @@ def test_large_numbers_keep_every_decimal():
     assert format_number(-123456789012345678901.5, 4) == f"{M}123,456,789,012,345,680,000.0000"
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "reporter/narrative/numbers.py _write(): abs(rounded) rounds to the default decimal context "
-    "(28 digits unless the caller raised it), so a number of 29 or more digits loses its "
-    "decimals: format_number(1.5e26) prints '150,000,000,000,000,000,000,000,000.0', not '….00', "
-    "and the printed text depends on the caller's decimal context; reported to the lead"))
 @pytest.mark.parametrize("value, decimals, expected", [
     (1.5e26, 2, "150,000,000,000,000,000,000,000,000.00"),
     (1e25, 6, "10,000,000,000,000,000,000,000,000.000000"),
