@@ -943,17 +943,31 @@ class DuckRows:
             return _moments(self._con, f"abs(d - {_doubles(centre)}[cell + 1])", "kept", self.k)
 
     def rank_sums(self) -> RankSums:
-        rows = self._q(
-            "WITH g AS (SELECT d, cell, count(*) AS m FROM kept GROUP BY d, cell), "
-            "v AS (SELECT d, sum(m) AS t FROM g GROUP BY d), "
-            "r AS (SELECT d, t, sum(t) OVER (ORDER BY d ROWS UNBOUNDED PRECEDING) - t AS below FROM v) "
-            "SELECT g.cell, sum(CAST(g.m AS HUGEINT) * (2 * CAST(r.below AS HUGEINT) + CAST(r.t AS HUGEINT) + 1)) "
-            "FROM g JOIN r USING (d) GROUP BY g.cell"
-        )
-        tie = self._q("SELECT sum(t * t * t - t) FROM (SELECT CAST(count(*) AS HUGEINT) AS t FROM kept GROUP BY d)")[0][0]
+        """Rank sums with mid-ranks for ties, in exact integers (twice each sum): a value shared
+        by t rows that has ``below`` rows under it gets rank (2·below + t + 1)/2; the tie term
+        is Σ(t³ − t). Up to :data:`_WIDE_CELLS` cells this is one hash aggregate of the rows by
+        value (with a count per cell) and one running sum over the distinct values."""
+        if self.k <= _WIDE_CELLS:
+            counts = ", ".join(f"count(*) FILTER (WHERE cell = {j}) AS c{j}" for j in range(self.k))
+            sums = ", ".join(f"sum(CAST(c{j} AS HUGEINT) * (2 * CAST(below AS HUGEINT) + t + 1))" for j in range(self.k))
+            got = self._q(
+                f"WITH v AS (SELECT d, count(*) AS t, {counts} FROM kept GROUP BY d), "
+                "r AS (SELECT *, sum(t) OVER (ORDER BY d ROWS UNBOUNDED PRECEDING) - t AS below FROM v) "
+                f"SELECT sum(CAST(t AS HUGEINT) * t * t - t), {sums} FROM r"
+            )[0]
+            tie, rows = got[0], list(enumerate(got[1:]))
+        else:
+            rows = self._q(
+                "WITH g AS (SELECT d, cell, count(*) AS m FROM kept GROUP BY d, cell), "
+                "v AS (SELECT d, sum(m) AS t FROM g GROUP BY d), "
+                "r AS (SELECT d, t, sum(t) OVER (ORDER BY d ROWS UNBOUNDED PRECEDING) - t AS below FROM v) "
+                "SELECT g.cell, sum(CAST(g.m AS HUGEINT) * (2 * CAST(r.below AS HUGEINT) + CAST(r.t AS HUGEINT) + 1)) "
+                "FROM g JOIN r USING (d) GROUP BY g.cell"
+            )
+            tie = self._q("SELECT sum(t * t * t - t) FROM (SELECT CAST(count(*) AS HUGEINT) AS t FROM kept GROUP BY d)")[0][0]
         rank_sum = np.zeros(self.k)
         for c, twice in rows:
-            rank_sum[c] = float(Fraction(int(twice), 2))
+            rank_sum[c] = float(Fraction(int(twice or 0), 2))
         return RankSums(rank_sum=rank_sum, tie_term=float(int(tie or 0)), n=self.n)
 
     def _order_stats(self, counts: dict[int, int], source: str, positions: dict[int, list[int]]) -> dict[tuple[int, int], float]:
@@ -1106,6 +1120,7 @@ class DuckRows:
 _M32 = 4294967296
 _BUCKETS = 1 << 16  # histogram buckets per cell when locating order statistics
 _FETCH = 1_000_000  # values fetched into Python at most per refinement step
+_WIDE_CELLS = 64  # at most this many cells: rank sums from one aggregate with a count column per cell
 
 
 def _fmix32_sql(table: str, seed: int) -> str:
