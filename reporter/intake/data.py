@@ -557,20 +557,22 @@ def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of, n
 # Parquet
 
 
-def _from_parquet(plan: Plan, path: Path) -> Dataset:
-    try:
-        import pyarrow as pa
-        import pyarrow.compute as pc
-        import pyarrow.parquet as pq
-    except ImportError:
-        raise DataError(
-            f"{path}: reading Parquet needs pyarrow. Install it with: pip install 'anova-report[parquet]'"
-        ) from None
+def open_parquet(path: Path):
+    """The Parquet file at ``path`` (pyarrow) and the SHA-256 of its bytes."""
+    import pyarrow.parquet as pq
+
     sha = hash_file(path)
     try:
-        pf = pq.ParquetFile(path)
+        return pq.ParquetFile(path), sha
     except Exception as exc:  # pyarrow raises several types for a damaged file
         raise DataError(f"{path}: is not a readable Parquet file ({exc}).") from None
+
+
+def _from_parquet(plan: Plan, path: Path) -> Dataset:
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    pf, sha = open_parquet(path)
     columns = pf.schema_arrow.names
     needed = _needed_columns(plan, columns, str(path))
     for name in dict.fromkeys(needed):

@@ -47,7 +47,7 @@ from reporter.errors import DataError
 from reporter.intake.cells import CellStats
 from reporter.intake import defaults as D
 from reporter.intake import numtext
-from reporter.intake.data import (Dataset, Exclusion, _match_levels, _parse_text, _read_text_file, check_widths, hash_file,
+from reporter.intake.data import (Dataset, Exclusion, _match_levels, _parse_text, _read_text_file, check_widths, open_parquet,
                                   require_file)
 from reporter.intake.numtext import spread_limits
 from reporter.intake.plan import Plan
@@ -196,18 +196,9 @@ def _require_columns(plan: Plan, columns: Sequence[str], source: str) -> None:
 
 
 def _parquet_columns(plan: Plan, path: Path):
-    try:
-        import pyarrow as pa
-        import pyarrow.parquet as pq
-    except ImportError:
-        raise DataError(
-            f"{path}: reading Parquet needs pyarrow. Install it with: pip install 'anova-report[parquet]'"
-        ) from None
-    sha = hash_file(path)
-    try:
-        pf = pq.ParquetFile(path)
-    except Exception as exc:  # pyarrow raises several types for a damaged file
-        raise DataError(f"{path}: is not a readable Parquet file ({exc}).") from None
+    import pyarrow as pa
+
+    pf, sha = open_parquet(path)
     _require_columns(plan, pf.schema_arrow.names, str(path))
     wanted = _wanted(plan)
     table = pf.read(columns=wanted)
