@@ -557,6 +557,20 @@ def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of, n
 # Parquet
 
 
+def rowless_dataset(plan: Plan, *, dropped_outcome_levels=None, **fields) -> Dataset:
+    """A Dataset whose rows are not held in memory (out-of-core or cell summaries): empty,
+    read-only row arrays; the cell table and any row access come in ``fields``."""
+    nf = len(plan.factors)
+    y = np.empty(0, dtype=np.float64)
+    levels = np.empty((0, nf), dtype=np.int64)
+    rows = np.empty(0, dtype=np.int64)
+    dropped = levels if dropped_outcome_levels is None else dropped_outcome_levels
+    for arr in (y, levels, rows, dropped):
+        arr.setflags(write=False)
+    return Dataset(outcome=plan.data.outcome, factor_names=tuple(f.name for f in plan.factors), y=y,
+                   levels=levels, rows=rows, dropped_outcome_levels=dropped, **fields)
+
+
 def open_parquet(path: Path):
     """The Parquet file at ``path`` (pyarrow) and the SHA-256 of its bytes."""
     import pyarrow.parquet as pq

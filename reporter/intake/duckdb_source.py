@@ -446,7 +446,7 @@ def _head_rows(con, path: Path, scan_sql: str, text: bool, delimiter: str, idx: 
 
 def load_out_of_core(plan, quiet: bool | None = None):
     """Read the plan's data file(s) with DuckDB; see the module docstring."""
-    from reporter.intake.data import Dataset, Exclusion, _needed_columns, require_file
+    from reporter.intake.data import Exclusion, _needed_columns, require_file, rowless_dataset
 
     quiet = _quiet() if quiet is None else quiet
     path = plan.data.path
@@ -710,23 +710,14 @@ def load_out_of_core(plan, quiet: bool | None = None):
         raise
 
     sha = digests[0][0] if len(files) == 1 else _glob_digest(files, digests)
-    empty_y = np.empty(0, dtype=np.float64)
-    empty_levels = np.empty((0, nf), dtype=np.int64)
-    empty_rows = np.empty(0, dtype=np.int64)
-    for arr in (empty_y, empty_levels, empty_rows, dropped_levels):
-        arr.setflags(write=False)
-    return Dataset(
+    return rowless_dataset(
+        plan,
         source=source,
         sha256=sha,
         format=fmt,
-        outcome=plan.data.outcome,
-        factor_names=tuple(f.name for f in plan.factors),
-        y=empty_y,
         pivot=pivot,
         pivot_text=pivot_text,
         exact_decimal=exact,
-        levels=empty_levels,
-        rows=empty_rows,
         n_read=n_read,
         exclusions=tuple(exclusions),
         dropped_outcome_levels=dropped_levels,

@@ -48,7 +48,7 @@ from reporter.intake.cells import CellStats
 from reporter.intake import defaults as D
 from reporter.intake import numtext
 from reporter.intake.data import (Dataset, Exclusion, _match_levels, _parse_text, _read_text_file, check_widths, open_parquet,
-                                  require_file)
+                                  require_file, rowless_dataset)
 from reporter.intake.numtext import spread_limits
 from reporter.intake.plan import Plan
 
@@ -399,25 +399,16 @@ def _build(plan: Plan, source: str, sha, fmt: str, cols, n_rows: int, word: str,
         listed = "; ".join(f'"{e}"' for f in plan.factors for e in f.exclude)
         exclusions = (Exclusion(reason="cell of a level excluded by the plan", count=int(idx.size),
                                 rows=tuple(int(rows[i]) for i in idx[:20]), detail=f"excluded: {listed}"),)
-    empty = np.empty(0)
-    empty.setflags(write=False)
-    levels = np.empty((0, len(plan.factors)), dtype=np.int64)
-    levels.setflags(write=False)
-    return Dataset(
+    return rowless_dataset(
+        plan,
         source=source,
         sha256=sha,
         format=fmt,
-        outcome=plan.data.outcome,
-        factor_names=tuple(f.name for f in plan.factors),
-        y=empty,
         pivot=float(pivot_val),
         pivot_text=pivot_text,
         exact_decimal=exact,
-        levels=levels,
-        rows=np.empty(0, dtype=np.int64),
         n_read=n_rows,
         exclusions=exclusions,
-        dropped_outcome_levels=levels,
         cells=cells,
         row_access=None,
         summary=info,
