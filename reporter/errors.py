@@ -36,3 +36,8 @@ class RenderError(ReporterError):
 
 class OptionError(ReporterError):
     """A command-line option is invalid."""
+
+
+class FittedModelError(ReporterError):
+    """A model fitted elsewhere cannot become a report as it stands (not an ordinary least-squares
+    fit of categorical factors with every interaction, weights, no formula, ...)."""
