@@ -41,7 +41,7 @@ ROOT = Path(__file__).resolve().parents[1]
 DOCS = ROOT / "docs"
 DEMO = ROOT / "demo_project"
 DOC_FILES = sorted(DOCS.glob("*.md"))
-DOC_NAMES = ("plan-reference.md", "hypotheses.md", "statistics.md", "results-json.md", "faq.md")
+DOC_NAMES = ("tutorial.md", "plan-reference.md", "hypotheses.md", "statistics.md", "results-json.md", "faq.md")
 
 # ---------------------------------------------------------------------------------------------
 # Reading the Markdown
@@ -193,7 +193,7 @@ def test_toml_block(path: Path, index: int, tmp_path: Path):
         C, h = _expected_contrast(follow, design)
         assert [list(r) for r in contrasts[0].weights] == C, f"{where}: the contrast shown differs from the compiled one"
         assert list(contrasts[0].rhs) == h
-    if "title" in doc and (DEMO / doc["data"]["path"]).is_file():
+    if "title" in doc and "data" in doc and (DEMO / doc["data"]["path"]).is_file():
         _run_with_demo_data(doc, block, path, tmp_path)
 
 
@@ -654,3 +654,93 @@ def test_inline_statements_parse_and_compile():
                 generic = re.fullmatch(r"[^']*'([a-zA-Z])' is not a level of any factor.*", str(exc).splitlines()[0])
                 refused = re.search(r"chains more than one|mixes > or <|compares a mean with itself", str(exc))
                 assert generic or refused, f"{where}: {exc}"
+
+
+def test_plan_reference_defaults_match_a_plan_written_back_out():
+    """reporter.intake.canonical.plan_mapping fills in every default of a parsed plan: each key it
+    writes that the plan did not give has the documented default."""
+    from reporter.intake.canonical import plan_mapping
+
+    docs = documented()
+    summary = {**MINIMAL, "data": {**MINIMAL["data"], "layout": "cell-summaries"}}
+    for given in ({**MINIMAL, "hypotheses": [{"name": "h", "means": "a > b"}]}, summary):
+        mapping = plan_mapping(P.plan_from_dict(given))
+        for table, content in mapping.items():
+            if not isinstance(content, (dict, list)):
+                assert table in docs[""], f"plan_mapping writes '{table}', which plan-reference.md does not list"
+                continue
+            if not content:
+                continue
+            item = content[0] if isinstance(content, list) else content
+            stated = given.get(table, [{}])[0] if isinstance(content, list) else given.get(table, {})
+            for key, value in item.items():
+                assert key in docs[table], f"plan_mapping writes [{table}] {key}, which plan-reference.md does not list"
+                if key in stated:
+                    continue
+                shown = docs[table][key][2]
+                if shown == "not set":  # a value derived from other keys (spread_column from spread)
+                    continue
+                documented_value = tomllib.loads(f"v = {shown.strip('`')}")["v"]
+                assert documented_value == value, f"[{table}] {key}: documented {documented_value!r}, plan {value!r}"
+
+
+# ---------------------------------------------------------------------------------------------
+# Shell commands and their outputs
+
+import subprocess  # noqa: E402
+import sys  # noqa: E402
+
+
+def _shell_session(path: Path, folder: Path) -> dict[str, str]:
+    """Run every ``sh`` block of a page in order, from a folder holding a copy of demo_project/,
+    with this environment's ``anova-report`` and ``python3`` first on PATH; return each command's
+    output (stdout and stderr together)."""
+    shutil.copytree(DEMO, folder / "demo_project")
+    env = {**os.environ, "PATH": f"{Path(sys.executable).parent}{os.pathsep}{os.environ.get('PATH', '')}"}
+    outputs: dict[str, str] = {}
+    for block in fenced_blocks(path):
+        if block.info != "sh" or (block.marker or "").startswith("not run"):
+            continue
+        for command in block.text.splitlines():
+            if not command.strip():
+                continue
+            done = subprocess.run(["bash", "-c", command], cwd=folder, env=env, capture_output=True, text=True,
+                                  timeout=600)
+            assert done.returncode == 0, f"{path.name}: '{command}' exited {done.returncode}: {done.stderr}"
+            outputs[command] = done.stdout + done.stderr
+    return outputs
+
+
+def _shown_lines_in_order(shown: str, actual: str, where: str) -> None:
+    """Every line shown (a line '...' skips) appears in the actual text, in the same order."""
+    lines = actual.splitlines()
+    at = 0
+    for want in shown.splitlines():
+        if want.strip() == "...":
+            continue
+        while at < len(lines) and lines[at].rstrip() != want.rstrip():
+            at += 1
+        assert at < len(lines), f"{where}: the line {want!r} is not in the output (or not in this order)"
+        at += 1
+
+
+def _pages_with_shell():
+    return [p for p in DOC_FILES if any(b.info == "sh" for b in fenced_blocks(p))]
+
+
+@pytest.mark.parametrize("path", _pages_with_shell(), ids=lambda p: p.name)
+def test_shell_commands_run_and_outputs_match(path: Path, tmp_path: Path):
+    outputs = _shell_session(path, tmp_path)
+    for block in fenced_blocks(path):
+        if block.marker is None or block.info == "sh":
+            continue
+        where = f"{path.name}, line {block.line}"
+        kind, _, target = block.marker.partition(":")
+        target = target.strip()
+        if kind == "output of":
+            assert target in outputs, f"{where}: the command '{target}' is not run on the page"
+            _shown_lines_in_order(block.text, outputs[target], where)
+        elif kind == "excerpt of":
+            _shown_lines_in_order(block.text, (tmp_path / target).read_text(encoding="utf-8"), where)
+        else:
+            assert kind in ("refused",), f"{where}: unknown marker <!-- {block.marker} -->"
