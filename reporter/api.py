@@ -47,10 +47,12 @@ class Prepared:
         return tuple(i for i, n in enumerate(self.counts) if n == 0)
 
 
-def prepare(plan: Plan | str | Path, data: Any = None) -> Prepared:
+def prepare(plan: Plan | str | Path, data: Any = None, *, require_estimable: bool = True) -> Prepared:
     """Read (or take) the plan and the data, build the design and compile every hypothesis.
 
-    ``data`` may be a pandas DataFrame; by default the plan's data file is read.
+    ``data`` may be a pandas DataFrame; by default the plan's data file is read. With
+    ``require_estimable=False`` a hypothesis that needs an empty cell is compiled all the same
+    (``anova-report check`` reports it as a failed data check instead of stopping).
     """
     if not isinstance(plan, Plan):
         plan = load_plan(plan)
@@ -76,7 +78,7 @@ def prepare(plan: Plan | str | Path, data: Any = None) -> Prepared:
         cells = describe_cells(dataset.y, cell, design.k, dataset.pivot, pivot_exact)
         rows = MemoryRows(dataset.y, cell, design.k, dataset.rows)
     counts = tuple(int(c) for c in cells.n)
-    contrasts = compile_hypotheses(plan, design, counts)
+    contrasts = compile_hypotheses(plan, design, counts if require_estimable else None)
     return Prepared(plan, dataset, design, cell, counts, contrasts, cells, rows)
 
 

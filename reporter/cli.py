@@ -1,10 +1,14 @@
-"""The ``anova-report`` command: ``check`` and ``run``.
+"""The ``anova-report`` command: ``check`` and ``run`` (one :class:`Command` each in :data:`COMMANDS`).
+
+Results go to stdout; messages (progress, notes, warnings, errors) go to stderr, filtered by
+``--quiet`` and ``--verbose`` (:class:`Messages`).
 
 Exit codes (:data:`EXIT_CODES`; the same list is in ``--help``, README.md and DEVELOPERS.md):
 
 * 0: done.
-* 1: reserved for a check that finds a difference (a planned ``verify`` command, not yet
-  available); no command returns it yet.
+* 1: a check failed: ``check`` read the plan and the data but the data fail a data check
+  (:mod:`reporter.checks` lists the checks and what each one means); every failed check is
+  named on stderr.
 * 2: bad input (plan, data, options or output folder), with one clear message and no
   traceback unless ``--debug``.
 * 3: internal error: a one-line message naming the file that holds the traceback (a new file
@@ -28,8 +32,11 @@ import os
 import signal
 import sys
 import tempfile
+import textwrap
 import threading
 import traceback
+from dataclasses import dataclass
+from typing import Callable
 
 from reporter.errors import OptionError, ReporterError
 from reporter.render.visible import show_controls
@@ -42,7 +49,7 @@ EXIT_BROKEN_PIPE = 128 + 13
 #: Every exit code with its meaning, as --help prints it.
 EXIT_CODES = (
     (0, "done"),
-    (1, "reserved for a check that finds a difference (a 'verify' command, not yet available)"),
+    (1, "a check failed: 'check' found data that fail a data check (each failure is named on stderr)"),
     (2, "bad input: plan, data, options or output folder"),
     (3, "internal error (the message names the file holding the traceback)"),
     (130, "stopped by SIGINT (Ctrl-C)"),
@@ -58,51 +65,98 @@ class _Parser(argparse.ArgumentParser):
         raise OptionError(f"{message}. See '{self.prog} --help'.")
 
 
+class _Help(argparse.HelpFormatter):
+    """Wraps prose paragraphs; keeps lines that start with two spaces (the examples) as written."""
+
+    def _fill_text(self, text, width, indent):
+        out = []
+        for line in text.splitlines():
+            if line.startswith("  ") or not line.strip():
+                out.append(indent + line)
+            else:
+                out.append(textwrap.fill(line, width, initial_indent=indent, subsequent_indent=indent))
+        return "\n".join(out)
+
+
+class Messages:
+    """What a command says on stderr, by level: ``quiet`` (errors and failed checks only),
+    normal (adds notes, warnings and progress) or ``verbose`` (adds each step). Results go to
+    stdout and never pass through here."""
+
+    def __init__(self, quiet: bool = False, verbose: bool = False):
+        self.level = 0 if quiet else (2 if verbose else 1)
+
+    @property
+    def quiet(self) -> bool:
+        return self.level == 0
+
+    def note(self, text: str) -> None:
+        if self.level >= 1:
+            _say(text)
+
+    def warn(self, text: str) -> None:
+        if self.level >= 1:
+            _say(f"warning: {text}")
+
+    def detail(self, text: str) -> None:
+        if self.level >= 2:
+            _say(text)
+
+    def failed(self, text: str) -> None:
+        _say(text)
+
+
+@dataclass(frozen=True)
+class Command:
+    """One subcommand: how it is listed and documented, its own arguments, and what it runs.
+
+    Every command also gets ``--quiet``, ``--verbose`` and ``--debug``; ``run(args)`` returns
+    the exit code and finds the stderr channel in ``args.messages`` (a :class:`Messages`).
+    To add a command, write its two functions and add one ``Command(...)`` to :data:`COMMANDS`.
+    """
+
+    name: str
+    summary: str
+    description: str
+    examples: tuple[str, ...]
+    arguments: Callable[[argparse.ArgumentParser], None]
+    run: Callable[[argparse.Namespace], int]
+    notes: str = ""
+
+
 def _parser() -> argparse.ArgumentParser:
     p = _Parser(
         prog="anova-report",
         description=(
             "Turn a plan file (TOML) and a data file into a checkable ANOVA report: design matrix, "
-            "contrasts, tests, effect sizes, prose and provenance."
+            "contrasts, tests, effect sizes, prose and provenance. Results go to standard output, "
+            "messages (progress, notes, warnings, errors) to standard error."
         ),
-        epilog="Exit codes: " + "; ".join(f"{code} {what}" for code, what in EXIT_CODES)
-        + ". A run that is stopped leaves the files in --out as they were.",
+        epilog="examples:\n  anova-report check demo_project/oneway.toml\n"
+        "  anova-report run demo_project/oneway.toml --out report --format html,pdf\n\n"
+        "Exit codes:\n" + "\n".join(f"  {code:>3}  {what}" for code, what in EXIT_CODES)
+        + "\nA run that is stopped leaves the files in --out as they were.",
+        formatter_class=_Help,
     )
     p.add_argument("--debug", action="store_true", help="show the full traceback of any error")
     p.add_argument("--version", action="version", version=f"anova-report {_version()}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-
-    c = sub.add_parser(
-        "check",
-        help="validate a plan and its data; show cells, design matrix, β meanings and contrasts (writes nothing)",
-        description="Validate PLAN and its data file and print what the analysis will do: the cells and "
-        "their n, the design matrix, what each coefficient means, and every hypothesis compiled to "
-        "contrasts over the cell means and over the coefficients. Writes nothing.",
-        epilog="Example: anova-report check demo_project/factorial.toml",
-    )
-    c.add_argument("plan", metavar="PLAN", help="the plan file (.toml)")
-    c.add_argument("--debug", action="store_true", help=argparse.SUPPRESS)
-
-    r = sub.add_parser(
-        "run",
-        help="fit the plan's model and write the report",
-        description="Fit PLAN to its data and write the requested report files into --out: "
-        "report.html, report.pdf (PDF/A-3b with the plan and results attached), report.md, results.json. "
-        "The folder is checked before the fit; the files are replaced all together or not at all, "
-        "also when the run is stopped by Ctrl-C (exit 130) or SIGTERM (exit 143).",
-        epilog="Example: anova-report run demo_project/oneway.toml --out report --format html,pdf. "
-        "Set SOURCE_DATE_EPOCH for byte-identical reruns.",
-    )
-    r.add_argument("plan", metavar="PLAN", help="the plan file (.toml)")
-    r.add_argument("--out", metavar="DIR", default="anova-report-out", help="output folder (default: %(default)s)")
-    r.add_argument(
-        "--format",
-        metavar="LIST",
-        default="html,json",
-        help="comma-separated formats among json, html, pdf, md (default: %(default)s)",
-    )
-    r.add_argument("--quiet", action="store_true", help="print no progress or notices on stderr, only errors")
-    r.add_argument("--debug", action="store_true", help=argparse.SUPPRESS)
+    for cmd in COMMANDS:
+        examples = "\n".join(f"  {e}" for e in cmd.examples)
+        c = sub.add_parser(
+            cmd.name,
+            help=cmd.summary,
+            description=cmd.description,
+            epilog=f"example{'s' if len(cmd.examples) > 1 else ''}:\n{examples}"
+            + (f"\n\n{cmd.notes}" if cmd.notes else ""),
+            formatter_class=_Help,
+        )
+        cmd.arguments(c)
+        talk = c.add_mutually_exclusive_group()
+        talk.add_argument("-q", "--quiet", action="store_true", help="print nothing on stderr but errors and failed checks")
+        talk.add_argument("-v", "--verbose", action="store_true", help="also print each step on stderr")
+        c.add_argument("--debug", action="store_true", help=argparse.SUPPRESS)
+        c.set_defaults(handler=cmd.run)
     return p
 
 
@@ -203,25 +257,85 @@ def _quiet_stdout() -> None:
         os.close(devnull)
 
 
+def _plan_argument(p: argparse.ArgumentParser) -> None:
+    p.add_argument("plan", metavar="PLAN", help="the plan file (.toml)")
+
+
 def _cmd_check(args) -> int:
     from reporter.api import prepare
+    from reporter.checks import data_checks, failed
     from reporter.render.console import render_check
 
-    prep = prepare(args.plan)
-    print(render_check(prep))
-    return 0
+    say = args.messages
+    prep = prepare(args.plan, require_estimable=False)
+    _describe_inputs(prep, say)
+    findings = data_checks(prep)
+    print(render_check(prep, findings))
+    for f in findings:
+        if f.status == "note":
+            say.warn(f"{f.check}: {f.message}")
+        elif f.status == "passed":
+            say.detail(f"check passed: {f.check}: {f.message}")
+    bad = failed(findings)
+    for f in bad:
+        say.failed(f"check failed: {f.check}: {f.message}")
+    if bad:
+        say.failed(f"{len(bad)} data check(s) failed; 'anova-report run' would refuse these data.")
+        return EXIT_CHECK_FAILED
+    return EXIT_OK
+
+
+def _describe_inputs(prep, say: Messages) -> None:
+    say.detail(f"plan: {prep.plan.source or '(built in Python)'}")
+    d = prep.data
+    say.detail(f"data: {d.source} ({d.format}, read {d.reader}): {d.n_read} rows read, {d.n} analysed, "
+               f"{prep.design.k} cells")
+
+
+def _run_arguments(r: argparse.ArgumentParser) -> None:
+    _plan_argument(r)
+    r.add_argument("--out", metavar="DIR", default="anova-report-out", help="output folder (default: %(default)s)")
+    r.add_argument(
+        "--format",
+        metavar="LIST",
+        default="html,json",
+        help="comma-separated formats among json, html, pdf, md (default: %(default)s)",
+    )
+
+
+@contextlib.contextmanager
+def _quiet_readers(quiet: bool):
+    """Tell the out-of-core reader (reporter.intake.duckdb_source) to show no progress bar,
+    for this command only."""
+    key = "ANOVA_REPORT_QUIET"
+    before = os.environ.get(key)
+    if quiet:
+        os.environ[key] = "1"
+    try:
+        yield
+    finally:
+        if quiet:
+            if before is None:
+                os.environ.pop(key, None)
+            else:
+                os.environ[key] = before
 
 
 def _cmd_run(args) -> int:
     formats = _formats(args.format)
+    say = args.messages
     try:
         from reporter.api import prepare
-        from reporter.run import write_outputs
+        from reporter.run import analyse, check_out_dir, write_files
 
-        if args.quiet:  # also silences the out-of-core reader's progress bar (duckdb_source)
-            os.environ["ANOVA_REPORT_QUIET"] = "1"
-        prep = prepare(args.plan)
-        written = write_outputs(prep, args.out, formats, quiet=args.quiet)
+        with _quiet_readers(say.quiet):
+            prep = prepare(args.plan)
+            _describe_inputs(prep, say)
+            check_out_dir(args.out, prep, formats)  # before fitting: fail fast
+            say.detail("fitting the model and every test")
+            analysis = analyse(prep, quiet=say.quiet)
+            say.detail(f"writing {', '.join(formats)} into {show_controls(str(args.out))}")
+            written = write_files(prep, analysis, args.out, formats)
     except KeyboardInterrupt as exc:
         if not getattr(exc, "__notes__", None):
             exc.add_note("no file was written")
@@ -229,6 +343,38 @@ def _cmd_run(args) -> int:
     for path in written:
         print(show_controls(f"wrote {path}"))
     return 0
+
+
+#: The subcommands, in the order --help lists them.
+COMMANDS: tuple[Command, ...] = (
+    Command(
+        name="check",
+        summary="validate a plan and its data; show cells, design matrix, β meanings, contrasts and data checks (writes nothing)",
+        description="Validate PLAN and its data file and print what the analysis will do: the cells and "
+        "their n, the design matrix, what each coefficient means, every hypothesis compiled to "
+        "contrasts over the cell means and over the coefficients, and the data checks. Writes nothing. "
+        "Exit code 1 when the plan and data are readable but the data fail a check (the model cannot be "
+        "fitted, or a planned hypothesis needs an empty cell); each failed check is named on stderr.",
+        examples=("anova-report check demo_project/factorial.toml",
+                  "anova-report check demo_project/oneway.toml --quiet > checked.txt"),
+        arguments=_plan_argument,
+        run=lambda args: _cmd_check(args),  # looked up when called (tests replace it)
+    ),
+    Command(
+        name="run",
+        summary="fit the plan's model and write the report",
+        description="Fit PLAN to its data and write the requested report files into --out: "
+        "report.html, report.pdf (PDF/A-3b with the plan and results attached), report.md, results.json. "
+        "The folder is checked before the fit; the files are replaced all together or not at all, "
+        "also when the run is stopped by Ctrl-C (exit 130) or SIGTERM (exit 143). The paths written "
+        "are printed on stdout.",
+        examples=("anova-report run demo_project/oneway.toml --out report --format html,pdf",
+                  "SOURCE_DATE_EPOCH=0 anova-report run demo_project/factorial.toml --out report --quiet"),
+        notes="Set SOURCE_DATE_EPOCH for byte-identical reruns.",
+        arguments=_run_arguments,
+        run=lambda args: _cmd_run(args),
+    ),
+)
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -246,7 +392,8 @@ def main(argv: list[str] | None = None) -> int:
                 _parser().print_help()
                 code = EXIT_BAD_INPUT
             else:
-                code = {"check": _cmd_check, "run": _cmd_run}[args.command](args)
+                args.messages = Messages(args.quiet, args.verbose)
+                code = args.handler(args)
             sys.stdout.flush()  # a closed pipe shows here, not at exit
             return code
         except ReporterError as exc:

@@ -31,8 +31,9 @@ def _table(header: list[str], rows: list[list[str]], right: set[int] = frozenset
     return [fmt(header), "  ".join("-" * w for w in widths).rstrip(), *(fmt(r) for r in rows)]
 
 
-def render_check(prep) -> str:
-    """Cells with n, the design matrix, coefficient meanings and every compiled contrast."""
+def render_check(prep, checks=()) -> str:
+    """Cells with n, the design matrix, coefficient meanings, every compiled contrast and the
+    data checks (``checks``: :class:`reporter.checks.Finding` values)."""
     plan, data, design = prep.plan, prep.data, prep.design
     title = show_controls(plan.title)
     out: list[str] = [title, "=" * min(len(title), 78), ""]
@@ -99,5 +100,12 @@ def render_check(prep) -> str:
         out.append("      over coefficients (L·β = h, L = C·D):")
         out += ["        " + line for line in _table([c.symbol for c in coefs] + ["", "h"], beta_rows, right=set(range(len(coefs) + 2)))]
     out.append("")
-    out.append("Nothing was written. Run 'anova-report run' to fit and write the report.")
+    if checks:
+        out.append("Data checks")
+        out += [f"  {c.status:<7} {c.check}: {c.message}" for c in checks]
+        out.append("")
+    if any(c.status == "failed" for c in checks):
+        out.append("Nothing was written. Fix the failed data checks above before 'anova-report run'.")
+    else:
+        out.append("Nothing was written. Run 'anova-report run' to fit and write the report.")
     return show_controls("\n".join(out), keep="\n")
