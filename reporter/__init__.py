@@ -11,7 +11,7 @@ The Python interface mirrors the command::
 or, with the plan given as keyword arguments (see :func:`analyze`)::
 
     report = reporter.analyze(df, outcome="recalled", factors={"schedule": None},
-                              hypotheses={"schedules differ": {"effect": "schedule"}}, alpha=0.01)
+                              hypotheses={"schedules differ": "effect: schedule"}, alpha=0.01)
     report.to_json()["anova"]; report.to_html("report.html"); print(report.plan_toml())
 
 Heavy modules (scipy, matplotlib, WeasyPrint) load on first use, not on ``import reporter``.
@@ -23,16 +23,18 @@ import os
 from typing import TYPE_CHECKING, Any
 
 from reporter.errors import (
-    DataError, FitError, HypothesisError, OptionError, PlanError, RenderError, ReporterError,
+    DataError, FitError, FittedModelError, HypothesisError, OptionError, PlanError, RenderError, ReporterError,
 )
 
 __all__ = [
-    "DataError", "FitError", "HypothesisError", "OptionError", "Plan", "PlanError", "Prepared", "RenderError",
-    "Report", "ReporterError", "analyze", "load_plan", "plan_toml", "prepare", "report",
+    "DataError", "FitError", "FittedModelError", "HypothesisError", "OptionError", "Plan", "PlanError", "Prepared",
+    "RenderError", "Report", "ReporterError", "analyze", "from_statsmodels", "load_plan", "plan_toml", "prepare",
+    "report",
 ]
 
 if TYPE_CHECKING:  # pragma: no cover
     from reporter.api import Prepared, Report, analyze
+    from reporter.from_fit import from_statsmodels
     from reporter.intake.plan import Plan
 
 
@@ -69,6 +71,10 @@ def __getattr__(name: str) -> Any:
         from reporter import api
 
         return getattr(api, name)
+    if name == "from_statsmodels":
+        from reporter.from_fit import from_statsmodels as _from_statsmodels
+
+        return _from_statsmodels
     if name == "Plan":
         from reporter.intake.plan import Plan as _Plan
 

@@ -222,13 +222,13 @@ def analyze(
         ``None`` for each.
     ``hypotheses``
         A mapping of hypothesis name to a statement about means (text, as a plan's ``means``
-        key), or to a mapping of the keys of a plan's ``[[hypotheses]]`` table. An effect (the
-        omnibus test of a main effect or an interaction) is written ``{"effect": "dose x sex"}``;
-        ``role`` ("planned", the default, or "exploratory") and ``description`` go beside
-        ``means`` or ``effect``::
+        key), or to an effect (the omnibus test of a main effect or an interaction) written as
+        the text ``"effect: dose x sex"``. For a ``role`` ("planned", the default, or
+        "exploratory") or a ``description``, give a mapping of the keys of a plan's
+        ``[[hypotheses]]`` table instead::
 
             hypotheses={
-                "doses differ": {"effect": "dose"},
+                "doses differ": "effect: dose",
                 "dose works alike in both sexes": {"effect": "dose x sex", "role": "exploratory"},
                 "high beats low": "high > low",
             }
@@ -389,17 +389,14 @@ def _hypothesis_tables(hypotheses: Any) -> list[dict[str, Any]]:
         if not isinstance(name, str):
             raise PlanError(f"analyze(): 'hypotheses' names a hypothesis {name!r}; hypothesis names must be text.")
         if isinstance(spec, str):
-            m = re.match(r"\s*(effect|means)\s*:\s*(.*)", spec, re.S)
-            if m:
-                raise PlanError(f"analyze(): hypotheses[{name!r}] is {spec!r}; write "
-                                f"{{{m.group(1)!r}: {m.group(2).strip()!r}}} for {'an effect' if m.group(1) == 'effect' else 'a statement'}.")
-            out.append({"name": name, "means": spec})
+            m = re.match(r"\s*(effect|means)\s*:(.*)", spec, re.S)  # ':' is no token of a statement
+            out.append({"name": name, m.group(1): m.group(2).strip()} if m else {"name": name, "means": spec})
         elif isinstance(spec, Mapping):
             _check_keys(spec, _HYPOTHESIS_KEYS, f"hypotheses[{name!r}]")
             out.append({"name": name, **{k: v for k, v in spec.items() if v is not None}})
         else:
             raise PlanError(f"analyze(): hypotheses[{name!r}] must be a statement such as \"high > low\", or "
-                            f"{{\"effect\": \"dose\"}} for an effect (got {type(spec).__name__}).")
+                            f"\"effect: dose\" for an effect (got {type(spec).__name__}).")
     return out
 
 

@@ -27,8 +27,8 @@ EPOCH = "1767225600"
 # The factorial demo as keyword arguments (the same plan as demo_project/factorial.toml, less [study]).
 HYPOTHESES = {
     "schedules differ": {"effect": "schedule"},
-    "feedback conditions differ": {"effect": "feedback"},
-    "spacing benefit depends on feedback": {"effect": "schedule x feedback"},
+    "feedback conditions differ": "effect: feedback",
+    "spacing benefit depends on feedback": "effect:schedule x feedback",
     "with immediate feedback, spacing beats massing":
         "mean(schedule=spaced, feedback=immediate) > mean(schedule=massed, feedback=immediate)",
     "any feedback beats none": {"means": "(delayed + immediate)/2 > none", "role": "exploratory",
@@ -82,6 +82,7 @@ def test_notebook_use(tmp_path):
         assert math.isclose(rows[source]["ss"], ref.loc[term, "sum_sq"], rel_tol=1e-9)
     assert [h["name"] for h in doc["hypotheses"]] == list(HYPOTHESES)
     assert [h["role"] for h in doc["hypotheses"]] == ["planned"] * 4 + ["exploratory"]
+    assert [h.effect for h in report.plan.hypotheses[:3]] == ["schedule", "feedback", "schedule x feedback"]
 
 
 def test_levels_in_order_of_first_appearance():
@@ -207,7 +208,9 @@ BAD = [
     (dict(factors={"schedule": {"level": None}}), reporter.PlanError, "Did you mean 'levels'?"),
     (dict(factors={"schedule": None, "feedback": ["none", "delayed"]}), reporter.DataError,
      'factors={name: {"levels": [...], "exclude": [...]}}'),
-    (dict(factors=F, hypotheses={"h": "effect: schedule"}), reporter.PlanError, "write {'effect': 'schedule'}"),
+    (dict(factors=F, hypotheses={"h": "effect: "}), reporter.PlanError, "hypotheses['h']['effect'] must not be empty"),
+    (dict(factors=F, hypotheses={"h": "effect: schedule:feedback"}), reporter.PlanError,
+     'Write effect = "schedule x feedback"'),
     (dict(factors=F, hypotheses={"h": {"efect": "schedule"}}), reporter.PlanError, "Did you mean 'effect'?"),
     (dict(factors=F, hypotheses={"h": "spaced > bogus"}), reporter.HypothesisError,
      "analyze(): hypotheses['h']: 'bogus' is not a level"),
@@ -244,7 +247,7 @@ def test_public_names_and_typing():
     """Every name in reporter.__all__ resolves; py.typed ships with the package (PEP 561) and in the wheel."""
     for name in reporter.__all__:
         assert getattr(reporter, name) is not None, name
-    assert {"analyze", "report", "load_plan", "Report"} <= set(reporter.__all__)
+    assert {"analyze", "report", "from_statsmodels", "load_plan", "Report"} <= set(reporter.__all__)
     assert resources.files("reporter").joinpath("py.typed").is_file()
     conf = tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))
     assert "py.typed" in conf["tool"]["setuptools"]["package-data"]["reporter"]
