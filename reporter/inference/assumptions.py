@@ -282,7 +282,9 @@ def normality(rows: RowAccess, cells: CellStats, *, seed: int = 0, max_n: int = 
     AS R94 (see :func:`_royston_shapiro_wilk`), whose p value approximation holds for
     3 <= n <= 5000. Up to 5,000 residuals every one is tested; beyond that a simple random
     sample of 5,000 rows drawn with ``seed`` (the residuals still use the cell means of all rows),
-    and the result says so.
+    and the result says so. The sample is the rule of :func:`reporter.intake.rows.sample_positions`
+    (the 5,000 analysed rows whose position in input order has the smallest fmix32 hash with the
+    seed), which every reader applies alike, so the in-memory and out-of-core paths test the same rows.
     """
     usable = cells.n > 1
     m = int(cells.n[usable].sum())

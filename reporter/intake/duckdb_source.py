@@ -75,7 +75,7 @@ from reporter.errors import DataError
 from reporter.intake import defaults as D
 from reporter.intake import numtext
 from reporter.intake.cells import CellStats
-from reporter.intake.rows import CellPoints, FlaggedRows, RankSums
+from reporter.intake.rows import CellPoints, FlaggedRows, RankSums, sample_positions
 
 MEMORY_LIMIT = "200MB"
 MAX_THREADS = 4
@@ -893,11 +893,8 @@ class DuckRows:
     table that :func:`load_out_of_core` wrote (values are offsets from the pivot).
 
     Quantiles are type 7 (DuckDB's ``quantile_cont``, linear interpolation between order
-    statistics, Hyndman & Fan 1996, The American Statistician 50(4), 361-365). The sample is a
-    deterministic hash choice: the ``size`` rows with the smallest SplitMix64 hash of
-    (row number, seed) (Steele, Lea & Flood 2014, "Fast splittable pseudorandom number
-    generators", OOPSLA), which is a simple random sample without replacement for a good hash and
-    does not depend on DuckDB's version or thread count.
+    statistics, Hyndman & Fan 1996, The American Statistician 50(4), 361-365). The sample is the
+    rows at :func:`~reporter.intake.rows.sample_positions`, the rule the in-memory rows use too.
     """
 
     kind = "duckdb"
@@ -906,6 +903,7 @@ class DuckRows:
         self._con, self._folder, self.k, self._rownum = con, folder, k, rownum
         self.files = tuple(files)
         self.n = int(con.execute("SELECT count(*) FROM kept").fetchall()[0][0])
+        self._n_obs = int(con.execute("SELECT count(*) FROM obs").fetchall()[0][0])
         self._finalizer = weakref.finalize(self, _close, con, folder)
         self._lock = threading.Lock()
 
@@ -1093,33 +1091,26 @@ class DuckRows:
         return FlaggedRows(total=int(count.sum()), rows=rows, count=count, sum_dev=sum_dev, sum_dev2=sum_dev2)
 
     def sample(self, size: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
+        """The rows at :func:`~reporter.intake.rows.sample_positions` (the in-memory reader's
+        rule), fetched by position among the analysed rows: the row id itself when no row was
+        left out, else the running row number of the analysed rows in table order."""
         if self.n <= size:
-            got = self._q("SELECT d, cell FROM kept ORDER BY r")
+            got = self._np("SELECT d, cell FROM kept ORDER BY r")
         else:
-            got = self._q(
-                f"SELECT d, cell FROM (SELECT d, cell, r, h FROM ({_fmix32_sql('kept', int(seed))}) "
-                f"ORDER BY h, r LIMIT {int(size)}) ORDER BY r"
-            )
-        values = np.array([v for v, _ in got], dtype=np.float64)
-        cells = np.array([c for _, c in got], dtype=np.int64)
-        return values, cells
+            pos = sample_positions(self.n, size, seed).tolist()
+            if self.n == self._n_obs:
+                sql = "SELECT d, cell FROM kept WHERE r - 1 IN (SELECT unnest($1::BIGINT[])) ORDER BY r"
+            else:
+                sql = ("SELECT d, cell FROM (SELECT d, cell, r, row_number() OVER () - 1 AS p FROM kept) "
+                       "WHERE p IN (SELECT unnest($1::BIGINT[])) ORDER BY r")
+            with self._lock:
+                got = self._con.execute(sql, [pos]).fetchnumpy()
+        return np.asarray(got["d"], dtype=np.float64), np.asarray(got["cell"], dtype=np.int64)
 
     def arrays(self) -> None:
         return None
 
 
-_M32 = 4294967296
 _BUCKETS = 1 << 16  # histogram buckets per cell when locating order statistics
 _FETCH = 1_000_000  # values fetched into Python at most per refinement step
 _WIDE_CELLS = 64  # at most this many cells: rank sums from one aggregate with a count column per cell
-
-
-def _fmix32_sql(table: str, seed: int) -> str:
-    """SQL adding to ``table`` a column ``h``: MurmurHash3's 32-bit finalizer (Appleby 2011,
-    public domain) of (r · 2654435761 + seed) mod 2^32. Both steps are bijections of 32-bit
-    numbers, so rows below 2^32 get distinct keys; every product stays below 2^64 (UBIGINT)."""
-    s = int(seed) % _M32
-    q = f"SELECT *, (CAST(r AS UBIGINT) % {_M32} * 2654435761 + {s}) % {_M32} AS h FROM {table}"
-    for shift, mult in ((16, 0x85EBCA6B), (13, 0xC2B2AE35)):
-        q = f"SELECT * REPLACE ((xor(h, h >> {shift}) * {mult}) % {_M32} AS h) FROM ({q})"
-    return f"SELECT * REPLACE (xor(h, h >> 16) AS h) FROM ({q})"

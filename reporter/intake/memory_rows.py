@@ -13,7 +13,7 @@ from typing import Sequence
 import numpy as np
 
 from reporter.intake.cells import describe_cells
-from reporter.intake.rows import CellPoints, FlaggedRows, RankSums
+from reporter.intake.rows import CellPoints, FlaggedRows, RankSums, sample_positions
 
 
 def _code_type(k: int):
@@ -152,8 +152,7 @@ class MemoryRows:
     def sample(self, size: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
         if self.n <= size:
             return self._y.copy(), self._cell.copy()
-        rng = np.random.default_rng(seed)
-        idx = np.sort(rng.choice(self.n, size=int(size), replace=False))
+        idx = sample_positions(self.n, size, seed)
         return self._y[idx], self._cell[idx]
 
     def arrays(self) -> tuple[np.ndarray, np.ndarray]:

@@ -94,8 +94,87 @@ class RowAccess(Protocol):
         """Rows with |x − centre_c| > bound_c (cells with a non-finite bound are skipped)."""
 
     def sample(self, size: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
-        """A seeded simple random sample of ``size`` rows without replacement (all rows when
-        n ≤ size): (values, cells), in a deterministic order."""
+        """The rows at :func:`sample_positions` ``(n, size, seed)`` (all rows when n ≤ size):
+        (values, cells), in the rows' order."""
 
     def arrays(self) -> tuple[np.ndarray, np.ndarray] | None:
         """(values, cells) of every row, or None when the rows are not held in memory."""
+
+
+# ---------------------------------------------------------------------------------------------
+# The seeded sample: one rule, computed from (n, size, seed) alone
+
+
+_WEYL = 2654435761  # odd, so p -> p * _WEYL + seed is a bijection of 32-bit numbers
+_WEYL_INV = pow(_WEYL, -1, 1 << 32)
+_FMIX = (0x85EBCA6B, 0xC2B2AE35)
+_FMIX_INV = tuple(pow(m, -1, 1 << 32) for m in _FMIX)
+_CHUNK = 1 << 20
+
+
+def sample_key(position: np.ndarray, seed: int) -> np.ndarray:
+    """The sampling key of each 0-based position: MurmurHash3's 32-bit finalizer fmix32
+    (Appleby 2011, public domain) of (position · 2654435761 + seed) mod 2^32. Both steps are
+    bijections of 32-bit numbers, so positions below 2^32 get distinct keys (uint32 arithmetic
+    wraps modulo 2^32)."""
+    h = np.asarray(position).astype(np.uint32) * np.uint32(_WEYL) + np.uint32(int(seed) % (1 << 32))
+    for shift, mult in ((16, _FMIX[0]), (13, _FMIX[1])):
+        h = (h ^ (h >> np.uint32(shift))) * np.uint32(mult)
+    return h ^ (h >> np.uint32(16))
+
+
+def _key_inverse(key: np.ndarray, seed: int) -> np.ndarray:
+    """The position in 0 .. 2^32 − 1 whose :func:`sample_key` is ``key`` (each step undone)."""
+    h = np.asarray(key).astype(np.uint32)
+    h = h ^ (h >> np.uint32(16))
+    for shift, inv in ((13, _FMIX_INV[1]), (16, _FMIX_INV[0])):
+        h = h * np.uint32(inv)
+        x = h
+        for _ in range(32 // shift):  # x ^ (x >> s) undone by iterating x = h ^ (x >> s)
+            x = h ^ (x >> np.uint32(shift))
+        h = x
+    return (h - np.uint32(int(seed) % (1 << 32))) * np.uint32(_WEYL_INV)
+
+
+def sample_positions(n: int, size: int, seed: int) -> np.ndarray:
+    """The 0-based positions, in increasing order, of the rows in the seeded sample.
+
+    The rule: among the ``n`` analysed rows in input order, the ``size`` rows with the smallest
+    :func:`sample_key` (ties, possible only beyond 2^32 rows, broken by position); every row when
+    n ≤ size. For a hash that behaves as a random permutation this is a simple random sample
+    without replacement. It depends on (n, size, seed) only, so every reader draws the same rows.
+
+    Cost: the keys of all n positions in chunks (O(n) time, O(size + chunk) memory), or, when
+    size · 2^32 / n is smaller, the positions of the smallest keys 0, 1, 2, … found through the
+    inverse of the hash until ``size`` of them fall below n (about size · 2^32 / n keys).
+    """
+    n, size = int(n), int(size)
+    if n <= size:
+        return np.arange(n, dtype=np.int64)
+    if size <= 0:
+        return np.empty(0, dtype=np.int64)
+    if n <= (1 << 32) and size * ((1 << 32) / n) < n:
+        found: list[np.ndarray] = []
+        got, start = 0, 0
+        step = max(_CHUNK, int(1.25 * size * ((1 << 32) / n)))
+        while got < size and start < (1 << 32):
+            keys = np.arange(start, min(start + step, 1 << 32), dtype=np.uint64)
+            pos = _key_inverse(keys, seed)
+            pos = pos[pos < n]  # in increasing key order
+            found.append(pos[: size - got].astype(np.int64))
+            got += found[-1].size
+            start += step
+        return np.sort(np.concatenate(found))
+    best_key = np.empty(0, dtype=np.uint32)
+    best_pos = np.empty(0, dtype=np.int64)
+    for start in range(0, n, _CHUNK):
+        pos = np.concatenate([best_pos, np.arange(start, min(start + _CHUNK, n), dtype=np.int64)])
+        keys = np.concatenate([best_key, sample_key(pos[best_pos.size:], seed)])
+        if keys.size > size:
+            if n <= (1 << 32):  # distinct keys
+                keep = np.argpartition(keys, size - 1)[:size]
+            else:
+                keep = np.lexsort((pos, keys))[:size]
+            keys, pos = keys[keep], pos[keep]
+        best_key, best_pos = keys, pos
+    return np.sort(best_pos)

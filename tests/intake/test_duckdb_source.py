@@ -285,10 +285,11 @@ def test_quantiles_points_flagged_and_sample(rows_pair):
     assert rows.arrays() is None and rows.kind == "duckdb" and rows.n == y.size and rows.k == 6
 
 
-def test_sample_hash_is_murmur3_fmix32():
-    """The SQL hash equals MurmurHash3's fmix32 (Appleby 2011) of (r · 2654435761 + seed) mod 2^32,
-    written here in Python; distinct rows get distinct keys."""
-    import duckdb
+def test_sample_key_is_murmur3_fmix32_and_both_searches_agree():
+    """The sampling key equals MurmurHash3's fmix32 (Appleby 2011) of (p · 2654435761 + seed)
+    mod 2^32, written here in Python from that definition; the search through the inverse hash
+    picks the same positions as sorting every key (numpy's argsort as reference)."""
+    from reporter.intake.rows import _key_inverse, sample_key, sample_positions
 
     m = (1 << 32) - 1
 
@@ -299,11 +300,44 @@ def test_sample_hash_is_murmur3_fmix32():
         h = (h * 0xC2B2AE35) & m
         return h ^ (h >> 16)
 
-    con = duckdb.connect()
-    con.execute("CREATE TABLE t AS SELECT range AS r FROM range(1, 5000)")
-    got = con.execute(f"SELECT r, h FROM ({ds._fmix32_sql('t', 2**40 + 99)}) ORDER BY r").fetchall()
-    assert all(int(h) == fmix32((int(r) * 2654435761 + (2**40 + 99)) & m) for r, h in got)
-    assert len({h for _, h in got}) == len(got)
+    pos = np.arange(5000)
+    keys = sample_key(pos, 2**40 + 99)
+    assert all(int(k) == fmix32((int(p) * 2654435761 + (2**40 + 99)) & m) for p, k in zip(pos, keys))
+    assert len(set(keys.tolist())) == pos.size
+    some = np.random.default_rng(1).integers(0, 2**32, 10_000, dtype=np.uint64)
+    assert np.array_equal(_key_inverse(sample_key(some, 7), 7), some)
+    for n, size in ((6000, 5000), (300_000, 50), (3_000_000, 5000)):  # forward and inverse search
+        ref = np.sort(np.argsort(sample_key(np.arange(n), 11), kind="stable")[:size])
+        assert np.array_equal(sample_positions(n, size, 11), ref)
+    assert np.array_equal(sample_positions(40, 50, 1), np.arange(40))
+
+
+def test_shapiro_wilk_sample_is_the_same_from_both_readers(tmp_path):
+    """About 20,000 rows (some left out, so positions differ from row numbers): the seeded
+    sample of 5,000 residuals, hence W and p, are the same from both readers; W and p equal
+    scipy.stats.shapiro on that sample (reference library)."""
+    from reporter.inference.assumptions import normality
+
+    rng = np.random.default_rng(20)
+    n = 20_000
+    dose = rng.choice(["1", "2", "5"], n)
+    site = rng.choice(["north", "south"], n)
+    y = np.round(rng.gamma(4.0, 10.0, n), 2).astype(str).astype(object)
+    y[rng.choice(n, 300, replace=False)] = "NA"
+    dose[rng.choice(n, 200, replace=False)] = "9"  # an excluded level
+    text = "dose,site,y\n" + "".join(f"{a},{b},{c}\n" for a, b, c in zip(dose, site, y))
+    (tmp_path / "d.csv").write_text(text, encoding="utf-8")
+    mem, duck = both(tmp_path, "d.csv")
+    cells, cell = memory_cells(load_plan(tmp_path / "m.toml"), mem)
+    from reporter.intake.memory_rows import MemoryRows
+
+    a = normality(MemoryRows(mem.y, cell, 6, mem.rows), cells, seed=5)
+    b = normality(duck.row_access, duck.cells, seed=5)
+    assert a.sampled and b.sampled and a.n == b.n == 5000 and a.n_available == b.n_available
+    assert_close([a.statistic, a.p], [b.statistic, b.p])
+    ys, cs = MemoryRows(mem.y, cell, 6).sample(5000, 5)
+    w, p = scipy.stats.shapiro(ys - cells.offset_mean[cs])
+    assert_close([a.statistic, a.p], [w, p], rel=1e-4)
 
 
 # ---------------------------------------------------------------------------------------------
