@@ -17,7 +17,7 @@ from reporter.numerics.distributions import t_ppf
 from reporter.inference.collect import ROWS_UNAVAILABLE, HypothesisExtras, Inference, describe_inference
 from reporter.inference.permutation import PERMUTATION_MAX_ROWS
 from reporter.intake.memory_rows import MemoryRows
-from reporter.intake.rows import CellPoints, RowAccess
+from reporter.intake.rows import CellPoints, PointsOnDemand, RowAccess
 from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model
 from reporter.inference.multiplicity import adjust_p
 from reporter.fitting.rounding import RoundingBounds, bound_rounding
@@ -208,7 +208,7 @@ def fit_analysis(
         hypotheses=tuple(results),
         marginal_means=describe_marginal_means(design, cells, fit, alpha),
         inference=inf,
-        points=None if rows is None else rows.cell_points(CELL_POINTS),
+        points=None if rows is None else PointsOnDemand(rows, CELL_POINTS),
     )
 
 

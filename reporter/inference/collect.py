@@ -140,8 +140,7 @@ def check_assumptions(rows, cells: CellStats, fit: ModelFit, alpha: float, *, se
         return AssumptionChecks(None, None, sw, None, None, False, (), unavailable), None
     notes = []
     try:
-        bf = A.homogeneity(rows, cells, "median")
-        lev = A.homogeneity(rows, cells, "mean")
+        bf, lev = A.homogeneity_both(rows, cells)
     except FitError as exc:
         bf = lev = None
         notes.append(f"Variance checks not possible: {exc}")

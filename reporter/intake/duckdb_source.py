@@ -702,9 +702,9 @@ def load_out_of_core(plan, quiet: bool | None = None):
 
         k = int(np.prod(shape))
         pivot_exact = Fraction(pivot_text) if exact else Fraction(pivot)
-        cells = cell_stats(con, k, pivot, pivot_exact)
-        _check_spread(con, plan, pivot, source, rownum)
-        rows = DuckRows(con, folder, k, rownum, files)
+        cells, d_lo, d_hi = cell_stats(con, k, pivot, pivot_exact)
+        _check_spread(con, plan, pivot, source, rownum, cells, d_lo, d_hi)
+        rows = DuckRows(con, folder, k, rownum, files, cells.n, d_lo, d_hi)
     except BaseException:
         _close(con, folder)
         raise
@@ -781,18 +781,22 @@ def _refuse(plan, value: str, text: bool, source: str, where: str) -> None:
         _read_outcome(np.array([float(value)]), plan, keep, source, lambda i: where)
 
 
-def _check_spread(con, plan, pivot: float, source: str, rownum: "_RowNumbers") -> None:
+def _check_spread(con, plan, pivot: float, source: str, rownum: "_RowNumbers", cells: CellStats,
+                  d_lo: np.ndarray, d_hi: np.ndarray) -> None:
     """The in-memory reader's check that the outcome's spread keeps the sums within float64,
-    on the smallest and largest analysed values."""
+    on the smallest and largest analysed values (their rows are looked up only for a message)."""
     from reporter.intake.data import _check_spread as check
 
-    lo, hi, n = con.execute("SELECT min(d), max(d), count(*) FROM kept").fetchall()[0]
+    n = int(cells.n.sum())
     if not n:
         return
-    lo_r, hi_r = (con.execute(f"SELECT min(r) FROM kept WHERE d = CAST('{v!r}' AS DOUBLE)").fetchall()[0][0] for v in (lo, hi))
-    rows = (lo_r, hi_r)
-    check(np.array([lo, hi]), np.ones(2, dtype=bool), 0, pivot, plan, source,
-          lambda i: f"{rownum.word} {rownum.number(rows[i])}", n_values=int(n))
+    ends = [float(np.nanmin(d_lo)), float(np.nanmax(d_hi))]
+
+    def where(i: int) -> str:
+        r = con.execute(f"SELECT min(r) FROM kept WHERE d = CAST('{ends[i]!r}' AS DOUBLE)").fetchall()[0][0]
+        return f"{rownum.word} {rownum.number(r)}"
+
+    check(np.array(ends), np.ones(2, dtype=bool), 0, pivot, plan, source, where, n_values=n)
 
 
 def _glob_digest(files: Sequence[Path], digests) -> str:
@@ -851,12 +855,13 @@ def _run(con, sql: str, source: str) -> None:
 # Cell statistics in SQL
 
 
-def cell_stats(con, k: int, pivot: float, pivot_exact: Fraction) -> CellStats:
-    """Per-cell n, mean offset and centred SS by the corrected two-pass algorithm in SQL."""
-    n, mean, ss = _moments(con, "d", "kept", k)
+def cell_stats(con, k: int, pivot: float, pivot_exact: Fraction) -> tuple[CellStats, np.ndarray, np.ndarray]:
+    """Per-cell n, mean offset and centred SS by the corrected two-pass algorithm in SQL, and
+    each cell's smallest and largest offset (from the same scans)."""
+    [(n, mean, ss)], (lo, hi) = _moments(con, ["d"], "kept", k, extremes=True)
     for arr in (n, mean, ss):
         arr.setflags(write=False)
-    return CellStats(n=n, offset_mean=mean, ss=ss, pivot=float(pivot), pivot_exact=pivot_exact)
+    return CellStats(n=n, offset_mean=mean, ss=ss, pivot=float(pivot), pivot_exact=pivot_exact), lo, hi
 
 
 def _doubles(values) -> str:
@@ -865,23 +870,39 @@ def _doubles(values) -> str:
     return "[" + ", ".join(f"CAST('{float(v)!r}' AS DOUBLE)" for v in np.asarray(values, dtype=np.float64).tolist()) + "]"
 
 
-def _moments(con, value: str, table: str, k: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Per cell (n, mean, centred SS) of ``value``: first n and a compensated sum give a mean
-    m0; then Σ(v − m0) and Σ(v − m0)² give S = Σ(v − m0)² − (Σ(v − m0))²/n and the refined mean
-    m0 + Σ(v − m0)/n (Chan, Golub & LeVeque 1983, eq. 1.7)."""
-    first = con.execute(f"SELECT cell, count(*), fsum({value}) / count(*) FROM {table} GROUP BY cell").fetchall()
+def _moments(con, values: Sequence[str], table: str, k: int, extremes: bool = False):
+    """Per cell (n, mean, centred SS) of each expression in ``values``, all from the same two
+    scans: first n and a compensated sum give a mean m0; then Σ(v − m0) and Σ(v − m0)² give
+    S = Σ(v − m0)² − (Σ(v − m0))²/n and the refined mean m0 + Σ(v − m0)/n (Chan, Golub &
+    LeVeque 1983, eq. 1.7). Returns the list of those triples and, with ``extremes``, the
+    per-cell (min, max) of the first expression taken in the first scan (else None)."""
+    cols = [f"fsum(v{j}) / count(*)" for j in range(len(values))]
+    if extremes:
+        cols += ["min(v0)", "max(v0)"]
+    inner = ", ".join(f"{v} AS v{j}" for j, v in enumerate(values))
+    first = con.execute(f"SELECT cell, count(*), {', '.join(cols)} FROM (SELECT cell, {inner} FROM {table}) GROUP BY cell").fetchall()
     n = np.zeros(k, dtype=np.int64)
-    m0 = np.zeros(k)
-    for c, cnt, m in first:
-        n[c], m0[c] = cnt, m
-    e = f"({value} - {_doubles(m0)}[cell + 1])"
-    second = con.execute(f"SELECT cell, fsum(e), fsum(e * e) FROM (SELECT cell, {e} AS e FROM {table}) GROUP BY cell").fetchall()
-    mean = np.full(k, np.nan)
-    ss = np.full(k, np.nan)
-    for c, s1, s2 in second:
-        mean[c] = m0[c] + s1 / n[c]
-        ss[c] = max(s2 - s1 * s1 / n[c], 0.0)
-    return n, mean, ss
+    m0 = np.zeros((len(values), k))
+    lo, hi = np.full(k, np.nan), np.full(k, np.nan)
+    for row in first:
+        c = row[0]
+        n[c] = row[1]
+        m0[:, c] = row[2 : 2 + len(values)]
+        if extremes:
+            lo[c], hi[c] = row[-2:]
+    es = ", ".join(f"(v{j} - {_doubles(m0[j])}[cell + 1]) AS e{j}" for j in range(len(values)))
+    sums = ", ".join(f"fsum(e{j}), fsum(e{j} * e{j})" for j in range(len(values)))
+    second = con.execute(f"SELECT cell, {sums} FROM (SELECT cell, {es} FROM (SELECT cell, {inner} FROM {table})) GROUP BY cell").fetchall()
+    out = []
+    for j in range(len(values)):
+        mean = np.full(k, np.nan)
+        ss = np.full(k, np.nan)
+        for row in second:
+            c, s1, s2 = row[0], row[1 + 2 * j], row[2 + 2 * j]
+            mean[c] = m0[j, c] + s1 / n[c]
+            ss[c] = max(s2 - s1 * s1 / n[c], 0.0)
+        out.append((n.copy(), mean, ss))
+    return out, ((lo, hi) if extremes else None)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -899,13 +920,19 @@ class DuckRows:
 
     kind = "duckdb"
 
-    def __init__(self, con, folder: str, k: int, rownum: _RowNumbers, files: Sequence[Path]):
+    def __init__(self, con, folder: str, k: int, rownum: _RowNumbers, files: Sequence[Path],
+                 counts: np.ndarray | None = None, lo: np.ndarray | None = None, hi: np.ndarray | None = None):
         self._con, self._folder, self.k, self._rownum = con, folder, k, rownum
         self.files = tuple(files)
-        self.n = int(con.execute("SELECT count(*) FROM kept").fetchall()[0][0])
+        if counts is None or lo is None or hi is None:
+            [(counts, _, _)], (lo, hi) = _moments(con, ["d"], "kept", k, extremes=True)
+        self._counts = np.asarray(counts, dtype=np.int64)
+        self._lo, self._hi = np.asarray(lo, dtype=np.float64), np.asarray(hi, dtype=np.float64)
+        self.n = int(self._counts.sum())
         self._n_obs = int(con.execute("SELECT count(*) FROM obs").fetchall()[0][0])
         self._finalizer = weakref.finalize(self, _close, con, folder)
         self._lock = threading.Lock()
+        self._medians: np.ndarray | None = None
 
     def close(self) -> None:
         self._finalizer()
@@ -918,18 +945,28 @@ class DuckRows:
         with self._lock:
             return self._con.execute(sql).fetchnumpy()
 
+    def _observed(self) -> dict[int, int]:
+        return {c: int(m) for c, m in enumerate(self._counts.tolist()) if m > 0}
+
     def medians(self) -> np.ndarray:
         """Per-cell medians from exact order statistics (DuckDB's median aggregate would hold
-        every value of a cell in memory)."""
-        counts = {int(c): int(n) for c, n in self._q("SELECT cell, count(*) FROM kept GROUP BY cell")}
-        out = np.full(self.k, np.nan)
-        for c, q in self._quantiles(counts, "SELECT cell, d AS v FROM kept", [0.5]).items():
-            out[c] = q[0]
-        return out
+        every value of a cell in memory); computed once."""
+        if self._medians is None:
+            out = np.full(self.k, np.nan)
+            counts = self._observed()
+            bounds = {c: (self._lo[c], self._hi[c]) for c in counts}
+            for c, q in self._quantiles(counts, "SELECT cell, d AS v FROM kept", [0.5], bounds).items():
+                out[c] = q[0]
+            self._medians = out
+        return self._medians.copy()
 
     def deviation_stats(self, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        return self.deviation_stats_many([centre])[0]
+
+    def deviation_stats_many(self, centres: Sequence[np.ndarray]) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+        """:meth:`deviation_stats` about each centre, all from the same two scans."""
         with self._lock:
-            return _moments(self._con, f"abs(d - {_doubles(centre)}[cell + 1])", "kept", self.k)
+            return _moments(self._con, [f"abs(d - {_doubles(c)}[cell + 1])" for c in centres], "kept", self.k)[0]
 
     def rank_sums(self) -> RankSums:
         """Rank sums with mid-ranks for ties, in exact integers (twice each sum): a value shared
@@ -959,43 +996,60 @@ class DuckRows:
             rank_sum[c] = float(Fraction(int(twice or 0), 2))
         return RankSums(rank_sum=rank_sum, tie_term=float(int(tie or 0)), n=self.n)
 
-    def _order_stats(self, counts: dict[int, int], source: str, positions: dict[int, list[int]]) -> dict[tuple[int, int], float]:
+    def _order_stats(self, source: str, positions: dict[int, list[int]], bounds: dict[int, tuple[float, float]],
+                     counts: dict[int, int]) -> dict[tuple[int, int], float]:
         """Order statistics (0-based ranks within each cell) of ``v`` in ``source``, exactly and
-        without a sort: a histogram of :data:`_BUCKETS` equal-width buckets per cell locates each
-        rank's bucket (bucket numbers are monotone in the value, so buckets hold consecutive ranks);
-        the values of those buckets are fetched and sorted when they number at most
-        :data:`_FETCH`, and a larger bucket is refined the same way. Each step is one linear scan
-        with memory bounded by the buckets, so it stays out-of-core (the selection algorithm of
-        Floyd & Rivest 1975, CACM 18(3), 165-172, by bucketing instead of sampling)."""
+        without a sort: a histogram of equal-width buckets per cell (between the cell's known
+        smallest and largest value, ``bounds``) locates each rank's bucket (bucket numbers are
+        monotone in the value, so buckets hold consecutive ranks); the values of those buckets
+        are fetched and sorted when they number at most :data:`_FETCH`, and a larger bucket is
+        refined the same way. Each step is one linear scan with memory bounded by the buckets,
+        so it stays out-of-core (the selection algorithm of Floyd & Rivest 1975, CACM 18(3),
+        165-172, by bucketing instead of sampling)."""
         result: dict[tuple[int, int], float] = {}
         wanted = {c: sorted({int(q) for q in qs}) for c, qs in positions.items() if qs}
-        self._refine(source, "true", wanted, result, 0)
+        self._refine(source, "true", wanted, result, 0, bounds, counts)
         return result
 
-    def _refine(self, source: str, where: str, wanted: dict[int, list[int]], result, depth: int) -> None:
+    def _refine(self, source: str, where: str, wanted: dict[int, list[int]], result, depth: int,
+                bounds: dict[int, tuple[float, float]] | None = None, counts: dict[int, int] | None = None) -> None:
         cells = ", ".join(map(str, sorted(wanted)))
         scope = f"FROM ({source}) WHERE {where} AND cell IN ({cells})"
+        if bounds is None:
+            bounds = {c: (a, b) for c, a, b in self._q(f"SELECT cell, min(v), max(v) {scope} GROUP BY cell")}
+        # Buckets per cell: enough that the buckets holding the wanted ranks are small (about
+        # half of _FETCH values in all for evenly spread values, so that one fetch usually ends
+        # the search), and at most about 4 million in all (the histogram is fetched as an array).
+        need = max(64 * len(q) + 2 * len(q) * (counts or {}).get(c, 0) * len(wanted) // _FETCH for c, q in wanted.items())
+        nb = min(_MAX_BUCKETS, max(1024, 1 << math.ceil(math.log2(need))))
+        nb = max(1024, min(nb, 1 << int(math.log2(max((1 << 22) // len(wanted), 1)))))
         lo = np.zeros(self.k)
         scale = np.zeros(self.k)
         live = {}
-        for c, a, b in self._q(f"SELECT cell, min(v), max(v) {scope} GROUP BY cell"):
+        for c, (a, b) in bounds.items():
+            if c not in wanted:
+                continue
             if a == b:  # every value of the cell (in this bucket) is the same
                 result.update({(c, q): float(a) for q in wanted[c]})
                 continue
-            step = _BUCKETS / (b - a)
+            step = nb / (b - a)
             if not math.isfinite(step):
                 step = 0.0  # a range below float64's resolution for the division: one bucket
             lo[c], scale[c], live[c] = a, step, wanted[c]
         if not live:
             return
-        bucket = f"least(CAST(floor((v - {_doubles(lo)}[cell + 1]) * {_doubles(scale)}[cell + 1]) AS BIGINT), {_BUCKETS - 1})"
+        bucket = (f"greatest(least(CAST(floor((v - {_doubles(lo)}[cell + 1]) * {_doubles(scale)}[cell + 1]) AS BIGINT), "
+                  f"{nb - 1}), 0)")
         cells = ", ".join(map(str, sorted(live)))
         scope = f"FROM ({source}) WHERE {where} AND cell IN ({cells})"
-        sizes = {c: np.zeros(_BUCKETS, dtype=np.int64) for c in live}
-        hist = self._np(f"SELECT cell, {bucket} AS b, count(*) AS m {scope} GROUP BY ALL")
-        for c in live:
-            pick = hist["cell"] == c
-            sizes[c][hist["b"][pick].astype(np.int64)] = hist["m"][pick]
+        hist = self._np(f"SELECT key, count(*) AS m FROM (SELECT cell * {nb} + {bucket} AS key {scope}) GROUP BY key")
+        key = np.asarray(hist["key"], dtype=np.int64)
+        order = sorted(live)
+        row = np.zeros(self.k, dtype=np.int64)
+        row[order] = np.arange(len(order))
+        sizes_arr = np.zeros((len(order), nb), dtype=np.int64)
+        np.add.at(sizes_arr, (row[key // nb], key % nb), np.asarray(hist["m"], dtype=np.int64))
+        sizes = {c: sizes_arr[row[c]] for c in order}
         targets: dict[tuple[int, int], list[tuple[int, int]]] = {}
         for c, ranks in live.items():
             ends = np.cumsum(sizes[c])
@@ -1013,19 +1067,22 @@ class DuckRows:
                 self._refine(source, f"{where} AND cell = {c} AND {bucket} = {b}", {c: [w for _, w in items]}, sub, depth + 1)
                 result.update({(c, q): sub[(c, w)] for q, w in items})
         if fetch:
-            keys = "[" + ", ".join(str(c * _BUCKETS + b) for c, b in fetch) + "]::BIGINT[]"
-            got = self._np(
-                f"SELECT cell, b, v FROM (SELECT cell, v, {bucket} AS b {scope}) "
-                f"WHERE cell * {_BUCKETS} + b IN (SELECT unnest({keys})) ORDER BY cell, b, v"
-            )
-            cell_b = got["cell"].astype(np.int64) * _BUCKETS + got["b"].astype(np.int64)
+            keys = [c * nb + b for c, b in fetch]
+            with self._lock:
+                got = self._con.execute(
+                    f"SELECT key, v FROM (SELECT cell * {nb} + {bucket} AS key, v {scope}) "
+                    "WHERE key IN (SELECT unnest($1::BIGINT[]))", [keys]).fetchnumpy()
+            key = np.asarray(got["key"], dtype=np.int64)
             vals = np.asarray(got["v"], dtype=np.float64)
+            order = np.lexsort((vals, key))
+            key, vals = key[order], vals[order]
             for c, b in fetch:
-                start = int(np.searchsorted(cell_b, c * _BUCKETS + b, side="left"))
+                start = int(np.searchsorted(key, c * nb + b, side="left"))
                 for q, w in targets[(c, b)]:
                     result[(c, q)] = float(vals[start + w])
 
-    def _quantiles(self, counts: dict[int, int], source: str, probs: Sequence[float]) -> dict[int, np.ndarray]:
+    def _quantiles(self, counts: dict[int, int], source: str, probs: Sequence[float],
+                   bounds: dict[int, tuple[float, float]]) -> dict[int, np.ndarray]:
         """Type 7 quantiles per cell (numpy's default: h = (n − 1)p, linear interpolation written
         as numpy writes it), from the order statistics of one sort."""
         p = np.asarray(probs, dtype=np.float64)
@@ -1035,7 +1092,7 @@ class DuckRows:
             lo = np.floor(h).astype(np.int64)
             hi = np.minimum(lo + 1, n - 1)
             plan[c] = (lo, hi, h - lo)
-        stats = self._order_stats(counts, source, {c: [*lo.tolist(), *hi.tolist()] for c, (lo, hi, _) in plan.items()})
+        stats = self._order_stats(source, {c: [*lo.tolist(), *hi.tolist()] for c, (lo, hi, _) in plan.items()}, bounds, counts)
         out = {}
         for c, (lo, hi, t) in plan.items():
             a = np.array([stats[(c, int(i))] for i in lo])
@@ -1045,20 +1102,31 @@ class DuckRows:
         return out
 
     def residual_quantiles(self, means: np.ndarray, scale: np.ndarray, probs: Sequence[float]) -> np.ndarray:
+        """Quantiles of (d − mean_c)/scale_c over the usable cells. Their count and range come
+        from the cell table and each cell's smallest and largest value: the map is monotone
+        increasing within a cell (a subtraction and a division by a positive number, each
+        rounded monotonically), so no scan is needed for them."""
         probs = [float(p) for p in probs]
         if not probs:
             return np.empty(0)
+        means = np.asarray(means, dtype=np.float64)
+        scale = np.asarray(scale, dtype=np.float64)
+        with np.errstate(invalid="ignore"):
+            usable = np.isfinite(scale) & (scale > 0) & (self._counts > 0)
+        n = int(self._counts[usable].sum())
+        if n == 0:
+            return np.full(len(probs), np.nan)
         m, s = _doubles(means), _doubles(scale)
         source = (f"SELECT 0 AS cell, (d - {m}[cell + 1]) / {s}[cell + 1] AS v FROM kept "
                   f"WHERE isfinite({s}[cell + 1]) AND {s}[cell + 1] > 0")
-        n = int(self._q(f"SELECT count(*) FROM ({source})")[0][0])
-        if n == 0:
-            return np.full(len(probs), np.nan)
-        return self._quantiles({0: n}, source, probs)[0]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            lo = float(np.min(((self._lo - means) / scale)[usable]))
+            hi = float(np.max(((self._hi - means) / scale)[usable]))
+        return self._quantiles({0: n}, source, probs, {0: (lo, hi)})[0]
 
     def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
         """Small cells: every value in increasing order; large cells: ``max_points`` quantiles."""
-        counts = dict(self._q("SELECT cell, count(*) FROM kept GROUP BY cell"))
+        counts = self._observed()
         small = [c for c, n in counts.items() if n <= max_points]
         large = {c: n for c, n in counts.items() if n > max_points}
         values: dict[int, Sequence[float]] = {}
@@ -1070,7 +1138,8 @@ class DuckRows:
         if large:
             listed = ", ".join(map(str, large))
             values.update(self._quantiles(large, f"SELECT cell, d AS v FROM kept WHERE cell IN ({listed})",
-                                          np.linspace(0.0, 1.0, max_points)))
+                                          np.linspace(0.0, 1.0, max_points),
+                                          {c: (self._lo[c], self._hi[c]) for c in large}))
         return tuple(
             CellPoints(n=int(counts.get(c, 0)), values=tuple(float(v) for v in values.get(c, ())), summarized=c in large)
             for c in range(self.k)
@@ -1111,6 +1180,6 @@ class DuckRows:
         return None
 
 
-_BUCKETS = 1 << 16  # histogram buckets per cell when locating order statistics
+_MAX_BUCKETS = 1 << 20  # histogram buckets per cell at most when locating order statistics
 _FETCH = 1_000_000  # values fetched into Python at most per refinement step
 _WIDE_CELLS = 64  # at most this many cells: rank sums from one aggregate with a count column per cell

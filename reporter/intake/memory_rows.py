@@ -100,6 +100,9 @@ class MemoryRows:
         st = describe_cells(z, codes, self.k)
         return st.n, st.offset_mean, st.ss
 
+    def deviation_stats_many(self, centres: Sequence[np.ndarray]) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+        return [self.deviation_stats(c) for c in centres]
+
     def rank_sums(self) -> RankSums:
         if self._ranks is None:
             ranks, sizes = average_ranks(self._y)

@@ -23,6 +23,7 @@ row of a Parquet file or a DataFrame).
 from __future__ import annotations
 
 from dataclasses import dataclass
+from collections.abc import Sequence as SequenceABC
 from typing import Protocol, Sequence
 
 import numpy as np
@@ -36,6 +37,31 @@ class CellPoints:
     n: int
     values: tuple[float, ...]
     summarized: bool
+
+
+class PointsOnDemand(SequenceABC):
+    """The figures' points (:meth:`RowAccess.cell_points`), asked of the rows the first time
+    they are read: an output without figures (JSON alone) never pays for them."""
+
+    def __init__(self, rows: "RowAccess", max_points: int):
+        self._rows, self._max = rows, int(max_points)
+        self._points: tuple[CellPoints, ...] | None = None
+
+    def _get(self) -> tuple[CellPoints, ...]:
+        if self._points is None:
+            self._points = tuple(self._rows.cell_points(self._max))
+        return self._points
+
+    def __getitem__(self, i):
+        return self._get()[i]
+
+    def __len__(self) -> int:
+        return len(self._get())
+
+    def __eq__(self, other) -> bool:
+        return tuple(self) == (tuple(other) if isinstance(other, (tuple, SequenceABC)) else other)
+
+    __hash__ = None  # type: ignore[assignment]
 
 
 @dataclass(frozen=True)
@@ -79,6 +105,10 @@ class RowAccess(Protocol):
     def deviation_stats(self, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Per cell, (n, mean, centred SS) of |x − centre_c|: what Levene (centre = means) and
         Brown–Forsythe (centre = medians) need."""
+
+    def deviation_stats_many(self, centres: Sequence[np.ndarray]) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+        """:meth:`deviation_stats` about each of several centres (one pass over the rows for
+        all of them where the source can)."""
 
     def rank_sums(self) -> RankSums:
         """Mid-rank sums per cell over all rows."""
