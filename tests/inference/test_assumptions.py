@@ -173,15 +173,25 @@ def test_shapiro_skipped_below_its_range():
 
 
 def test_shapiro_above_5000_uses_a_seeded_sample():
-    """Above 5,000 residuals the test runs on a seeded simple random sample of 5,000 rows and says
-    so; W and p equal scipy.stats.shapiro on the same sampled residuals (reference library)."""
+    """Above 5,000 residuals the test runs on a seeded sample of 5,000 rows (the rule of
+    reporter.intake.rows.sample_positions) and says so; W and p equal scipy.stats.shapiro on the same sampled residuals (reference library)."""
     rng = np.random.default_rng(5)
     size = 12_345
     codes = rng.integers(0, 3, size)
     y = rng.exponential(size=size) + codes
     res = shapiro_wilk(y, codes, 3, seed=77)
     assert res.sampled and not res.skipped and res.n == 5000 and res.n_available == size and res.seed == 77
-    idx = np.sort(np.random.default_rng(77).choice(size, size=5000, replace=False))
+    # The rule, written here from its definition: the 5,000 positions with the smallest
+    # MurmurHash3 fmix32 (Appleby 2011) of (position * 2654435761 + seed) mod 2^32.
+    m = (1 << 32) - 1
+
+    def key(p: int) -> int:
+        h = (p * 2654435761 + 77) & m
+        h = ((h ^ (h >> 16)) * 0x85EBCA6B) & m
+        h = ((h ^ (h >> 13)) * 0xC2B2AE35) & m
+        return h ^ (h >> 16)
+
+    idx = np.array(sorted(sorted(range(size), key=key)[:5000]))
     means = np.array([y[codes == c].mean() for c in range(3)])
     ref = stats.shapiro((y - means[codes])[idx])
     assert res.statistic == pytest.approx(ref.statistic, rel=1e-6)
