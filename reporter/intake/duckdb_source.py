@@ -1020,7 +1020,8 @@ class DuckRows:
         # Buckets per cell: enough that the buckets holding the wanted ranks are small (about
         # half of _FETCH values in all for evenly spread values, so that one fetch usually ends
         # the search), and at most about 4 million in all (the histogram is fetched as an array).
-        need = max(64 * len(q) + 2 * len(q) * (counts or {}).get(c, 0) * len(wanted) // _FETCH for c, q in wanted.items())
+        need = max(max(16 * len(q), 2 * len(q) * (counts or {}).get(c, 0) * len(wanted) // _FETCH)
+                   for c, q in wanted.items())
         nb = min(_MAX_BUCKETS, max(1024, 1 << math.ceil(math.log2(need))))
         nb = max(1024, min(nb, 1 << int(math.log2(max((1 << 22) // len(wanted), 1)))))
         lo = np.zeros(self.k)
@@ -1155,7 +1156,7 @@ class DuckRows:
         sum_dev2 = np.zeros(self.k)
         for c, m, s1, s2 in agg:
             count[c], sum_dev[c], sum_dev2[c] = m, s1, s2
-        top = self._q(f"SELECT r, cell, d {base} ORDER BY abs(e) DESC, r LIMIT {int(max(limit, 0))}")
+        top = self._q(f"SELECT r, cell, d {base} ORDER BY abs(e) DESC, r LIMIT {int(max(limit, 0))}") if count.any() else []
         rows = tuple((self._rownum.number(r), int(c), float(d)) for r, c, d in top)
         return FlaggedRows(total=int(count.sum()), rows=rows, count=count, sum_dev=sum_dev, sum_dev2=sum_dev2)
 
