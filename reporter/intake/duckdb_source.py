@@ -667,7 +667,7 @@ def load_out_of_core(plan, quiet: bool | None = None):
             f"d, {levels_sql} FROM obs"
         )
         all_kept = " AND ".join([f"c{j} >= 0" for j in range(nf)] + ["st = 0"])
-        con.execute(f"CREATE VIEW kept AS SELECT rowid + 1 AS r, {cell_sql} AS cell, d FROM obs WHERE {all_kept}")
+        con.execute(f"CREATE VIEW kept AS SELECT rowid + 1 AS r, rowid AS id, {cell_sql} AS cell, d FROM obs WHERE {all_kept}")
 
         # Exclusions by reason, with the first row numbers.
         reasons = []
@@ -791,6 +791,9 @@ def _check_spread(con, plan, pivot: float, source: str, rownum: "_RowNumbers", c
     if not n:
         return
     ends = [float(np.nanmin(d_lo)), float(np.nanmax(d_hi))]
+    lower, upper = numtext.spread_limits(n)
+    if math.isfinite(ends[0]) and math.isfinite(ends[1]) and ends[1] - ends[0] <= upper and not 0 < ends[1] - ends[0] < lower:
+        return  # within the limits: the check below would pass (its message names rows, looked up)
 
     def where(i: int) -> str:
         r = con.execute(f"SELECT min(r) FROM kept WHERE d = CAST('{ends[i]!r}' AS DOUBLE)").fetchall()[0][0]
@@ -1147,16 +1150,23 @@ class DuckRows:
         )
 
     def flagged(self, centre: np.ndarray, bound: np.ndarray, limit: int) -> FlaggedRows:
+        """One scan writes the flagged rows (usually few) to a temporary table; their per-cell
+        sums and the largest deviations are read from it."""
         c, b = _doubles(centre), _doubles(bound)
-        base = (f"FROM (SELECT r, cell, d, d - {c}[cell + 1] AS e, {b}[cell + 1] AS b FROM kept) "
-                "WHERE isfinite(b) AND abs(e) > b")
-        agg = self._q(f"SELECT cell, count(*), fsum(e), fsum(e * e) {base} GROUP BY cell")
+        with self._lock:
+            self._con.execute(
+                f"CREATE OR REPLACE TEMP TABLE flagged AS SELECT r, cell, d, e FROM (SELECT r, cell, d, "
+                f"d - {c}[cell + 1] AS e, {b}[cell + 1] AS b FROM kept) WHERE isfinite(b) AND abs(e) > b")
+        try:
+            agg = self._q("SELECT cell, count(*), fsum(e), fsum(e * e) FROM flagged GROUP BY cell")
+            top = self._q(f"SELECT r, cell, d FROM flagged ORDER BY abs(e) DESC, r LIMIT {int(max(limit, 0))}")
+        finally:
+            self._q("DROP TABLE flagged")
         count = np.zeros(self.k, dtype=np.int64)
         sum_dev = np.zeros(self.k)
         sum_dev2 = np.zeros(self.k)
         for c, m, s1, s2 in agg:
             count[c], sum_dev[c], sum_dev2[c] = m, s1, s2
-        top = self._q(f"SELECT r, cell, d {base} ORDER BY abs(e) DESC, r LIMIT {int(max(limit, 0))}") if count.any() else []
         rows = tuple((self._rownum.number(r), int(c), float(d)) for r, c, d in top)
         return FlaggedRows(total=int(count.sum()), rows=rows, count=count, sum_dev=sum_dev, sum_dev2=sum_dev2)
 
@@ -1169,7 +1179,7 @@ class DuckRows:
         else:
             pos = sample_positions(self.n, size, seed).tolist()
             if self.n == self._n_obs:
-                sql = "SELECT d, cell FROM kept WHERE r - 1 IN (SELECT unnest($1::BIGINT[])) ORDER BY r"
+                sql = "SELECT d, cell FROM kept WHERE id IN (SELECT unnest($1::BIGINT[])) ORDER BY r"  # row ids: fast
             else:
                 sql = ("SELECT d, cell FROM (SELECT d, cell, r, row_number() OVER () - 1 AS p FROM kept) "
                        "WHERE p IN (SELECT unnest($1::BIGINT[])) ORDER BY r")
