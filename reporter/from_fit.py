@@ -74,26 +74,37 @@ class FitStructure:
     notes: tuple[str, ...]
     ssr: float
     nobs: int
+    rows_dropped: int = 0
 
     @property
     def levels(self) -> dict[str, tuple[str, ...]]:
         return {f.name: f.levels for f in self.factors}
 
 
-def from_statsmodels(fit: Any, hypotheses: Mapping[str, str] | None = None, **analysis_options: Any):
+def from_statsmodels(
+    fit: Any,
+    hypotheses: Mapping[str, str | Mapping[str, Any]] | None = None,
+    **analysis_options: Any,
+):
     """The report of an ANOVA fitted with ``statsmodels.formula.api.ols``.
 
-    ``hypotheses`` maps a name to a statement, as in :func:`reporter.analyze`; without it, the
-    report tests each effect of the full factorial model. ``analysis_options`` are the plan's
-    ``[analysis]`` options; ``coding`` defaults to the coding of the fit (see the module notes).
-    Returns the same :class:`reporter.api.Report` as :func:`reporter.report`.
+    ``hypotheses`` maps a name to a statement, as in :func:`reporter.analyze` (an effect is
+    ``{"effect": "dose x sex"}``); without it, the report tests each effect of the full factorial
+    model. ``analysis_options`` are the keywords of :func:`reporter.analyze` beyond the data, the
+    outcome and the factors: the plan's ``[analysis]`` options, ``title``, ``summary``, ``study``.
+    ``coding`` defaults to the coding of the fit (see the module notes). The plan's summary
+    names the formula, the rows used and any note on the coding, after the summary given.
+
+    Returns the same :class:`reporter.api.Report` as :func:`reporter.report`; raises
+    :class:`~reporter.errors.FittedModelError` for a fit the report cannot reproduce.
     """
-    structure = read_fit(fit)
     from reporter.api import analyze
 
+    structure = read_fit(fit)
     options = dict(analysis_options)
-    if "coding" not in options:
-        options["coding"] = structure.coding
+    options.setdefault("coding", structure.coding)
+    given = options.pop("summary", None)
+    options["summary"] = " ".join(t for t in (given, fit_summary(structure)) if t)
     if hypotheses is None:
         hypotheses = default_hypotheses(structure)
     report = analyze(
@@ -107,14 +118,24 @@ def from_statsmodels(fit: Any, hypotheses: Mapping[str, str] | None = None, **an
     return report
 
 
-def default_hypotheses(structure: FitStructure) -> dict[str, str]:
+def fit_summary(structure: FitStructure) -> str:
+    """Where the analysis comes from, in words: the formula, the rows used, the notes."""
+    dropped = (f", leaving out {structure.rows_dropped} with a missing value"
+               if structure.rows_dropped else "")
+    formula = structure.formula if len(structure.formula) <= 300 else structure.formula[:299] + "…"
+    words = [f"The model was fitted by ordinary least squares from the formula "
+             f"{formula} on {structure.nobs} rows{dropped}; this report refits it."]
+    words.extend(structure.notes)
+    return " ".join(words)
+
+
+def default_hypotheses(structure: FitStructure) -> dict[str, dict[str, str]]:
     """One omnibus test per effect of the full factorial model, main effects first."""
     names = [f.name for f in structure.factors]
-    out: dict[str, str] = {}
+    out: dict[str, dict[str, str]] = {}
     for size in range(1, len(names) + 1):
         for combo in itertools.combinations(names, size):
-            effect = " x ".join(_quoted(n) for n in combo)
-            out[" x ".join(combo)] = f"effect: {effect}"
+            out[" x ".join(combo)] = {"effect": " x ".join(_quoted(n) for n in combo)}
     return out
 
 
@@ -213,6 +234,7 @@ def read_fit(fit: Any) -> FitStructure:
         notes=tuple(notes),
         ssr=float(results.ssr),
         nobs=nobs,
+        rows_dropped=int(missing.size),
     )
 
 

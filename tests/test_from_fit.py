@@ -92,7 +92,7 @@ def test_ordered_categorical_keeps_its_level_order(frame):
     df = frame.assign(dose=pd.Categorical(frame.dose, categories=["low", "mid", "high"], ordered=True))
     fit = smf.ols("y ~ dose * sex", df).fit()
     assert read_fit(fit).levels["dose"] == ("low", "mid", "high")
-    report = reporter.from_statsmodels(fit, hypotheses={"trend": "effect: dose"}, permutations=200)
+    report = reporter.from_statsmodels(fit, hypotheses={"trend": {"effect": "dose"}}, permutations=200)
     assert [lv for lv in report.prepared.design.factors[0].levels] == ["low", "mid", "high"]
     _params_match(report, fit)
 
@@ -168,3 +168,15 @@ def test_data_given_as_a_mapping_and_robust_errors(frame):
     report = reporter.from_statsmodels(fit, sums_of_squares="type-II", permutations=200)
     table = anova_lm(smf.ols("y ~ C(dose) * C(sex)", frame).fit(), typ=2)
     assert math.isclose(report.analysis.anova.rows[2].F, table["F"].iloc[2], rel_tol=1e-9)
+
+
+def test_summary_says_where_the_analysis_comes_from(frame):
+    """The report's summary names the formula, the rows used and left out, and the coding note,
+    after a summary the caller gives."""
+    fit = smf.ols("y ~ C(dose, Poly) * C(sex)", frame).fit()
+    report = reporter.from_statsmodels(fit, summary="A dose study.", permutations=200)
+    summary = report.prepared.plan.summary
+    assert summary.startswith("A dose study. The model was fitted by ordinary least squares")
+    assert "y ~ C(dose, Poly) * C(sex) on 87 rows, leaving out 3 with a missing value" in summary
+    assert 'coding "cell-means"' in summary
+    assert "y ~ C(dose, Poly) * C(sex)" in report.render("md").decode("utf-8")

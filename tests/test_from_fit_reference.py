@@ -45,12 +45,11 @@ def _sum_coded(formula: str) -> str:
 
 
 def _hypotheses(plan) -> dict:
-    """The plan's hypotheses as from_statsmodels takes them (name -> statement, with its role
-    when it is not the default)."""
+    """The plan's hypotheses as from_statsmodels takes them (name -> keys of the table)."""
     out: dict = {}
     for h in plan.hypotheses:
-        statement = f"effect: {h.effect}" if h.effect is not None else h.means
-        out[h.name] = statement if h.role == "planned" else {"statement": statement, "role": h.role}
+        table = {"effect": h.effect} if h.effect is not None else {"means": h.means}
+        out[h.name] = {**table, "role": h.role}
     return out
 
 
