@@ -179,4 +179,4 @@ def test_summary_says_where_the_analysis_comes_from(frame):
     assert summary.startswith("A dose study. The model was fitted by ordinary least squares")
     assert "y ~ C(dose, Poly) * C(sex) on 87 rows, leaving out 3 with a missing value" in summary
     assert 'coding "cell-means"' in summary
-    assert "y ~ C(dose, Poly) * C(sex)" in report.render("md").decode("utf-8")
+    assert "y ~ C(dose, Poly) * C(sex) on 87 rows" in report.render("html").decode("utf-8")
