@@ -75,6 +75,7 @@ class FitStructure:
     ssr: float
     nobs: int
     rows_dropped: int = 0
+    empty_cells: int = 0
 
     @property
     def levels(self) -> dict[str, tuple[str, ...]]:
@@ -130,7 +131,10 @@ def fit_summary(structure: FitStructure) -> str:
 
 
 def default_hypotheses(structure: FitStructure) -> dict[str, dict[str, str]]:
-    """One omnibus test per effect of the full factorial model, main effects first."""
+    """One omnibus test per effect of the full factorial model, main effects first; none when
+    a cell is empty (an effect over unweighted means then needs a mean that has no data)."""
+    if structure.empty_cells:
+        return {}
     names = [f.name for f in structure.factors]
     out: dict[str, dict[str, str]] = {}
     for size in range(1, len(names) + 1):
@@ -191,6 +195,7 @@ def read_fit(fit: Any) -> FitStructure:
     codings = [_factor_coding(spec, f) for f in factors_in_order]
     codes = []
     factors = []
+    level_notes: list[str] = []
     for fac, name, (kind, special, words) in zip(factors_in_order, names, codings):
         categories = tuple(spec.factor_infos[fac].categories)
         code = _level_codes(fac, spec, frame_all)[keep]
@@ -201,8 +206,17 @@ def read_fit(fit: Any) -> FitStructure:
                 "the fit. Refit it on the frame as it is now."
             )
         texts = _level_texts(name, categories)
-        order = _report_order(len(categories), kind, special)
-        codes.append(np.argsort(order)[code])
+        present = np.bincount(code, minlength=len(categories)) > 0
+        order = [i for i in _report_order(len(categories), kind, special) if present[i]]
+        position = np.full(len(categories), -1, dtype=np.int64)
+        position[order] = np.arange(len(order))
+        codes.append(position[code])
+        unused = [texts[i] for i in range(len(categories)) if not present[i]]
+        if unused:
+            level_notes.append(
+                f"{name}: the level{'s' if len(unused) > 1 else ''} {', '.join(unused)} of the fit's "
+                "design ha" + ("ve" if len(unused) > 1 else "s") + " no rows and is left out."
+            )
         factors.append(
             FitFactor(
                 name=name,
@@ -211,12 +225,28 @@ def read_fit(fit: Any) -> FitStructure:
                 coding=kind,
                 special=None if special is None else texts[special],
                 description=words,
-                moved=order != list(range(len(categories))),
+                moved=order != sorted(order),
             )
         )
+    for f in factors:
+        if len(f.levels) < 2:
+            raise FittedModelError(
+                f"from_statsmodels: factor {f.name!r} ({f.term}) has a single level, "
+                f"{f.levels[0]!r}, in the rows the fit used; a factor needs at least two levels to "
+                "be compared. Drop it from the formula and refit."
+            )
     y = np.asarray(model.endog, dtype=np.float64)
-    _check_design_rows(np.asarray(model.exog), codes, [len(f.levels) for f in factors])
+    sizes = [len(f.levels) for f in factors]
+    counts = np.bincount(np.ravel_multi_index(tuple(codes), tuple(sizes)), minlength=math.prod(sizes))
+    _check_design_rows(np.asarray(model.exog), codes, sizes)
     coding, notes = _plan_coding(factors, intercept, spec)
+    notes.extend(level_notes)
+    empty = int((counts == 0).sum())
+    if empty:
+        notes.append(
+            f"{empty} of the {counts.size} cells have no rows, so no effect is tested as a hypothesis "
+            "unless one is given; the ANOVA table tests what the observed cells can estimate."
+        )
     cov_type = str(getattr(results, "cov_type", "nonrobust"))
     if cov_type != "nonrobust":
         notes.append(
@@ -235,6 +265,7 @@ def read_fit(fit: Any) -> FitStructure:
         ssr=float(results.ssr),
         nobs=nobs,
         rows_dropped=int(missing.size),
+        empty_cells=empty,
     )
 
 
@@ -416,6 +447,11 @@ def _check_names(names: list[str], factors, outcome: str) -> None:
                 f"{seen[name]} and {fac.code}; a design has each factor once. Keep one and refit."
             )
         seen[name] = fac.code
+        if name.strip().lower() == "mean" or " x " in name or "×" in name:
+            raise FittedModelError(
+                f"from_statsmodels: the factor {name!r} ({fac.code}) has a name that hypotheses "
+                "reserve (\"mean\", or \" x \" between names). Rename the column in the data and refit."
+            )
         if name == outcome:
             raise FittedModelError(
                 f"from_statsmodels: {fac.code} makes the outcome {outcome!r} a factor as well. "

@@ -180,3 +180,23 @@ def test_summary_says_where_the_analysis_comes_from(frame):
     assert "y ~ C(dose, Poly) * C(sex) on 87 rows, leaving out 3 with a missing value" in summary
     assert 'coding "cell-means"' in summary
     assert "y ~ C(dose, Poly) * C(sex) on 87 rows" in report.render("html").decode("utf-8")
+
+
+@pytest.mark.filterwarnings("ignore:The design matrix is rank-deficient")
+def test_empty_cells_and_unused_levels(frame):
+    """An empty cell keeps the fit's residual SS and tests no effect by default (a note says so);
+    a category with no rows at all is left out, giving the same table as without it."""
+    df = frame[~((frame.dose == "high") & (frame.sex == "m"))]
+    fit = smf.ols("y ~ C(dose) * C(sex)", df).fit()
+    report = reporter.from_statsmodels(fit, permutations=200)
+    assert math.isclose(report.analysis.anova.ss_error, fit.ssr, rel_tol=1e-10)
+    assert report.analysis.hypotheses == ()
+    assert "1 of the 6 cells have no rows" in report.prepared.plan.summary
+    padded = frame.assign(dose=pd.Categorical(frame.dose, categories=["low", "mid", "high", "none"]))
+    fit = smf.ols("y ~ dose * C(sex)", padded).fit()
+    structure = read_fit(fit)
+    assert structure.levels["dose"] == ("low", "mid", "high")
+    assert any("none" in note and "no rows" in note for note in structure.notes)
+    report = reporter.from_statsmodels(fit, permutations=200)
+    table = anova_lm(smf.ols("y ~ C(dose, Sum) * C(sex, Sum)", frame).fit(), typ=3)
+    assert math.isclose(report.analysis.anova.rows[0].F, table.loc["C(dose, Sum)", "F"], rel_tol=1e-9)

@@ -150,10 +150,18 @@ def test_missing_interaction(frame, formula, missing, refit):
     ("y ~ 1", "no factor"),
     ("y ~ C(a) * C(a, Sum)", "two factors"),
     ("y ~ C(y)", "outcome"),
-], ids=["intercept-only", "factor-twice", "outcome-as-factor"])
+    ("y ~ C(a) * C(one)", "single level"),
+    ("y ~ C(a) * solo", "single level"),
+    ("y ~ C(mean) * C(b)", "reserve"),
+    ("y ~ Q('a x b') * C(c)", "reserve"),
+], ids=["intercept-only", "factor-twice", "outcome-as-factor", "one-level", "one-level-used", "named-mean",
+        "named-with-x"])
 def test_formula_without_a_design(frame, formula, phrase):
-    """Formulas that do not describe a factorial design of distinct factors are refused."""
-    _refused(_quiet(lambda: smf.ols(formula, frame).fit()), phrase)
+    """Formulas that do not describe a factorial design of distinct, named, compared factors are
+    refused."""
+    df = frame.assign(one="only", mean=frame["a"], **{"a x b": frame["a"] + frame["b"]},
+                      solo=pd.Categorical(["no"] * len(frame), categories=["no", "never"]))
+    _refused(_quiet(lambda: smf.ols(formula, df).fit()), phrase)
 
 
 def test_frame_changed_after_the_fit(frame):
