@@ -31,11 +31,14 @@ import ast
 import itertools
 import math
 from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import TYPE_CHECKING, Any, Mapping
 
 import numpy as np
 
 from reporter.errors import FittedModelError
+
+if TYPE_CHECKING:  # pragma: no cover
+    from reporter.api import Report
 
 # The residual SS of the refit must agree with the fit's to this relative difference.
 SSR_RELATIVE_TOLERANCE = 1e-8
@@ -86,7 +89,7 @@ def from_statsmodels(
     fit: Any,
     hypotheses: Mapping[str, str | Mapping[str, Any]] | None = None,
     **analysis_options: Any,
-):
+) -> "Report":
     """The report of an ANOVA fitted with ``statsmodels.formula.api.ols``.
 
     ``hypotheses`` maps a name to a statement, as in :func:`reporter.analyze` (an effect is
@@ -102,6 +105,14 @@ def from_statsmodels(
     from reporter.api import analyze
 
     structure = read_fit(fit)
+    taken = [k for k in ("data", "outcome", "factors") if k in analysis_options]
+    if taken:
+        raise FittedModelError(
+            f"from_statsmodels: {', '.join(taken)} {'is' if len(taken) == 1 else 'are'} read from "
+            f"the fit (outcome {structure.outcome!r}, factors "
+            f"{', '.join(repr(f.name) for f in structure.factors)}); leave "
+            f"{'it' if len(taken) == 1 else 'them'} out, or call reporter.analyze on a data frame."
+        )
     options = dict(analysis_options)
     options.setdefault("coding", structure.coding)
     given = options.pop("summary", None)

@@ -192,3 +192,11 @@ def test_other_formula_engine(frame, monkeypatch):
     monkeypatch.setattr(statsmodels.formula.options, "_formula_engine", "formulaic")
     fit = smf.ols("y ~ C(a) * C(b)", frame).fit()
     _refused(fit, "formulaic", 'formula_engine = "patsy"')
+
+
+@pytest.mark.parametrize("keyword", ["outcome", "factors", "data"])
+def test_keywords_read_from_the_fit(frame, keyword):
+    """The outcome, the factors and the data come from the fit: giving them is refused."""
+    fit = smf.ols("y ~ C(a) * C(b)", frame).fit()
+    with pytest.raises(FittedModelError, match=f"{keyword} is read from the fit"):
+        from_statsmodels(fit, **{keyword: "y"})
