@@ -256,8 +256,6 @@ def test_python_block(path: Path, index: int, tmp_path: Path):
 # The plan reference against the plan reader and defaults.py
 
 PLAN_REF = DOCS / "plan-reference.md"
-HEADINGS = {"Top level": "", "`[data]`": "data", "`[[factors]]`": "factors", "`[analysis]`": "analysis",
-            "`[[hypotheses]]`": "hypotheses", "`[study]`": "study"}
 MINIMAL = {"title": "t", "data": {"path": "d.csv", "outcome": "y"}, "factors": [{"name": "g", "levels": ["a", "b"]}]}
 PROBE = "zq_not_a_key"
 
@@ -291,28 +289,33 @@ def code_keys() -> dict[str, set[str]]:
 
 
 def documented() -> dict[str, dict[str, list[str]]]:
-    tables = markdown_tables(PLAN_REF)
+    """The key rows of plan-reference.md by table: under "## Top level" and under each heading
+    that names a table ("## `[data]`", "## `[[factors]]`", ...)."""
     out: dict[str, dict[str, list[str]]] = {}
-    for heading, table in HEADINGS.items():
-        rows = tables.get(heading, [])
-        assert rows, f"plan-reference.md has no table under '## {heading}'"
-        out[table] = {r[0].strip("`"): r for r in rows}
+    for heading, rows in markdown_tables(PLAN_REF).items():
+        m = re.fullmatch(r"`\[\[?(\w+)\]\]?`", heading)
+        if heading == "Top level" or m:
+            out["" if heading == "Top level" else m.group(1)] = {r[0].strip("`"): r for r in rows}
     return out
 
 
 def test_plan_reference_lists_exactly_the_keys_the_reader_accepts():
     code, docs = code_keys(), documented()
-    assert set(code) == set(docs), f"tables in code {sorted(code)}, in the doc {sorted(docs)}"
+    assert set(code) == set(docs), (f"tables the plan reader accepts {sorted(code)}, tables documented in "
+                                    f"docs/plan-reference.md {sorted(docs)}: give each table a '## `[name]`' section")
     for table, keys in code.items():
         shown = set(docs[table])
-        assert keys == shown, (f"[{table or 'top level'}]: in code but not documented {sorted(keys - shown)}; "
-                               f"documented but refused {sorted(shown - keys)}")
+        assert keys == shown, (f"[{table or 'top level'}]: keys accepted but not documented in docs/plan-reference.md "
+                               f"{sorted(keys - shown)} (add a row: key, type, default, meaning); documented but "
+                               f"refused {sorted(shown - keys)}")
 
 
 def _code_default(table: str, key: str):
-    """The default of a key as the code states it: defaults.py, else the plan's dataclasses."""
-    for source in (D.ANALYSIS_DEFAULTS, D.DATA_DEFAULTS, D.SUMMARY_DEFAULTS):
-        if table in ("analysis", "data") and key in source:
+    """The default of a key as the code states it: ``<TABLE>_DEFAULTS`` in defaults.py, else the
+    plan's dataclasses."""
+    sources = [getattr(D, f"{table.upper()}_DEFAULTS", {})] + ([D.SUMMARY_DEFAULTS] if table == "data" else [])
+    for source in sources:
+        if key in source:
             value = source[key]
             return list(value) if isinstance(value, tuple) else value
     spec = {"factors": P.FactorSpec, "hypotheses": P.HypothesisSpec, "study": P.StudySpec}.get(table)
