@@ -335,7 +335,7 @@ def _cmd_run(args) -> int:
             say.detail("fitting the model and every test")
             analysis = analyse(prep, quiet=say.quiet)
             say.detail(f"writing {', '.join(formats)} into {show_controls(str(args.out))}")
-            written = write_files(prep, analysis, args.out, formats)
+            written = write_files(prep, analysis, args.out, formats, argv=("anova-report", *args.argv))
     except KeyboardInterrupt as exc:
         if not getattr(exc, "__notes__", None):
             exc.add_note("no file was written")
@@ -388,6 +388,7 @@ def main(argv: list[str] | None = None) -> int:
     with _stop_on_signals():
         try:
             args = _parser().parse_args(argv)
+            args.argv = tuple(argv)  # recorded in the provenance, as typed
             if args.command is None:
                 _parser().print_help()
                 code = EXIT_BAD_INPUT

@@ -68,12 +68,15 @@ def _notify(message: str) -> None:
     print(f"anova-report: {message}", file=sys.stderr, flush=True)
 
 
-def render_outputs(prep, analysis: Analysis, formats) -> dict[str, bytes]:
-    """The bytes of each requested format (imports only what those formats need)."""
-    from reporter.render.results_json import render_json, results_dict
+def render_outputs(prep, analysis: Analysis, formats, *, argv=None, results_folder=None) -> dict[str, bytes]:
+    """The bytes of each requested format (imports only what those formats need).
 
-    provenance = collect_provenance(prep)
-    results = render_json(results_dict(prep, analysis, provenance))
+    ``argv`` is the command line as typed (None from Python); ``results_folder`` the folder the
+    files go to, which recorded input paths are relative to (None: paths as given)."""
+    from reporter.render.results_json import render_json
+
+    provenance = collect_provenance(prep, analysis=analysis, argv=argv, results_folder=results_folder)
+    results = render_json(results_document(prep, analysis, provenance))
     document = None
     if {"html", "pdf", "md"} & set(formats):
         from reporter.narrative.build import build_document
@@ -98,6 +101,13 @@ def render_outputs(prep, analysis: Analysis, formats) -> dict[str, bytes]:
         else:
             raise RenderError(f"--format {fmt}: unknown format.")
     return out
+
+
+def results_document(prep, analysis: Analysis, provenance) -> dict:
+    """The results.json document of a run (``anova-report verify`` recomputes it the same way)."""
+    from reporter.render.results_json import results_dict
+
+    return results_dict(prep, analysis, provenance)
 
 
 def _attachments(prep, results: bytes) -> dict[str, bytes]:
@@ -215,21 +225,22 @@ def _reason(exc: OSError) -> str:
     return exc.strerror or type(exc).__name__
 
 
-def write_outputs(prep, out: str | os.PathLike, formats, *, quiet: bool = False) -> list[Path]:
+def write_outputs(prep, out: str | os.PathLike, formats, *, quiet: bool = False, argv=None) -> list[Path]:
     """Check the output folder, fit, render every format in memory, then write the files
-    all or nothing."""
+    all or nothing. ``argv``: the command line, recorded in the provenance (None from Python)."""
     path = check_out_dir(out, prep, formats)  # before fitting: fail fast
-    return _write(prep, analyse(prep, quiet=quiet), path, formats)
+    return _write(prep, analyse(prep, quiet=quiet), path, formats, argv)
 
 
-def write_files(prep, analysis: Analysis, out: str | os.PathLike, formats) -> list[Path]:
-    """Render every format of a fitted analysis in memory, then write the files all or nothing."""
+def write_files(prep, analysis: Analysis, out: str | os.PathLike, formats, *, argv=None) -> list[Path]:
+    """Render every format of a fitted analysis in memory, then write the files all or nothing.
+    ``argv``: the command line, recorded in the provenance (None from Python)."""
     path = check_out_dir(out, prep, formats)
-    return _write(prep, analysis, path, formats)
+    return _write(prep, analysis, path, formats, argv)
 
 
-def _write(prep, analysis: Analysis, out: Path, formats) -> list[Path]:
-    blobs = render_outputs(prep, analysis, formats)
+def _write(prep, analysis: Analysis, out: Path, formats, argv=None) -> list[Path]:
+    blobs = render_outputs(prep, analysis, formats, argv=argv, results_folder=out)
     check_out_dir(out, prep, formats)  # the folder may have changed during the fit
     return commit(out, {out / FILE_NAMES[fmt]: blob for fmt, blob in blobs.items()})
 

@@ -13,6 +13,7 @@ result that an effect is absent.
 
 from __future__ import annotations
 
+import shlex
 from fractions import Fraction
 from typing import Sequence
 
@@ -892,14 +893,56 @@ class _Builder:
                                             + (", read out-of-core by DuckDB)" if p.data_reader == "out-of-core" else ")"))),
             (runs_of("Data SHA-256"), runs_of(p.data_sha256 or "—")),
             (runs_of("How the outcome was read"), runs_of(self.intake_words())),
+            *self.provenance_more(),
             (runs_of("Software"), runs_of(", ".join(f"{k} {v}" for k, v in p.software))),
             (runs_of("Created"), runs_of(p.created)),
         ]
         return Section("provenance", "Where this report came from", (
             Paragraph(runs_of("Re-running the same plan on a data file with the same SHA-256 reproduces every "
-                              "number in this report.")),
+                              "number in this report; anova-report verify, given results.json or the PDF report, "
+                              "does that and compares every number.")),
             DefinitionList(tuple(items)),
         ))
+
+    def provenance_more(self) -> list:
+        """Size, rows, paths, platform, command line, seeds and the lock of the provenance block."""
+        p = self.prov
+        items = []
+        if p.data_bytes is not None:
+            items.append((runs_of("Data file size"), runs_of(_count_noun(p.data_bytes, "byte"))))
+        if p.rows_read is not None:
+            excluded = "; ".join(f"{_count_noun(n, 'row')} {reason}" for reason, n in p.rows_excluded)
+            items.append((runs_of("Rows"), runs_of(
+                f"{N.format_count(p.rows_read)} read, {N.format_count(p.rows_used)} used, "
+                + (f"excluded: {excluded}" if excluded else "none excluded"))))
+        where = "relative to the folder of results.json" if p.paths_relative_to == "results-folder" else "as given"
+        paths = [f"plan {p.plan_path}" if p.plan_path else "", f"data {p.data_path}" if p.data_path else ""]
+        if any(paths):
+            items.append((runs_of("Input paths"), runs_of(f"{', '.join(x for x in paths if x)} ({where})")))
+        if p.lock_sha256:
+            items.append((runs_of("Plan lock SHA-256"), runs_of(p.lock_sha256)))
+        items.append((runs_of("Command line"), runs_of(
+            shlex.join(p.argv) if p.argv is not None else "none: made from Python, not by the anova-report command")))
+        if p.platform:
+            items.append((runs_of("Platform"), runs_of(p.platform)))
+        if p.randomness is not None:
+            items.append((runs_of("Random seeds and permutations"), runs_of(self.randomness_words())))
+        return items
+
+    def randomness_words(self) -> str:
+        r = self.prov.randomness
+        used = " and ".join(r.seed_used_by) if r.seed_used_by else "nothing in this run"
+        parts = [f"seed {r.seed} (used by: {used})"]
+        if r.permutations:
+            parts.append(f"up to {N.format_count(r.permutations)} permutations per permutation F test, stopping once "
+                         f"{r.permutation_stop_after} permuted F reach the observed one, skipped above "
+                         f"{_count_noun(r.permutation_max_rows, 'row')}")
+        if r.permutations_run:
+            parts.append("permutations drawn: " + ", ".join(f"{test} {N.format_count(m)}" for test, m in r.permutations_run))
+        if r.shapiro_sample is not None:
+            parts.append(f"Shapiro–Wilk on a sample of {N.format_count(r.shapiro_sample)} residuals")
+        parts.append(f"figure jitter seed {r.figure_jitter_seed}")
+        return "; ".join(parts) + "."
 
     def intake_words(self) -> str:
         data = self.prep.data

@@ -6,6 +6,7 @@ finite is written as null with a note that says why (``allow_nan=False`` guards 
 
 from __future__ import annotations
 
+import hashlib
 import json
 import math
 from fractions import Fraction
@@ -192,6 +193,32 @@ def _summary_dict(info, bounds) -> dict[str, Any]:
     return out
 
 
+def _provenance_more(p) -> dict[str, Any]:
+    """Input paths and size, rows, platform, command line, seeds and the lock's hash."""
+    r = p.randomness
+    return {
+        "data_path": p.data_path,
+        "plan_path": p.plan_path,
+        "paths_relative_to": p.paths_relative_to,
+        "data_bytes": p.data_bytes,
+        "rows": {"read": p.rows_read, "used": p.rows_used,
+                 "excluded": [{"reason": reason, "count": count} for reason, count in p.rows_excluded]},
+        "platform": p.platform,
+        "argv": None if p.argv is None else list(p.argv),
+        "randomness": None if r is None else {
+            "seed": r.seed,
+            "seed_used_by": list(r.seed_used_by),
+            "permutations": r.permutations,
+            "permutation_max_rows": r.permutation_max_rows,
+            "permutation_stop_after": r.permutation_stop_after,
+            "permutations_run": [{"test": test, "permutations": m} for test, m in r.permutations_run],
+            "shapiro_wilk_sample": r.shapiro_sample,
+            "figure_jitter_seed": r.figure_jitter_seed,
+        },
+        "lock_sha256": p.lock_sha256,
+    }
+
+
 def results_dict(prep, analysis, provenance) -> dict[str, Any]:
     """The results document as plain Python values, ready for ``json.dumps``."""
     plan, data, design = prep.plan, prep.data, analysis.design
@@ -311,6 +338,7 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
             "data_format": provenance.data_format,
             "data_reader": provenance.data_reader,
             "exact_decimal_intake": data.exact_decimal,
+            **_provenance_more(provenance),
             "software": dict(provenance.software),
             "created": provenance.created,
         },
@@ -365,8 +393,28 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
     return doc
 
 
+#: The field of results.json that holds the SHA-256 of the rest of the document in canonical form.
+DIGEST_FIELD = "results_sha256"
+
+
+def canonical_json(doc: dict[str, Any]) -> bytes:
+    """The canonical form of a results document: every field except :data:`DIGEST_FIELD`, keys
+    sorted at every depth, separators "," and ":" with no spaces, text as UTF-8 (not escaped),
+    numbers as Python's ``json`` writes them (the shortest text that reads back as the same
+    double), NaN and infinities refused."""
+    rest = {k: v for k, v in doc.items() if k != DIGEST_FIELD}
+    return json.dumps(rest, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False).encode("utf-8")
+
+
+def results_digest(doc: dict[str, Any]) -> str:
+    """The SHA-256 (hex) of :func:`canonical_json`: changes whenever any value of the document does."""
+    return hashlib.sha256(canonical_json(doc)).hexdigest()
+
+
 def render_json(doc: dict[str, Any]) -> bytes:
-    """Serialize; refuses NaN and Infinity (they must have become null with a note)."""
+    """Serialize with the digest of the rest as the last field; refuses NaN and Infinity (they
+    must have become null with a note)."""
+    doc = {**{k: v for k, v in doc.items() if k != DIGEST_FIELD}, DIGEST_FIELD: results_digest(doc)}
     return (json.dumps(doc, ensure_ascii=False, indent=2, allow_nan=False) + "\n").encode("utf-8")
 
 
