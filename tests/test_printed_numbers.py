@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import html as html_lib
 import math
+import os
 import re
 from html.parser import HTMLParser
 
@@ -326,6 +327,16 @@ def test_results_json_every_number_is_checked(oneway):
     L.skip(("analysis", "permutation_max_rows"), "a row limit from the plan's defaults, echoed")
     L.check(("data", "n_read"), N)
     L.check(("data", "n_analysed"), N)
+    # provenance: the data file's size as the operating system reports it (os.stat), the rows of
+    # the simulated project; seeds and counts are settings, echoed
+    L.check(("provenance", "data_bytes"), os.stat(out.report.prepared.plan.data.path).st_size)
+    L.check(("provenance", "rows", "read"), N)
+    L.check(("provenance", "rows", "used"), N)
+    for key in ("seed", "permutations", "permutation_max_rows"):
+        L.skip(("provenance", "randomness", key), "the plan's setting, echoed")
+    L.skip(("provenance", "randomness", "permutation_stop_after"),
+           "Besag & Clifford's (1991) h of the sequential permutation test, a constant of the method")
+    L.skip(("provenance", "randomness", "figure_jitter_seed"), "the figures' fixed jitter seed, a constant")
     # design: cell-means coding, β = the cell means (statsmodels params and bse)
     L.check(("design", "matrix"), np.eye(k).tolist())
     for c in range(k):

@@ -65,10 +65,11 @@ def test_markdown_has_methods_and_results(demo_report):
 
 
 def test_html_and_json_identical_across_processes(tmp_path):
-    """With a fixed SOURCE_DATE_EPOCH two separate runs write byte-identical HTML and JSON."""
+    """With a fixed SOURCE_DATE_EPOCH two separate runs of the same command write byte-identical
+    HTML and JSON."""
     outs = []
-    for i in range(2):
-        out = tmp_path / f"run{i}"
+    out = tmp_path / "run"
+    for _ in range(2):
         res = run(["run", str(DEMO / "factorial.toml"), "--out", str(out), "--format", "html,json"], EPOCH)
         assert res.returncode == 0, res.stderr
         outs.append(((out / "report.html").read_bytes(), (out / "results.json").read_bytes()))

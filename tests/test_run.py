@@ -35,10 +35,11 @@ def test_demo_results_validate_against_schema(plan, tmp_path):
 
 
 def test_json_is_byte_identical_under_source_date_epoch(tmp_path):
-    """Two separate processes with the same SOURCE_DATE_EPOCH write identical bytes."""
+    """Two separate processes running the same command with the same SOURCE_DATE_EPOCH write
+    identical bytes (the command line is recorded, so both runs type the same one)."""
     outs = []
-    for i in range(2):
-        out = tmp_path / f"o{i}"
+    out = tmp_path / "o"
+    for _ in range(2):
         res = run(["run", str(DEMO / "oneway.toml"), "--out", str(out), "--format", "json"], {"SOURCE_DATE_EPOCH": "1767225600"})
         assert res.returncode == 0, res.stderr
         outs.append((out / "results.json").read_bytes())
