@@ -1,4 +1,4 @@
-"""The ``anova-report`` command: ``check`` and ``run`` (one :class:`Command` each in :data:`COMMANDS`).
+"""The ``anova-report`` command: ``check``, ``run`` and ``verify`` (one :class:`Command` each in :data:`COMMANDS`).
 
 Results go to stdout; messages (progress, notes, warnings, errors) go to stderr, filtered by
 ``--quiet`` and ``--verbose`` (:class:`Messages`).
@@ -8,7 +8,8 @@ Exit codes (:data:`EXIT_CODES`; the same list is in ``--help``, README.md and DE
 * 0: done.
 * 1: a check failed: ``check`` read the plan and the data but the data fail a data check
   (:mod:`reporter.checks` lists the checks and what each one means); every failed check is
-  named on stderr.
+  named on stderr. Or ``verify`` found a difference: an input whose hash changed, a results
+  file edited after it was written, or a recomputed number that does not agree (listed on stdout).
 * 2: bad input (plan, data, options or output folder), with one clear message and no
   traceback unless ``--debug``.
 * 3: internal error: a one-line message naming the file that holds the traceback (a new file
@@ -49,7 +50,8 @@ EXIT_BROKEN_PIPE = 128 + 13
 #: Every exit code with its meaning, as --help prints it.
 EXIT_CODES = (
     (0, "done"),
-    (1, "a check failed: 'check' found data that fail a data check (each failure is named on stderr)"),
+    (1, "a check failed: 'check' found data that fail a data check (each failure is named on stderr), "
+        "or 'verify' found a difference (an input, the results file itself, or a recomputed number)"),
     (2, "bad input: plan, data, options or output folder"),
     (3, "internal error (the message names the file holding the traceback)"),
     (130, "stopped by SIGINT (Ctrl-C)"),
@@ -374,7 +376,42 @@ COMMANDS: tuple[Command, ...] = (
         arguments=_run_arguments,
         run=lambda args: _cmd_run(args),
     ),
+    Command(
+        name="verify",
+        summary="recompute a report from its recorded inputs and compare every number",
+        description="Read RESULTS (a results.json, or a report.pdf with results.json embedded), find the plan and "
+        "data it records (paths relative to the folder of RESULTS, or as given when the report was made in Python; "
+        "a PDF falls back on its embedded plan), check their SHA-256, check the digest that results.json keeps of "
+        "its own content, recompute everything and compare every number: numbers agree within 1e-10 relative, "
+        "whole numbers and text exactly. The verdict, the largest difference and the software versions on both "
+        "sides go to stdout. Exit 0 when everything agrees, 1 with a list of what differs (what, recorded, "
+        "recomputed), 2 when the check cannot be made.",
+        examples=("anova-report verify report/results.json",
+                  "anova-report verify report/report.pdf --data moved/recall.csv --plan moved/oneway.toml"),
+        notes="Reported when they differ, never failed (they describe the run, not its results): the creation "
+        "time, the software versions, the command line (argv), the platform, and the input file names and paths.",
+        arguments=_verify_arguments,
+        run=lambda args: _cmd_verify(args),
+    ),
 )
+
+
+def _verify_arguments(v: argparse.ArgumentParser) -> None:
+    v.add_argument("results", metavar="RESULTS", help="results.json or report.pdf written by 'anova-report run'")
+    v.add_argument("--data", metavar="FILE", help="the data file, when it is not where RESULTS records it")
+    v.add_argument("--plan", metavar="PLAN", help="the plan file, when it is not where RESULTS records it")
+
+
+def _cmd_verify(args) -> int:
+    from reporter.trail.verify import render_verification, verify
+
+    with _quiet_readers(args.messages.quiet):
+        result = verify(args.results, plan=args.plan, data=args.data, quiet=args.messages.quiet)
+    print(show_controls(render_verification(result), keep="\n"))
+    if not result.agrees:
+        args.messages.failed(f"verify found {len(result.differences)} difference(s); they are listed on stdout.")
+        return EXIT_CHECK_FAILED
+    return EXIT_OK
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -75,8 +75,8 @@ def render_outputs(prep, analysis: Analysis, formats, *, argv=None, results_fold
     files go to, which recorded input paths are relative to (None: paths as given)."""
     from reporter.render.results_json import render_json
 
-    provenance = collect_provenance(prep, analysis=analysis, argv=argv, results_folder=results_folder)
-    results = render_json(results_document(prep, analysis, provenance))
+    provenance, doc = results_document(prep, analysis, argv=argv, results_folder=results_folder)
+    results = render_json(doc)
     document = None
     if {"html", "pdf", "md"} & set(formats):
         from reporter.narrative.build import build_document
@@ -103,11 +103,14 @@ def render_outputs(prep, analysis: Analysis, formats, *, argv=None, results_fold
     return out
 
 
-def results_document(prep, analysis: Analysis, provenance) -> dict:
-    """The results.json document of a run (``anova-report verify`` recomputes it the same way)."""
+def results_document(prep, analysis: Analysis, *, argv=None, results_folder=None):
+    """The provenance and the results.json document of a run, as (provenance, dict).
+
+    The one place both are made: ``anova-report verify`` recomputes a run through it too."""
     from reporter.render.results_json import results_dict
 
-    return results_dict(prep, analysis, provenance)
+    provenance = collect_provenance(prep, analysis=analysis, argv=argv, results_folder=results_folder)
+    return provenance, results_dict(prep, analysis, provenance)
 
 
 def _attachments(prep, results: bytes) -> dict[str, bytes]:

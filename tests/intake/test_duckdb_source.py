@@ -550,6 +550,7 @@ def test_reports_agree_between_readers(tmp_path, case, monkeypatch):
     assert duck["provenance"]["data_reader"] == "out-of-core" and mem["provenance"]["data_reader"] == "in-memory"
     assert "duckdb" in duck["provenance"]["software"]
     differ = _numbers_agree(mem, duck)
-    allowed = re.compile(r"^/provenance/(data_reader|software|plan_sha256|plan_file)|/permutation(_note)?$|/permutation/")
+    allowed = re.compile(r"^/provenance/(data_reader|software|plan_sha256|plan_file|plan_path|randomness/(permutations_run|seed_used_by))"
+                         r"|^/results_sha256$|/permutation(_note)?$|/permutation/")
     assert [p for p in differ if not allowed.search(p)] == []
     assert duck["anova"]["rows"] and duck["hypotheses"]

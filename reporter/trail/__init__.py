@@ -1,0 +1,1 @@
+"""The study's paper trail: plan locks, deviations from them, and verification of results."""
