@@ -535,7 +535,7 @@ def test_hidden_characters_in_the_terminal(hidden, capsys):
 
 def test_exit_codes_are_documented_alike():
     """--help, README.md, DEVELOPERS.md and the command's docstring list the same exit codes,
-    and all say that 1 means a check failed."""
+    and all say that 1 means a check failed (check's data checks, or a difference verify found)."""
     res = subprocess.run([sys.executable, "-m", "reporter", "--help"], capture_output=True, text=True)
     texts = {
         "--help": " ".join(res.stdout.split()),
@@ -547,4 +547,5 @@ def test_exit_codes_are_documented_alike():
         for code, word in ((0, "done"), (1, "a check failed"), (2, "bad input"), (3, "internal error"),
                            (130, "SIGINT"), (143, "SIGTERM"), (141, "broken pipe")):
             assert re.search(rf"\b{code}\b", text) and word in text, (where, code, word)
+        assert "verify" in text and "reserved" not in text, where
     assert [c for c, _ in EXIT_CODES] == [0, 1, 2, 3, 130, 143, 141]
