@@ -33,7 +33,6 @@ import hashlib
 import io
 import json
 import logging
-import math
 import os
 import shlex
 import tempfile
@@ -63,7 +62,7 @@ REPORTED_FIELDS = (
 )
 
 #: Largest results file read (a results.json or a PDF report), in bytes.
-MAX_RESULTS_BYTES = 1 << 30
+MAX_RESULTS_BYTES = 1 << 28
 
 #: Differences listed in the text output; the count of the rest is given.
 SHOWN_DIFFERENCES = 200
@@ -271,11 +270,8 @@ def _compare(rec: Any, new: Any, path: tuple, w: _Walk) -> None:
         return
     if _is_number(rec) and _is_number(new):
         w.numbers += 1
-        if isinstance(rec, int) and isinstance(new, int):
-            agree, rel = rec == new, 0.0 if rec == new else math.inf
-        else:
-            rel = relative_difference(float(rec), float(new))
-            agree = rel <= RELATIVE_TOLERANCE
+        rel = relative_difference(float(rec), float(new))
+        agree = rec == new if isinstance(rec, int) and isinstance(new, int) else rel <= RELATIVE_TOLERANCE
         if rel > 0 and (w.largest is None or rel > w.largest[0]):
             w.largest = (rel, _field(path), rec, new)
         if not agree:

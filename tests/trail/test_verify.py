@@ -58,6 +58,10 @@ def test_untouched_run_verifies(made, capsys, name):
     assert "largest relative difference: no difference at all" in text
     assert "software recorded: python" in text and "software now:      python" in text
     assert "plan: " in text and "SHA-256 matches the recorded one" in text
+    if name == "report.pdf":  # the PDF embeds the very bytes of results.json
+        from pypdf import PdfReader
+
+        assert PdfReader(str(out / name)).attachments["results.json"][0] == (out / "results.json").read_bytes()
 
 
 @pytest.mark.parametrize("name", ["results.json", "report.pdf"])
