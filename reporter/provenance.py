@@ -11,7 +11,8 @@ when the report files are written to a folder (``anova-report run``, ``Report.wr
 and data paths are relative to that folder (``paths_relative_to = "results-folder"``); when the
 outputs are made in memory (``Report.render``), they are the paths as the plan gave them, the plan
 resolved to an absolute path and the data path joined to the plan's folder (``"as-given"``).
-A data frame passed from Python has no path (None).
+A data frame passed from Python has no path (None); with neither a plan file nor a data file,
+``paths_relative_to`` is None too.
 """
 
 from __future__ import annotations
@@ -56,7 +57,7 @@ class Provenance:
     data_reader: str = "in-memory"  # "out-of-core": read by DuckDB queries (duckdb_source)
     data_path: str | None = None  # see the module docstring for the rule
     plan_path: str | None = None
-    paths_relative_to: str = "as-given"  # or "results-folder"
+    paths_relative_to: str | None = "as-given"  # or "results-folder"; None when no path is recorded
     data_bytes: int | None = None  # size of the data file (all matched files of a glob); None for a frame
     rows_read: int | None = None
     rows_used: int | None = None
@@ -166,7 +167,8 @@ def collect_provenance(
     lock_sha256: str | None = None,
 ) -> Provenance:
     """The provenance of a run. ``argv`` is the command line as typed (None from Python);
-    ``results_folder`` the folder the report files go to (None when made in memory)."""
+    ``results_folder`` the folder the report files go to (None when made in memory);
+    ``lock_sha256`` defaults to the hash of the lock the prepared run was checked against."""
     plan, data = prep.plan, prep.data
     data_path = plan.data.path if data.sha256 is not None else None
     n_used = analysis.cells.n_total if analysis is not None else prep.cells.n_total
@@ -181,7 +183,8 @@ def collect_provenance(
         data_reader=data.reader,
         data_path=recorded_path(data_path, results_folder),
         plan_path=recorded_path(plan.source, results_folder),
-        paths_relative_to="as-given" if results_folder is None else "results-folder",
+        paths_relative_to=None if data_path is None and plan.source is None else (
+            "as-given" if results_folder is None else "results-folder"),
         data_bytes=_data_bytes(data, data_path),
         rows_read=data.n_read,
         rows_used=n_used,
@@ -189,5 +192,5 @@ def collect_provenance(
         platform=platform_text(),
         argv=None if argv is None else tuple(str(a) for a in argv),
         randomness=randomness(plan, analysis),
-        lock_sha256=lock_sha256,
+        lock_sha256=lock_sha256 or getattr(getattr(prep, "lock", None), "sha256", None),
     )
