@@ -200,3 +200,23 @@ def test_empty_cells_and_unused_levels(frame):
     report = reporter.from_statsmodels(fit, permutations=200)
     table = anova_lm(smf.ols("y ~ C(dose, Sum) * C(sex, Sum)", frame).fit(), typ=3)
     assert math.isclose(report.analysis.anova.rows[0].F, table.loc["C(dose, Sum)", "F"], rel_tol=1e-9)
+
+
+@pytest.mark.parametrize("formula, typ", [
+    ("y ~ C(sex) * C(dose)", 1),
+    ("y ~ C(sex) * C(dose) * C(batch)", 1),
+    ("y ~ C(sex) * C(dose) * C(batch)", 2),
+    ("y ~ C(sex, Sum) * C(dose, Sum) * C(batch, Sum)", 3),
+], ids=["two-way-sequential", "three-way-sequential", "three-way-adjusted", "three-way-unweighted"])
+def test_factor_order_and_three_factors(frame, formula, typ):
+    """Factors come in the formula's order (Type I is sequential in it); three factors with every
+    interaction give anova_lm's rows on the same fit."""
+    fit = smf.ols(formula, frame).fit()
+    ss = {1: "type-I", 2: "type-II", 3: "type-III"}[typ]
+    report = reporter.from_statsmodels(fit, sums_of_squares=ss, permutations=200)
+    table = anova_lm(fit, typ=typ).drop(index=["Intercept", "Residual"], errors="ignore")
+    expected = ["sex", "dose", "batch"] if "batch" in formula else ["sex", "dose"]
+    assert [f.name for f in report.prepared.design.factors] == expected
+    assert len(report.analysis.anova.rows) == len(table)
+    for row, (_, ref) in zip(report.analysis.anova.rows, table.iterrows()):
+        assert math.isclose(row.ss, ref["sum_sq"], rel_tol=1e-9) and math.isclose(row.F, ref["F"], rel_tol=1e-9)
