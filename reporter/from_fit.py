@@ -94,7 +94,8 @@ def from_statsmodels(
 
     ``hypotheses`` maps a name to a statement, as in :func:`reporter.analyze` (an effect is
     ``{"effect": "dose x sex"}``); without it, the report tests each effect of the full factorial
-    model. ``analysis_options`` are the keywords of :func:`reporter.analyze` beyond the data, the
+    model. Factors are named by their data columns (``C(dose, Sum)`` is the factor ``dose``) and
+    levels by their values as text (``C(mg)`` with values 5 and 10 has levels ``5`` and ``10``). ``analysis_options`` are the keywords of :func:`reporter.analyze` beyond the data, the
     outcome and the factors: the plan's ``[analysis]`` options, ``title``, ``summary``, ``study``.
     ``coding`` defaults to the coding of the fit (see the module notes). The plan's summary
     names the formula, the rows used and any note on the coding, after the summary given.
