@@ -1,4 +1,4 @@
-"""The ``anova-report`` command: ``check``, ``run`` and ``verify`` (one :class:`Command` each in :data:`COMMANDS`).
+"""The ``anova-report`` command: ``init``, ``check``, ``run`` and ``verify`` (one :class:`Command` each in :data:`COMMANDS`).
 
 Results go to stdout; messages (progress, notes, warnings, errors) go to stderr, filtered by
 ``--quiet`` and ``--verbose`` (:class:`Messages`).
@@ -347,6 +347,30 @@ def _cmd_run(args) -> int:
     return 0
 
 
+def _init_arguments(p: argparse.ArgumentParser) -> None:
+    p.add_argument("data", metavar="DATA", help="the data file (.csv, .tsv or .parquet)")
+    p.add_argument("--outcome", metavar="COL", help="the outcome column (default: guessed)")
+    p.add_argument("--factor", metavar="COL", action="append", default=[],
+                   help="a factor column; repeat for each factor (default: guessed)")
+    p.add_argument("--force", action="store_true", help="replace a plan of the same name")
+
+
+def _cmd_init(args) -> int:
+    from reporter.starter import plan_path, refuse_existing, starter_plan, write_starter
+
+    say = args.messages
+    refuse_existing(plan_path(args.data), args.force)  # before reading the data
+    with _quiet_readers(say.quiet):
+        starter = starter_plan(args.data, outcome=args.outcome, factors=args.factor)
+    say.detail(starter.read)
+    for line in starter.guesses:
+        say.note(line)
+    path = write_starter(starter, force=args.force)
+    say.note("read the plan, keep only the planned hypotheses, then run 'anova-report check' on it")
+    print(show_controls(str(path)))
+    return 0
+
+
 def _verify_arguments(v: argparse.ArgumentParser) -> None:
     v.add_argument("results", metavar="RESULTS", help="results.json or report.pdf written by 'anova-report run'")
     v.add_argument("--data", metavar="FILE", help="the data file, when it is not where RESULTS records it")
@@ -367,6 +391,20 @@ def _cmd_verify(args) -> int:
 
 #: The subcommands, in the order --help lists them.
 COMMANDS: tuple[Command, ...] = (
+    Command(
+        name="init",
+        summary="write a commented starter plan next to a data file",
+        description="Read DATA and write a starter plan beside it (the data file's name with .toml; its "
+        "path is printed on stdout). The outcome and the factors are guessed unless named with --outcome "
+        "and --factor; stderr says what was guessed and why. The plan lists the levels in order of first "
+        "appearance, an omnibus effect test for each main effect and interaction, and commented "
+        "directional statements written with the real level names. An existing plan is never replaced "
+        "without --force.",
+        examples=("anova-report init demo_project/recall_factorial.csv",
+                  "anova-report init study.parquet --outcome score --factor dose --factor site --force"),
+        arguments=_init_arguments,
+        run=lambda args: _cmd_init(args),
+    ),
     Command(
         name="check",
         summary="validate a plan and its data; show cells, design matrix, β meanings, contrasts and data checks (writes nothing)",
