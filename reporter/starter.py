@@ -4,8 +4,7 @@ The data file is read by the intake's rules (a regular file; UTF-8 text with a h
 Parquet; :mod:`reporter.intake.data`, :mod:`reporter.intake.files`). A file under
 ``OUT_OF_CORE_BYTES`` is read whole. A larger one is read in two steps: its first
 :data:`SAMPLE_ROWS` rows to guess the roles of the columns, then only the factor columns in
-full, to list every level (DuckDB for text, :mod:`reporter.intake.duckdb_source`; pyarrow
-batches for Parquet).
+full, to list every level (one DuckDB query, :mod:`reporter.intake.duckdb_source`).
 
 How the roles are guessed (the thresholds are common practice, no source):
 
@@ -159,6 +158,7 @@ class _Source:
         if not self.header:
             raise DataError(f"{describe_path(path)}: has no columns.")
         self.columns = _profile(self.header, sample)
+        self.sample = sample  # the rows the roles are guessed from
 
     def _read(self) -> tuple[list[str], list[Sequence]]:
         if self.suffix == ".parquet":
@@ -190,6 +190,11 @@ class _Source:
             self.rows = list(zip(*cols)) if cols else []
             return header, self.rows
         return header, list(zip(*cols)) if cols else []
+
+    def _parquet_types(self):
+        from reporter.intake.duckdb_source import _lit
+
+        return [(r[0], r[1]) for r in self._duck(f"DESCRIBE SELECT * FROM read_parquet({_lit(self.path.as_posix())})")]
 
     def _scan(self, width: int) -> str:
         from reporter.intake.duckdb_source import _lit
@@ -223,8 +228,6 @@ class _Source:
         if self.rows is not None:
             pairs: Iterable[Sequence] = ([rec[i] for i in idx] for rec in self.rows)
             grouped = None
-        elif self.suffix == ".parquet":
-            pairs, grouped = self._parquet_columns(names), None
         else:
             pairs, grouped = None, self._duck_columns(idx)
         if grouped is None:
@@ -246,22 +249,24 @@ class _Source:
                 counts[k] = counts.get(k, 0) + n
         return cols, counts
 
-    def _parquet_columns(self, names):
-        from reporter.intake.data import open_parquet
-
-        pf, _ = open_parquet(self.path)
-        for batch in pf.iter_batches(columns=list(names), batch_size=1 << 16):
-            yield from zip(*(batch.column(i).to_pylist() for i in range(batch.num_columns)))
-
     def _duck_columns(self, idx):
-        """Levels and combinations from DuckDB: one table of the needed columns (file order kept
-        in its rowid), then one GROUP BY."""
-        cols = ", ".join(f"c{i} AS f{j}" for j, i in enumerate(idx))
+        """Levels and combinations from DuckDB in one GROUP BY over the needed columns, each
+        combination with its first row: Parquet gives its row numbers; a text file's needed
+        columns are first copied to a table, whose rowid keeps the file's order."""
+        from reporter.intake.duckdb_source import _factor_text_sql, _ident, _lit
+
         keys = ", ".join(f"f{j}" for j in range(len(idx)))
-        rows = self._duck(
-            f"CREATE TABLE t AS SELECT {cols} FROM {self._scan(len(self.header))}",
-            f"SELECT {keys}, count(*), min(rowid) AS first FROM t GROUP BY ALL ORDER BY first",
-        )
+        if self.suffix == ".parquet":
+            types = dict(self._parquet_types())
+            cols = ", ".join(f"{_factor_text_sql(_ident(self.header[i]), types.get(self.header[i]))} AS f{j}"
+                             for j, i in enumerate(idx))
+            queries = [f"SELECT {keys}, count(*), min(file_row_number) AS first FROM (SELECT {cols}, file_row_number "
+                       f"FROM read_parquet({_lit(self.path.as_posix())}, file_row_number = true)) GROUP BY ALL ORDER BY first"]
+        else:
+            cols = ", ".join(f"c{i} AS f{j}" for j, i in enumerate(idx))
+            queries = [f"CREATE TABLE t AS SELECT {cols} FROM {self._scan(len(self.header))}",
+                       f"SELECT {keys}, count(*), min(rowid) AS first FROM t GROUP BY ALL ORDER BY first"]
+        rows = self._duck(*queries)
         profiles = [_Profile(self.header[i]) for i in idx]
         grouped: dict[tuple, int] = {}
         for r in rows:  # combinations in order of first appearance: so are the levels
@@ -288,6 +293,17 @@ def _named(source: _Source, name: str, option: str) -> Column:
 
 def _is_factor(c: Column) -> bool:
     return 2 <= c.distinct <= FACTOR_MAX_LEVELS and c.values >= 2 * c.distinct
+
+
+def _every_cell_seen(source: _Source, cols: Sequence[Column]) -> bool:
+    """Whether every combination of the columns' levels has a row (among the rows read so far)."""
+    idx = [source.header.index(c.name) for c in cols]
+    seen = set()
+    for rec in source.sample:
+        texts = [_text(rec[i]) for i in idx]
+        if all(t is not None for t in texts):
+            seen.add(tuple(level_key(t) for t in texts))
+    return len(seen) == math.prod(c.distinct for c in cols)
 
 
 def guess_roles(source: _Source, outcome: str | None, factors: Sequence[str]) -> tuple[Column, list[Column], list[str]]:
@@ -325,11 +341,18 @@ def guess_roles(source: _Source, outcome: str | None, factors: Sequence[str]) ->
     if not factors:
         candidates = [c for c in source.columns if c.name != out.name and _is_factor(c)]
         cells = 1
+        crossed: list[str] = []
         for c in candidates:
             if len(chosen) < MAX_GUESSED_FACTORS and cells * c.distinct <= D.MAX_CELLS:
-                chosen.append(c)
-                cells *= c.distinct
-        left = [c.name for c in candidates if c not in chosen]
+                if _every_cell_seen(source, [*chosen, c]):
+                    chosen.append(c)
+                    cells *= c.distinct
+                else:
+                    crossed.append(c.name)
+        if crossed:
+            why.append("not used as factors, because crossed with the others some combinations of levels have "
+                       "no rows: " + ", ".join(f"'{n}'" for n in crossed))
+        left = [c.name for c in candidates if c not in chosen and c.name not in crossed]
         if left:
             why.append("also possible factors, not used: " + ", ".join(f"'{n}'" for n in left)
                        + " (name every factor with --factor to choose)")
@@ -399,7 +422,10 @@ def starter_plan(data: str | os.PathLike, outcome: str | None = None, factors: S
     if cells > D.MAX_CELLS:
         raise OptionError(f"--factor: the factors give {cells} cells; a plan has at most {D.MAX_CELLS}. Name fewer factors.")
     empty = cells - sum(1 for k in counts if len(k) == len(cols))
-    text = "\n".join(_plan_lines(source, out, cols, why, empty, columns)) + "\n"
+    if empty:
+        why.append(f"{empty} of the {cells} combinations of the factors' levels have no rows; 'check' names the "
+                   "hypotheses that need them")
+    text = "\n".join(_plan_lines(source, out, cols, why, columns)) + "\n"
     target = plan_path(source.path)
     plan = _validate(text, target, source)
     text = text.replace(_ANALYSIS_MARK, "\n".join(_analysis_lines(plan)), 1)
@@ -427,7 +453,7 @@ def _validate(text: str, target: Path, source: _Source):
         raise DataError(f"{describe_path(source.path)}: no valid plan can be written for these columns: {exc}") from None
 
 
-def _plan_lines(source: _Source, out: Column, cols: list[Column], why: list[str], empty: int,
+def _plan_lines(source: _Source, out: Column, cols: list[Column], why: list[str],
                 columns: dict[str, str]) -> list[str]:
     data_name = source.path.name
     names = [c.name for c in cols]
@@ -441,8 +467,6 @@ def _plan_lines(source: _Source, out: Column, cols: list[Column], why: list[str]
         f"# Guesses (thresholds: common practice, no source; a factor has 2 to {FACTOR_MAX_LEVELS} distinct values):",
         *[f"#   {w}" for w in why],
     ]
-    if empty:
-        L.append(f"# {empty} combination(s) of the factor levels have no rows; 'check' names the hypotheses that need them.")
     L += [
         "",
         f"title = {toml_string(title)}",

@@ -166,7 +166,8 @@ def test_a_large_file_reads_a_sample_then_the_factor_columns_in_full(tmp_path, m
     """Above OUT_OF_CORE_BYTES the roles come from the first SAMPLE_ROWS rows and the levels from
     a full read of the factor columns: a level first seen after the sample is still listed, in
     its place; the plan is the one the whole-file read gives."""
-    lines = ["g,y,h"] + [f"{'ab'[i % 2]},{(i * 13) % 97 / 7:.4f},{'pq'[i % 3 == 0]}" for i in range(400)]
+    lines = ["g,y,h,dose"] + [f"{'ab'[i % 2]},{(i * 13) % 97 / 7:.4f},{'pq'[i % 3 == 0]},{(0.5, 1.0, 2.0)[i // 2 % 3]}"
+                              for i in range(400)]
     for r in range(300, 312):  # level c first appears at data row 300, beyond the sample
         lines[r] = "c," + lines[r].split(",", 1)[1]
     frame = pd.read_csv(io.StringIO("\n".join(lines)), dtype={"g": str, "h": str})
@@ -188,6 +189,9 @@ def test_a_large_file_reads_a_sample_then_the_factor_columns_in_full(tmp_path, m
     assert f"numeric with {frame['y'].head(100).nunique()} distinct values in the first 100 rows" in big
     doc = tomllib.loads(big)
     assert [f["levels"] for f in doc["factors"]] == [list(pd.unique(frame[c])) for c in ("g", "h")]
+    assert "not used as factors, because crossed with the others some combinations of levels have no rows: 'dose'" in big
+    named = S.starter_plan(large / f"d.{fmt}", factors=["g", "dose"]).text
+    assert tomllib.loads(named)["factors"][1] == {"name": "dose", "levels": ["0.5", "1.0", "2.0"]}  # floats as Python writes them
     assert doc["factors"][0]["levels"] == ["a", "b", "c"]
     monkeypatch.undo()
     S.write_starter(S.starter_plan(large / f"d.{fmt}"))
