@@ -22,7 +22,9 @@ Targets (read the ratios, not the seconds: these machines are noisy):
 
 The data are simulated (seeded) by ``make_scale_data.py`` beside this script.
 
-    python benchmarks/bench_scale.py [--folder DIR] [--max-rows 10000000] [--huge] [--repeat 1]
+    python benchmarks/bench_scale.py [--folder DIR] [--max-rows 10000000] [--huge] [--repeat 1] [--ratios]
+
+The machine's load average is printed before and after (the ratios mean little on a busy machine).
 """
 
 from __future__ import annotations
@@ -101,15 +103,18 @@ def main() -> None:
     ap.add_argument("--max-rows", type=int, default=10**7)
     ap.add_argument("--huge", action="store_true", help="also 10^8 rows of Parquet (about 1 GB of disk)")
     ap.add_argument("--repeat", type=int, default=1, help="runs per figure (median time, max memory)")
+    ap.add_argument("--ratios", action="store_true",
+                    help="only the rows at --max-rows beside the bare DuckDB script (no size sweep, no pandas)")
     args = ap.parse_args()
     folder = args.folder or Path(tempfile.mkdtemp(prefix="anova-report-bench-"))
     folder.mkdir(parents=True, exist_ok=True)
     print(f"data in {folder}; python {sys.version.split()[0]}; {os.cpu_count()} cores")
     print("| what | rows | wall s | ratio | peak MB | html MB | json MB |")
     print("|---|---|---|---|---|---|---|")
+    print(f"load average before: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     sizes = [n for n in (10**3, 10**4, 10**5, 10**6, 10**7) if n <= args.max_rows]
     base = None
-    for n in sizes:
+    for n in [] if args.ratios else sizes:
         data = write_rows(folder, n, "parquet")
         plan = write_plan(folder, data)
         out = folder / f"out-{n}"
@@ -123,10 +128,11 @@ def main() -> None:
         out = folder / f"out-json-{fmt}"
         t_bare, m_bare = median_measure([sys.executable, "-c", BARE_DUCKDB, str(data)], args.repeat)
         t_ours, m_ours = median_measure(ours(plan, out, "json"), args.repeat)
-        t_sm, m_sm = median_measure([sys.executable, "-c", PANDAS_STATSMODELS, str(data)], args.repeat)
         row(f"bare DuckDB GROUP BY, {fmt}", big, t_bare, m_bare, None, t_bare)
         row(f"default plan, {fmt}, json (÷ DuckDB)", big, t_ours, m_ours, out, t_bare)
-        row(f"pandas + statsmodels, {fmt} (÷ DuckDB)", big, t_sm, m_sm, None, t_bare)
+        if not args.ratios:
+            t_sm, m_sm = median_measure([sys.executable, "-c", PANDAS_STATSMODELS, str(data)], args.repeat)
+            row(f"pandas + statsmodels, {fmt} (÷ DuckDB)", big, t_sm, m_sm, None, t_bare)
     if args.huge:
         n = 10**8
         data = write_rows(folder, n, "parquet")
@@ -134,6 +140,7 @@ def main() -> None:
         out = folder / "out-huge"
         t, m = measure(ours(plan, out, "json"))
         row("default plan, Parquet, json (10^8)", n, t, m, out)
+    print(f"load average after: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     if args.folder is None:
         shutil.rmtree(folder, ignore_errors=True)
 
