@@ -108,10 +108,10 @@ def main() -> None:
     args = ap.parse_args()
     folder = args.folder or Path(tempfile.mkdtemp(prefix="anova-report-bench-"))
     folder.mkdir(parents=True, exist_ok=True)
-    print(f"data in {folder}; python {sys.version.split()[0]}; {os.cpu_count()} cores")
+    print(f"data in {folder}; python {sys.version.split()[0]}; {os.cpu_count()} cores; "
+          f"load average before: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     print("| what | rows | wall s | ratio | peak MB | html MB | json MB |")
     print("|---|---|---|---|---|---|---|")
-    print(f"load average before: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     sizes = [n for n in (10**3, 10**4, 10**5, 10**6, 10**7) if n <= args.max_rows]
     base = None
     for n in [] if args.ratios else sizes:

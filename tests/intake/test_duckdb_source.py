@@ -285,6 +285,30 @@ def test_quantiles_points_flagged_and_sample(rows_pair):
     assert rows.arrays() is None and rows.kind == "duckdb" and rows.n == y.size and rows.k == 6
 
 
+def test_order_statistics_when_buckets_must_be_refined(rows_pair, monkeypatch):
+    """With a fetch budget of a few values every wanted bucket is refined again (down to the
+    depth limit); medians, quantiles and figure points still equal numpy's (reference library)."""
+    y, cell, cells, rows, _ = rows_pair
+    monkeypatch.setattr(ds, "_FETCH", 1)
+    depths = []
+    refine = ds.DuckRows._refine
+
+    def counted(self, *args, **kwargs):
+        depths.append(args[4])
+        return refine(self, *args, **kwargs)
+
+    monkeypatch.setattr(ds.DuckRows, "_refine", counted)
+    rows._medians = None
+    assert_close(rows.medians(), np.array([np.median(y[cell == c]) for c in range(6)]))
+    scale = np.array([2.0, 3.0, 1.0, 4.0, 2.5, 5.0])
+    probs = np.linspace(0.0, 1.0, 41)
+    ref = np.quantile((y - cells.offset_mean[cell]) / scale[cell], probs)
+    assert_close(rows.residual_quantiles(cells.offset_mean, scale, probs), ref, rel=1e-10)
+    for c, p in enumerate(rows.cell_points(50)):
+        assert_close(p.values, np.quantile(y[cell == c], np.linspace(0, 1, 50)), rel=1e-10)
+    assert max(depths) >= 1
+
+
 def test_sample_key_is_murmur3_fmix32_and_both_searches_agree():
     """The sampling key equals MurmurHash3's fmix32 (Appleby 2011) of (p · 2654435761 + seed)
     mod 2^32, written here in Python from that definition; the search through the inverse hash
