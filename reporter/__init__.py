@@ -38,11 +38,13 @@ if TYPE_CHECKING:  # pragma: no cover
     from reporter.intake.plan import Plan
 
 
-def load_plan(path: str | os.PathLike[str]) -> "Plan":
+def load_plan(path: "str | os.PathLike[str]") -> "Plan":
     """Read and validate a plan file (see :func:`reporter.intake.plan.load_plan`)."""
+    from pathlib import Path
+
     from reporter.intake.plan import load_plan as _load
 
-    return _load(path)
+    return _load(Path(path))
 
 
 def plan_toml(plan: "Plan") -> str:

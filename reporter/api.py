@@ -47,7 +47,7 @@ class Prepared:
         return tuple(i for i, n in enumerate(self.counts) if n == 0)
 
 
-def prepare(plan: Plan | str | Path, data: Any = None, *, require_estimable: bool = True) -> Prepared:
+def prepare(plan: Plan | str | os.PathLike[str], data: Any = None, *, require_estimable: bool = True) -> Prepared:
     """Read (or take) the plan and the data, build the design and compile every hypothesis.
 
     ``data`` may be a pandas DataFrame; by default the plan's data file is read. With
@@ -55,7 +55,7 @@ def prepare(plan: Plan | str | Path, data: Any = None, *, require_estimable: boo
     (``anova-report check`` reports it as a failed data check instead of stopping).
     """
     if not isinstance(plan, Plan):
-        plan = load_plan(plan)
+        plan = load_plan(Path(plan))
     if plan.data.layout == "cell-summaries":
         dataset = read_summary(plan) if data is None else summary_from_frame(plan, data)
     else:
@@ -176,7 +176,7 @@ class Report:
         return target
 
 
-def build_report(plan: Plan | str | Path, data: Any = None) -> Report:
+def build_report(plan: Plan | str | os.PathLike[str], data: Any = None) -> Report:
     """Prepare and fit a plan."""
     from reporter.run import analyse
 
@@ -365,7 +365,7 @@ def _levels_in_order(data: Any, columns: list[str], column: str, factor: str) ->
     uniq, inv = _as_texts(values)
     _, first = np.unique(inv, return_index=True)  # O(N log N)
     order = np.argsort(first, kind="stable")
-    missing = set(D.DATA_DEFAULTS["missing"])  # type: ignore[arg-type]
+    missing = set(D.DATA_DEFAULTS["missing"])  # type: ignore[call-overload]
     seen, levels = set(), []
     for u in order.tolist():
         t = _value_text(uniq[u])

@@ -255,3 +255,14 @@ def test_public_names_and_typing():
     assert resources.files("reporter").joinpath("py.typed").is_file()
     conf = tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))
     assert "py.typed" in conf["tool"]["setuptools"]["package-data"]["reporter"]
+
+
+def test_mapping_of_columns():
+    """A plain mapping of column name to values works like a DataFrame (reference: scipy.stats.f_oneway)."""
+    from scipy.stats import f_oneway
+
+    data = {"g": ["a", "b", "c"] * 4, "y": [4.1, 5.0, 6.2, 3.9, 5.5, 6.0, 4.4, 4.8, 6.9, 4.0, 5.2, 6.4]}
+    report = reporter.analyze(data, outcome="y", factors={"g": None}, permutations=0)
+    row = report.to_json()["anova"]["rows"][0]
+    ref = f_oneway(*([y for g, y in zip(data["g"], data["y"]) if g == level] for level in "abc"))
+    assert math.isclose(row["F"], ref.statistic, rel_tol=1e-9) and math.isclose(row["p"], ref.pvalue, rel_tol=1e-9)
