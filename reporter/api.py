@@ -41,6 +41,7 @@ class Prepared:
     contrasts: tuple[Contrast, ...]
     cells: CellStats
     rows: RowAccess | None
+    lock: Any = None  # reporter.trail.deviations.LockCheck when the run is checked against a locked plan
 
     @property
     def empty_cells(self) -> tuple[int, ...]:

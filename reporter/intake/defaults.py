@@ -62,6 +62,22 @@ DATA_DEFAULTS: dict[str, object] = {
     "reader": "automatic",
 }
 
+PLANNING_DEFAULTS: dict[str, object] = {
+    # The optional [planning] table: the smallest effect of interest, from which the analysis-plan
+    # document of `anova-report lock` computes the cell size each planned test needs.
+    # For F tests (effect hypotheses and statements of several rows): Cohen's f (Cohen 1988, ch. 8).
+    "smallest_effect_f": None,
+    # For one-row contrasts (t tests): the contrast's value divided by the within-cell SD (d) ...
+    "smallest_effect_d": None,
+    # ... or the contrast's value in the outcome's own units, with the within-cell SD assumed
+    # (the two keys go together, and replace smallest_effect_d).
+    "smallest_difference": None,
+    "assumed_sd": None,
+    # The powers the table solves for.
+    "powers": (0.80, 0.90),
+}
+MAX_PLANNING_POWERS = 5
+
 # Keys of [data] that only a cell-summary table reads (layout = "cell-summaries").
 SUMMARY_DEFAULTS: dict[str, object] = {
     # Column holding each cell's number of observations (a whole number >= 1).

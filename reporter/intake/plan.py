@@ -126,6 +126,31 @@ class StudySpec:
 
 
 @dataclass(frozen=True)
+class PlanningSpec:
+    """The ``[planning]`` table: the smallest effect of interest for the a-priori power table.
+
+    ``smallest_effect_f`` (Cohen's f) serves the F tests; a one-row contrast (t test) uses
+    ``smallest_effect_d``, or ``smallest_difference`` in the outcome's units divided by
+    ``assumed_sd``. ``powers`` are the powers the table solves for.
+    """
+
+    smallest_effect_f: float | None = None
+    smallest_effect_d: float | None = None
+    smallest_difference: float | None = None
+    assumed_sd: float | None = None
+    powers: tuple[float, ...] = tuple(D.PLANNING_DEFAULTS["powers"])  # type: ignore[arg-type]
+
+    @property
+    def contrast_d(self) -> float | None:
+        """The standardized size of the smallest contrast of interest, however the plan gave it."""
+        if self.smallest_effect_d is not None:
+            return self.smallest_effect_d
+        if self.smallest_difference is not None and self.assumed_sd:
+            return self.smallest_difference / self.assumed_sd
+        return None
+
+
+@dataclass(frozen=True)
 class Plan:
     """A validated plan. ``source`` is the plan file (None for a plan built in Python)."""
 
@@ -136,6 +161,7 @@ class Plan:
     analysis: AnalysisSpec = field(default_factory=AnalysisSpec)
     study: StudySpec = field(default_factory=StudySpec)
     summary: str | None = None
+    planning: PlanningSpec | None = None  # the optional [planning] table
     source: Path | None = None
     sha256: str | None = None
     source_bytes: bytes | None = field(default=None, repr=False, compare=False)
@@ -150,7 +176,7 @@ class Plan:
 # ---------------------------------------------------------------------------------------------
 # Reading and validation
 
-_TOP_KEYS = ("title", "summary", "data", "factors", "analysis", "hypotheses", "study")
+_TOP_KEYS = ("title", "summary", "data", "factors", "analysis", "hypotheses", "study", "planning")
 _DATA_KEYS = ("path", "outcome", "delimiter", "decimal", "missing", "layout", "reader", *D.SUMMARY_DEFAULTS)
 _FACTOR_KEYS = ("name", "levels", "exclude", "column")
 _HYP_KEYS = ("name", "means", "effect", "role", "description")
@@ -390,6 +416,7 @@ def plan_from_dict(
     analysis = _read_analysis(doc, ck, factors)
     hypotheses = _read_hypotheses(doc, ck)
     study = _read_study(doc, ck)
+    planning = _read_planning(doc, ck, analysis)
     return Plan(
         title=title,
         summary=summary,
@@ -398,6 +425,7 @@ def plan_from_dict(
         hypotheses=hypotheses,
         analysis=analysis,
         study=study,
+        planning=planning,
     )
 
 
@@ -778,3 +806,52 @@ def _read_study(doc, ck: _Checker) -> StudySpec:
     ck.unknown_keys(t, _STUDY_KEYS, "study.", **loc)
     values = {k: ck.text(t, k, f"study.{k}", required=False, limit=D.MAX_DESCRIPTION_CHARS, **loc) for k in _STUDY_KEYS}
     return StudySpec(**values)
+
+
+def _read_planning(doc, ck: _Checker, analysis: AnalysisSpec) -> PlanningSpec | None:
+    """The optional ``[planning]`` table (see :data:`~reporter.intake.defaults.PLANNING_DEFAULTS`)."""
+    if "planning" not in doc:
+        return None
+    t = _table(doc, "planning", ck, required=False)
+    loc = {"table": "planning"}
+    ck.unknown_keys(t, tuple(D.PLANNING_DEFAULTS), "planning.", **loc)
+    sizes = {}
+    examples = {"smallest_effect_f": "0.25", "smallest_effect_d": "0.5", "smallest_difference": "3.5",
+                "assumed_sd": "5"}
+    for key, example in examples.items():
+        v = t.get(key)
+        if v is None:
+            sizes[key] = None
+            continue
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or not 0 < v <= 1e100:
+            raise ck.fail(f"planning.{key}", f"must be a positive number such as {example} "
+                          f"(got {ck.raw(key, v, **loc)}).", key=key, **loc)
+        sizes[key] = float(v)
+    if sizes["smallest_effect_d"] is not None and sizes["smallest_difference"] is not None:
+        raise ck.fail("planning.smallest_difference", "cannot stand beside 'smallest_effect_d': give the smallest "
+                      "contrast of interest once, either standardized (d) or in the outcome's units with assumed_sd.",
+                      key="smallest_difference", **loc)
+    if sizes["smallest_difference"] is not None and sizes["assumed_sd"] is None:
+        raise ck.fail("planning.assumed_sd", "is required with 'smallest_difference': add the within-cell SD you "
+                      "expect, e.g. assumed_sd = 5, so the difference can be put on the scale of the tests.",
+                      key="smallest_difference", **loc)
+    if sizes["assumed_sd"] is not None and sizes["smallest_difference"] is None:
+        raise ck.fail("planning.assumed_sd", "is only used with 'smallest_difference' (the smallest contrast in the "
+                      "outcome's units): add that key, or remove assumed_sd.", key="assumed_sd", **loc)
+    if all(sizes[k] is None for k in ("smallest_effect_f", "smallest_effect_d", "smallest_difference")):
+        raise ck.fail("planning", "names no smallest effect of interest: add smallest_effect_f (Cohen's f, for F "
+                      "tests), smallest_effect_d (for one-row contrasts) or smallest_difference with assumed_sd.",
+                      table="planning")
+    powers = t.get("powers", list(D.PLANNING_DEFAULTS["powers"]))
+    if (not isinstance(powers, list) or not powers or len(powers) > D.MAX_PLANNING_POWERS
+            or not all(isinstance(p, (int, float)) and not isinstance(p, bool) for p in powers)):
+        raise ck.fail("planning.powers", f"must be a list of 1 to {D.MAX_PLANNING_POWERS} powers such as [0.8, 0.9] "
+                      f"(got {_show(powers)}).", key="powers", **loc)
+    for j, p in enumerate(powers, start=1):
+        if not (analysis.alpha < p < 1):
+            raise ck.fail(f"planning.powers[{j}]", f"must lie between alpha ({analysis.alpha:g}) and 1, such as 0.8 "
+                          f"(got {_show(p)}).", key="powers", **loc)
+    if len(set(powers)) != len(powers):
+        raise ck.fail("planning.powers", f"lists a power twice (got {_show(powers)}); list each once.",
+                      key="powers", **loc)
+    return PlanningSpec(powers=tuple(float(p) for p in powers), **sizes)

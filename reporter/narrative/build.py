@@ -575,6 +575,8 @@ class _Builder:
         blocks.append(Paragraph(runs_of("Statement in the plan: ", c.statement if c.kind == "means" else f'effect = "{c.statement}"'), "small"))
         blocks.append(Paragraph(runs_of("H0: ", _unquote(c.null_text())), "symbols"))
         blocks.append(Paragraph(runs_of("H1: ", _unquote(c.alternative_text())), "symbols"))
+        if getattr(self.prep, "lock", None) is not None and c.name in self.prep.lock.added:
+            blocks.append(Paragraph(runs_of("Added after the plan was locked: tested as exploratory."), "small"))
         blocks.append(Paragraph(runs_of(self.hypothesis_words(h))))
         confirm_note = self.confirmatory_note(h, i)
         for n in h.notes:
@@ -583,23 +585,7 @@ class _Builder:
             blocks.append(Paragraph(runs_of("Note: " + n), "small"))
         if confirm_note:
             blocks.append(Paragraph(confirm_note))
-        cells_cols = (Column(runs_of("row")),) + tuple(Column(runs_of(cell.short), "center") for cell in d.cells) + (
-            Column(runs_of(N.symbol("h")), "right"),)
-        rows, marks = [], []
-        for r, (row, rhs) in enumerate(zip(c.weights, c.rhs), start=1):
-            rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(_fr(rhs))))
-            marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
-        blocks.append(Table(f"h{i}-cells", runs_of(f"Hypothesis {i} as a contrast over the cell means (", N.symbol("C·μ = h"), ")"), cells_cols, tuple(rows),
-                            highlight=tuple(marks), compact=True))
-        beta_cols = (Column(runs_of("row")),) + tuple(Column(runs_of(co.symbol), "center") for co in d.coefficients) + (
-            Column(runs_of(N.symbol("h")), "right"),)
-        rows, marks = [], []
-        for r, (row, rhs) in enumerate(zip(c.beta_weights, c.rhs), start=1):
-            rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(_fr(rhs))))
-            marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
-        blocks.append(Table(f"h{i}-betas", runs_of(f"Hypothesis {i} as the same contrast over the coefficients (", N.symbol("L = C·D"),
-                                    f", {CODING_NAMES[d.parameterization]} coding)"),
-                            beta_cols, tuple(rows), highlight=tuple(marks), compact=True))
+        blocks.extend(contrast_tables(i, c, d))
         if self.robust_confirmatory(h):
             items = [(runs_of("Confirmatory test"), runs_of(self.confirm_stat(h), ", ", self.p_text(h))),
                      (runs_of("Classical test"), runs_of(self.test_stat(t), ", ", N.stat_p(t.p), " (for comparison)"))]
@@ -958,7 +944,7 @@ class _Builder:
                 "about 15 to 17 significant digits.")
 
     def build(self) -> Document:
-        sections = [self.methods(), self.cells_section(), self.model_section()]
+        sections = [self.methods(), *lock_sections(getattr(self.prep, "lock", None)), self.cells_section(), self.model_section()]
         marg = self.marginal_section()
         if marg:
             sections.append(marg)
@@ -1308,6 +1294,47 @@ POSTHOC_METHOD_NOTES = {
                  "than 1e-8.",
 }
 POSTHOC_METHOD_NOTES["games-howell"] = POSTHOC_METHOD_NOTES["all-pairs"]
+
+
+def contrast_tables(i: int, c, d) -> tuple[Table, Table]:
+    """Hypothesis ``i`` (a compiled contrast ``c``) over the cell means (C·μ = h) and over the
+    coefficients of the design ``d`` (L = C·D): the report and the analysis-plan document print these."""
+
+    def table(ident, caption, heads, weights):
+        cols = (Column(runs_of("row")),) + tuple(Column(runs_of(hd), "center") for hd in heads) + (
+            Column(runs_of(N.symbol("h")), "right"),)
+        rows, marks = [], []
+        for r, (row, rhs) in enumerate(zip(weights, c.rhs), start=1):
+            rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(_fr(rhs))))
+            marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
+        return Table(ident, caption, cols, tuple(rows), highlight=tuple(marks), compact=True)
+
+    return (
+        table(f"h{i}-cells", runs_of(f"Hypothesis {i} as a contrast over the cell means (", N.symbol("C·μ = h"), ")"),
+              [cell.short for cell in d.cells], c.weights),
+        table(f"h{i}-betas", runs_of(f"Hypothesis {i} as the same contrast over the coefficients (", N.symbol("L = C·D"),
+                                     f", {CODING_NAMES[d.parameterization]} coding)"),
+              [co.symbol for co in d.coefficients], c.beta_weights),
+    )
+
+
+def lock_sections(check) -> tuple[Section, ...]:
+    """The comparison of the run with its locked plan (none without a lock): a match, or every deviation."""
+    if check is None:
+        return ()
+    where = (f"the plan locked at {check.created} (lock file {check.path.name}, SHA-256 {check.sha256})")
+    if check.matched:
+        return (Section("lock", "Comparison with the locked plan", (Paragraph(runs_of(
+            f"The analysis matched {where}: no hypothesis, option, factor, level or exclusion rule changed since, "
+            "and the data hold no level that the locked plan did not list.")),)),)
+    n = len(check.deviations)
+    blocks = [Paragraph(runs_of(f"The analysis departs from {where} in {_count_noun(n, 'way')}:")),
+              BulletList(tuple(runs_of(d.text) for d in check.deviations))]
+    if check.added:
+        blocks.append(Paragraph(runs_of(
+            "Hypotheses added after the lock are reported as exploratory, whatever role the plan gives them, and their "
+            "p values are adjusted within the exploratory family."), "small"))
+    return (Section("lock", "Comparison with the locked plan", tuple(blocks)),)
 
 
 def build_document(prep, analysis, provenance) -> Document:

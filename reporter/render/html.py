@@ -62,15 +62,16 @@ def draw_figure(figure: Figure) -> Markup:
     return Markup(svg.strip())
 
 
-def render_html_text(document: Document, *, for_print: bool = False) -> str:
-    """The report page as text; ``for_print`` switches on the PDF-only touches."""
+def render_html_text(document: Document, *, for_print: bool = False, template: str = "report.html.j2") -> str:
+    """The report page as text; ``for_print`` switches on the PDF-only touches. ``template``
+    names the page template ("plan.html.j2" for the analysis-plan document)."""
     sheets = ("report.css",) if for_print else ("report.css", "screen.css")
     css = Markup("\n").join(Markup(template_source(name).strip()) for name in sheets)
     view = build_view(document, draw=draw_figure, css=css, for_print=for_print)
-    text = html_environment().get_template("report.html.j2").render(view=view)
+    text = html_environment().get_template(template).render(view=view)
     return text if text.endswith("\n") else text + "\n"
 
 
-def render_html(document: Document) -> bytes:
+def render_html(document: Document, *, template: str = "report.html.j2") -> bytes:
     """The report as one self-contained HTML file, UTF-8 encoded."""
-    return render_html_text(document).encode("utf-8")
+    return render_html_text(document, template=template).encode("utf-8")

@@ -97,7 +97,7 @@ def _timestamp(created: str) -> datetime | None:
     return stamp
 
 
-def render_pdf(document: Document, attachments: Mapping[str, bytes]) -> bytes:
+def render_pdf(document: Document, attachments: Mapping[str, bytes], *, template: str = "report.html.j2") -> bytes:
     """The report as PDF/A-3b bytes, with each ``attachments`` item embedded under its name.
 
     Attachments keep their exact bytes; their dates are ``document.created`` when that is an
@@ -130,7 +130,7 @@ def render_pdf(document: Document, attachments: Mapping[str, bytes]) -> bytes:
         )
         for name, data in sorted(attachments.items())
     ]
-    html = render_html_text(document, for_print=True)
+    html = render_html_text(document, for_print=True, template=template)
     pdf = weasyprint.HTML(string=html, url_fetcher=fetcher).write_pdf(
         pdf_variant=PDF_VARIANT, attachments=files
     )

@@ -390,6 +390,7 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
     if data.summary is not None:
         doc["data"]["summary"] = _summary_dict(data.summary, analysis.rounding)
     doc.update(_inference_dict(prep, analysis))
+    doc["lock"] = _lock_dict(getattr(prep, "lock", None))
     return doc
 
 
@@ -409,6 +410,22 @@ def canonical_json(doc: dict[str, Any]) -> bytes:
 def results_digest(doc: dict[str, Any]) -> str:
     """The SHA-256 (hex) of :func:`canonical_json`: changes whenever any value of the document does."""
     return hashlib.sha256(canonical_json(doc)).hexdigest()
+
+
+def _lock_dict(check) -> dict[str, Any] | None:
+    """The comparison with the locked plan (reporter.trail.deviations.LockCheck), or None."""
+    if check is None:
+        return None
+    return {
+        "file": check.path.name,
+        "sha256": check.sha256,
+        "canonical_plan_sha256": check.canonical_sha256,
+        "created": check.created,
+        "matched": check.matched,
+        "deviations": [{"kind": d.kind, "subject": d.subject, "locked": d.locked, "now": d.now, "text": d.text}
+                       for d in check.deviations],
+        "added_after_lock": list(check.added),
+    }
 
 
 def render_json(doc: dict[str, Any]) -> bytes:
