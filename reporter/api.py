@@ -80,7 +80,10 @@ def prepare(plan: Plan | str | os.PathLike[str], data: Any = None, *, require_es
         rows = MemoryRows(dataset.y, cell, design.k, dataset.rows)
     counts = tuple(int(c) for c in cells.n)
     contrasts = compile_hypotheses(plan, design, counts if require_estimable else None)
-    return Prepared(plan, dataset, design, cell, counts, contrasts, cells, rows)
+    from reporter.trail.deviations import apply_lock
+
+    # Checked against the plan's lock (plan.lock.json beside the plan file) when there is one.
+    return apply_lock(Prepared(plan, dataset, design, cell, counts, contrasts, cells, rows))
 
 
 @dataclass(frozen=True)

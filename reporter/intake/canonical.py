@@ -62,6 +62,19 @@ def plan_mapping(plan: Plan) -> dict[str, Any]:
         for key in StudySpec.__dataclass_fields__
         if getattr(plan.study, key) is not None
     }
+    if plan.planning is not None:
+        out["planning"] = _planning(plan.planning)
+    return out
+
+
+def _planning(p) -> dict[str, Any]:
+    """The ``[planning]`` table: the keys it sets, and its powers."""
+    out: dict[str, Any] = {
+        key: float(getattr(p, key))
+        for key in ("smallest_effect_f", "smallest_effect_d", "smallest_difference", "assumed_sd")
+        if getattr(p, key) is not None
+    }
+    out["powers"] = [float(x) for x in p.powers]
     return out
 
 

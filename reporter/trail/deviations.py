@@ -78,16 +78,19 @@ def find_lock(plan_path, given: str | Path | None) -> Path | None:
 
 
 def apply_lock(prep, lock_file: str | Path | None = None, *, plan_path=None):
-    """The prepared run with its lock checked: ``prep.lock`` holds the :class:`LockCheck`, and every
-    hypothesis added after the lock is exploratory. Without a lock ``prep`` comes back unchanged."""
+    """The prepared run checked against its lock: ``prep.lock`` holds the :class:`LockCheck`, and
+    every hypothesis added after the lock is exploratory. The lock is ``lock_file``, else the lock
+    beside the plan file (``plan_path``, by default the plan's source); without one, ``prep`` comes
+    back as the plan states it. Applying another lock replaces the first."""
+    roles = {h.name: h.role for h in prep.plan.hypotheses}
+    contrasts = tuple(replace(c, role=roles.get(c.name, c.role)) for c in prep.contrasts)
     path = find_lock(plan_path if plan_path is not None else prep.plan.source, lock_file)
     if path is None:
-        return prep
+        return replace(prep, contrasts=contrasts, lock=None) if prep.lock is not None else prep
+    prep = replace(prep, contrasts=contrasts)
     check = check_against_lock(read_lock(path), prep)
-    if not check.added:
-        return replace(prep, lock=check)
     added = set(check.added)
-    contrasts = tuple(replace(c, role="exploratory") if c.name in added else c for c in prep.contrasts)
+    contrasts = tuple(replace(c, role="exploratory") if c.name in added else c for c in contrasts)
     return replace(prep, contrasts=contrasts, lock=check)
 
 
@@ -200,6 +203,13 @@ def _text(value: Any) -> str:
     return json.dumps(value, ensure_ascii=False)
 
 
+def _plain(value: Any) -> str | None:
+    """A plan value as the ``locked``/``now`` text of a deviation: text as it is, others as JSON."""
+    if value is None or isinstance(value, str):
+        return value
+    return json.dumps(value, ensure_ascii=False)
+
+
 def _table(mapping: dict, key: str) -> dict:
     value = mapping.get(key)
     return value if isinstance(value, dict) else {}
@@ -210,7 +220,7 @@ def _analysis(old: dict, new: dict) -> list[Deviation]:
     out = []
     for key in list(a) + [k for k in b if k not in a]:
         if a.get(key) != b.get(key):
-            out.append(Deviation("analysis-option-changed", f"analysis.{key}", _text(a.get(key)), _text(b.get(key)),
+            out.append(Deviation("analysis-option-changed", f"analysis.{key}", _plain(a.get(key)), _plain(b.get(key)),
                                  f"analysis.{key} was {_text(a.get(key))} in the locked plan and is now {_text(b.get(key))}."))
     return out
 
@@ -227,16 +237,16 @@ def _design(old: dict, new: dict, lock: Lock) -> list[Deviation]:
     out = []
     a, b = _table(old, "data"), _table(new, "data")
     if a.get("outcome") != b.get("outcome"):
-        out.append(Deviation("outcome-changed", "data.outcome", _text(a.get("outcome")), _text(b.get("outcome")),
+        out.append(Deviation("outcome-changed", "data.outcome", _plain(a.get("outcome")), _plain(b.get("outcome")),
                              f"The outcome was {_text(a.get('outcome'))} in the locked plan and is now {_text(b.get('outcome'))}."))
     fa, fb = _factors(old), _factors(new)
     for name in fb:
         if name not in fa:
-            out.append(Deviation("factor-added", name, None, _text(fb[name].get("levels")),
+            out.append(Deviation("factor-added", name, None, _plain(fb[name].get("levels")),
                                  f"Factor {name} (levels {_levels(fb[name])}) was added after the lock."))
     for name in fa:
         if name not in fb:
-            out.append(Deviation("factor-removed", name, _text(fa[name].get("levels")), None,
+            out.append(Deviation("factor-removed", name, _plain(fa[name].get("levels")), None,
                                  f"Factor {name} (levels {_levels(fa[name])}) was in the locked plan and is no longer."))
         elif fa[name].get("levels") != fb[name].get("levels") or fa[name].get("column") != fb[name].get("column"):
             lo, ln = list(fa[name].get("levels") or []), list(fb[name].get("levels") or [])
@@ -249,7 +259,7 @@ def _design(old: dict, new: dict, lock: Lock) -> list[Deviation]:
                 parts.append("reordered")
             if fa[name].get("column") != fb[name].get("column"):
                 parts.append(f"read from column {_text(fb[name].get('column'))} instead of {_text(fa[name].get('column'))}")
-            out.append(Deviation("levels-changed", name, _text(lo), _text(ln),
+            out.append(Deviation("levels-changed", name, _plain(lo), _plain(ln),
                                  f"The levels of {name} changed ({'; '.join(parts)}): locked {_levels(fa[name])}, "
                                  f"now {_levels(fb[name])}."))
     return out
@@ -265,12 +275,12 @@ def _exclusions(old: dict, new: dict) -> list[Deviation]:
     for name in fb:
         if name in fa and list(fa[name].get("exclude") or []) != list(fb[name].get("exclude") or []):
             was, now = list(fa[name].get("exclude") or []), list(fb[name].get("exclude") or [])
-            out.append(Deviation("exclusion-rules-changed", f"factors.{name}.exclude", _text(was), _text(now),
+            out.append(Deviation("exclusion-rules-changed", f"factors.{name}.exclude", _plain(was), _plain(now),
                                  f"The levels of {name} left out changed: locked {_text(was)}, now {_text(now)}."))
     for table, key in (("data", "missing"), ("study", "exclusion_rules")):
         was, now = _table(old, table).get(key), _table(new, table).get(key)
         if was != now:
-            out.append(Deviation("exclusion-rules-changed", f"{table}.{key}", _text(was), _text(now),
+            out.append(Deviation("exclusion-rules-changed", f"{table}.{key}", _plain(was), _plain(now),
                                  f"{table}.{key} was {_text(was)} in the locked plan and is now {_text(now)}."))
     return out
 

@@ -4,7 +4,7 @@ The lock is a JSON file beside the plan, named after it: ``oneway.toml`` is lock
 ``oneway.lock.json`` (:func:`lock_path`). It holds
 
 * ``canonical_plan``: the plan as parsed, every default filled in, keys by their plan names
-  (:func:`reporter.intake.canonical.plan_mapping`);
+  (:func:`reporter.intake.canonical.plan_mapping`, with the ``[planning]`` table);
 * ``canonical_plan_sha256``: the SHA-256 of that mapping's canonical JSON (:func:`canonical_json`:
   keys sorted, no spaces, UTF-8, as in RFC 8785's JSON Canonicalization Scheme for the values a
   plan holds: text, whole numbers, decimals, booleans, lists and tables);
@@ -68,13 +68,6 @@ def fraction_text(x: Fraction) -> str:
     return str(Fraction(x))
 
 
-def canonical_plan(plan) -> dict[str, Any]:
-    """The plan as a mapping by its plan names with every default filled in."""
-    from reporter.intake.canonical import plan_mapping
-
-    return plan_mapping(plan)
-
-
 def compiled_hypotheses(contrasts) -> list[dict[str, Any]]:
     """Each compiled hypothesis as the lock records it (exact weights over the cell means)."""
     return [
@@ -120,6 +113,7 @@ class LockedPlan:
 
 def build_lock(plan) -> LockedPlan:
     """Validate ``plan`` without data and compute the lock's content (nothing is written)."""
+    from reporter.intake.canonical import plan_mapping
     from reporter.model.design import design_from_plan
     from reporter.model.hypotheses import compile_hypotheses
     from reporter.provenance import created_timestamp, software_versions
@@ -128,7 +122,7 @@ def build_lock(plan) -> LockedPlan:
     design = design_from_plan(plan)
     contrasts = compile_hypotheses(plan, design)
     power = a_priori_power(plan, design, contrasts)
-    mapping = canonical_plan(plan)
+    mapping = plan_mapping(plan)
     content = {
         "schema": LOCK_SCHEMA,
         "plan_file": os.path.basename(str(plan.source)) if plan.source else None,

@@ -65,7 +65,7 @@ def test_mapping_is_plain_and_json_ready(name):
     m = plan_mapping(load_plan(DEMO / name))
     assert _plain(m)
     assert json.loads(json.dumps(m)) == m
-    assert list(m) == ["title", "summary", "data", "factors", "analysis", "hypotheses", "study"]
+    assert list(m) == ["title", "summary", "data", "factors", "analysis", "hypotheses", "study", "planning"]
 
 
 def test_every_default_filled_in_by_plan_names(tmp_path):

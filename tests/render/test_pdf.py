@@ -160,7 +160,7 @@ def test_stray_external_image_is_not_fetched():
 def test_outside_reference_fails_the_render(monkeypatch, document):
     """If the page ever asks for an outside resource, render_pdf fails and names it."""
     stray = '<!DOCTYPE html><html lang="en"><body><img src="https://example.org/x.png"></body></html>'
-    monkeypatch.setattr(pdf_module, "render_html_text", lambda doc, for_print: stray)
+    monkeypatch.setattr(pdf_module, "render_html_text", lambda doc, for_print, template="report.html.j2": stray)
     with pytest.raises(RenderError, match=r"https://example\.org/x\.png"):
         render_pdf(document, {})
 
