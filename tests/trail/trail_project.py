@@ -5,21 +5,9 @@ from __future__ import annotations
 
 from pathlib import Path
 
-PLAN = '''\
-title = "Seedling height under four growing media"
-[data]
-path = "heights.csv"
-outcome = "height_mm"
-[[factors]]
-name = "medium"
-levels = ["peat", "coir", "bark", "soil"]
-[[hypotheses]]
-name = "coir beats bark"
-means = "coir > bark"
-[[hypotheses]]
-name = "media differ"
-effect = "medium"
-[study]
+from conftest import ONEWAY_PLAN
+
+PLAN = ONEWAY_PLAN.lstrip() + '''[study]
 exclusion_rules = "Seedlings that died before measurement are left out."
 [planning]
 smallest_effect_f = 0.4
