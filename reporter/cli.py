@@ -303,6 +303,8 @@ def _run_arguments(r: argparse.ArgumentParser) -> None:
         default="html,json",
         help="comma-separated formats among json, html, pdf, md (default: %(default)s)",
     )
+    r.add_argument("--lock", metavar="FILE", default=None,
+                   help="compare the run with this locked plan (default: PLAN's .lock.json beside it, if any)")
 
 
 @contextlib.contextmanager
@@ -331,7 +333,11 @@ def _cmd_run(args) -> int:
         from reporter.run import analyse, check_out_dir, write_files
 
         with _quiet_readers(say.quiet):
-            prep = prepare(args.plan)
+            prep = prepare(args.plan)  # checked against the lock beside the plan, if any
+            if args.lock is not None:
+                from reporter.trail.deviations import apply_lock
+
+                prep = apply_lock(prep, args.lock)
             _describe_inputs(prep, say)
             check_out_dir(args.out, prep, formats)  # before fitting: fail fast
             say.detail("fitting the model and every test")
@@ -368,6 +374,19 @@ def _cmd_init(args) -> int:
     path = write_starter(starter, force=args.force)
     say.note("read the plan, keep only the planned hypotheses, then run 'anova-report check' on it")
     print(show_controls(str(path)))
+    return 0
+
+
+def _lock_arguments(p: argparse.ArgumentParser) -> None:
+    _plan_argument(p)
+    p.add_argument("--force", action="store_true", help="replace an existing lock and analysis-plan document")
+
+
+def _cmd_lock(args) -> int:
+    from reporter.trail.lock import lock_plan
+
+    for path in lock_plan(args.plan, force=args.force):
+        print(show_controls(f"wrote {path}"))
     return 0
 
 
@@ -431,6 +450,20 @@ COMMANDS: tuple[Command, ...] = (
         notes="Set SOURCE_DATE_EPOCH for byte-identical reruns.",
         arguments=_run_arguments,
         run=lambda args: _cmd_run(args),
+    ),
+    Command(
+        name="lock",
+        summary="freeze a plan before the data: write PLAN.lock.json and the analysis-plan document",
+        description="Validate PLAN without data (the levels come from the plan; the data file need not exist) and "
+        "write beside it the lock (for oneway.toml: oneway.lock.json, the canonical plan with its SHA-256 and "
+        "every hypothesis compiled to contrasts) and the analysis-plan document (oneway.analysis-plan.html and "
+        ".pdf, with the a-priori power of the plan's [planning] table). A later run of PLAN reports every "
+        "deviation from the lock. An existing lock is replaced only with --force. The paths written are "
+        "printed on stdout.",
+        examples=("anova-report lock study/plan.toml",
+                  "SOURCE_DATE_EPOCH=1764590400 anova-report lock demo_project/oneway.toml --force"),
+        arguments=_lock_arguments,
+        run=lambda args: _cmd_lock(args),
     ),
     Command(
         name="verify",
