@@ -264,3 +264,16 @@ def test_a_column_name_no_statement_can_hold_gets_a_factor_name_and_the_column_k
     plan = tmp_path / "d.toml"
     plan.write_text(_uncomment_examples(plan.read_text(encoding="utf-8")), encoding="utf-8")
     assert main(["check", str(plan), "-q"]) == 0
+
+
+def test_named_factors_with_an_empty_combination_are_kept_and_said(tmp_path):
+    """Factors named with --factor are used even when a combination of their levels has no rows;
+    init says so on stderr, and check then exits 1 naming the effects that need the empty cell."""
+    rows = ["y,a,b"] + [f"{i * 0.7:.1f},{a},{b}" for i, (a, b) in enumerate([("p", "u"), ("p", "v"), ("q", "u")] * 6)]
+    data = tmp_path / "d.csv"
+    data.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    res = run(["init", str(data), "--factor", "a", "--factor", "b"])
+    assert res.returncode == 0, res.stderr
+    assert "1 of the 4 combinations of the factors' levels have no rows" in res.stderr
+    res = run(["check", str(tmp_path / "d.toml")])
+    assert res.returncode == 1 and "check failed: estimable" in res.stderr and "(a=q, b=v)" in res.stderr
