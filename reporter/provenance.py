@@ -66,6 +66,9 @@ class Provenance:
     argv: tuple[str, ...] | None = None  # None when called from Python, not from the command
     randomness: Randomness | None = None
     lock_sha256: str | None = None  # the plan lock's SHA-256 when the run had one
+    # The digest results.json stores of itself (its results_sha256), for the report to print; set
+    # once the results are serialized, so results.json's own provenance never holds it.
+    results_sha256: str | None = None
 
 
 def _version(name: str) -> str:

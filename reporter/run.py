@@ -22,6 +22,7 @@ import signal
 import stat
 import sys
 import tempfile
+from dataclasses import replace
 from pathlib import Path
 from typing import Callable
 
@@ -73,10 +74,12 @@ def render_outputs(prep, analysis: Analysis, formats, *, argv=None, results_fold
 
     ``argv`` is the command line as typed (None from Python); ``results_folder`` the folder the
     files go to, which recorded input paths are relative to (None: paths as given)."""
-    from reporter.render.results_json import render_json
+    from reporter.render.results_json import DIGEST_FIELD, render_json, with_digest
 
     provenance, doc = results_document(prep, analysis, argv=argv, results_folder=results_folder)
+    doc = with_digest(doc)
     results = render_json(doc)
+    provenance = replace(provenance, results_sha256=doc[DIGEST_FIELD])  # printed by the report
     document = None
     if {"html", "pdf", "md"} & set(formats):
         from reporter.narrative.build import build_document

@@ -84,7 +84,8 @@ def test_same_command_twice_gives_identical_files_and_a_different_command_only_i
 
 
 def test_report_prints_the_provenance_block(project, tmp_path):
-    """The Markdown and HTML print size, rows, the command line, the platform and the seed."""
+    """The Markdown and HTML print size, rows, the command line, the platform, the seed and the
+    digest of the results.json made with them."""
     plan = project(ONEWAY_PLAN, {"heights.csv": ONEWAY_DATA})
     argv, out = _run(tmp_path, plan)
     doc = json.loads((out / "results.json").read_text(encoding="utf-8"))
@@ -97,6 +98,7 @@ def test_report_prints_the_provenance_block(project, tmp_path):
         assert f"{n} read, {n} used, none excluded" in text
         assert p["platform"] in text
         assert f"seed {p['randomness']['seed']} (used by: permutation F)" in text
+        assert re.search(rf"Results digest\W*{doc['results_sha256']} \(results_sha256 of the results.json", text)
     assert shlex.join(["anova-report", *argv]) in md
 
 

@@ -907,6 +907,9 @@ class _Builder:
             items.append((runs_of("Input paths"), runs_of(f"{', '.join(x for x in paths if x)} ({where})")))
         if p.lock_sha256:
             items.append((runs_of("Plan lock SHA-256"), runs_of(p.lock_sha256)))
+        if p.results_sha256:
+            items.append((runs_of("Results digest"), runs_of(
+                f"{p.results_sha256} (results_sha256 of the results.json made with this report)")))
         items.append((runs_of("Command line"), runs_of(
             shlex.join(p.argv) if p.argv is not None else "none: made from Python, not by the anova-report command")))
         if p.platform:

@@ -428,11 +428,15 @@ def _lock_dict(check) -> dict[str, Any] | None:
     }
 
 
+def with_digest(doc: dict[str, Any]) -> dict[str, Any]:
+    """The document with :data:`DIGEST_FIELD` (the digest of every other field) as its last field."""
+    return {**{k: v for k, v in doc.items() if k != DIGEST_FIELD}, DIGEST_FIELD: results_digest(doc)}
+
+
 def render_json(doc: dict[str, Any]) -> bytes:
     """Serialize with the digest of the rest as the last field; refuses NaN and Infinity (they
     must have become null with a note)."""
-    doc = {**{k: v for k, v in doc.items() if k != DIGEST_FIELD}, DIGEST_FIELD: results_digest(doc)}
-    return (json.dumps(doc, ensure_ascii=False, indent=2, allow_nan=False) + "\n").encode("utf-8")
+    return (json.dumps(with_digest(doc), ensure_ascii=False, indent=2, allow_nan=False) + "\n").encode("utf-8")
 
 
 def load_schema() -> dict[str, Any]:

@@ -9,6 +9,7 @@ just inside and just outside it."""
 from __future__ import annotations
 
 import json
+import os
 import shutil
 from pathlib import Path
 
@@ -193,8 +194,8 @@ def _pdf_without_results(path: Path) -> None:
         w.write(fh)
 
 
-@pytest.mark.parametrize("case", ["missing", "folder", "text", "other-json", "pdf-without-results", "broken-pdf",
-                                  "bad-json", "nan"])
+@pytest.mark.parametrize("case", ["missing", "folder", "fifo", "text", "other-json", "pdf-without-results",
+                                  "broken-pdf", "bad-json", "nan", "deep"])
 def test_what_cannot_be_checked_is_bad_input(made, capsys, tmp_path, case):
     """Exit 2, one line on stderr naming the file and the fix, nothing on stdout, no traceback."""
     target = tmp_path / "given"
@@ -210,6 +211,11 @@ def test_what_cannot_be_checked_is_bad_input(made, capsys, tmp_path, case):
         target.write_bytes(b"%PDF-1.7\n% nothing else follows\n")
     elif case == "bad-json":
         target.write_text('{"schema": "anova-report/results/1",', encoding="utf-8")
+    elif case == "fifo":  # refused without blocking: nobody writes to it
+        os.mkfifo(target)
+    elif case == "deep":
+        target.write_text('{"schema": "anova-report/results/1", "x": ' + "[" * 100_000 + "]" * 100_000 + "}",
+                          encoding="utf-8")
     elif case == "nan":
         target.write_text('{"schema": "anova-report/results/1", "provenance": {}, "x": NaN}', encoding="utf-8")
     code, text, err = verify(capsys, target)
@@ -228,3 +234,14 @@ def test_inputs_are_not_modified_by_verifying_a_pdf(made, capsys):
     before = [(f.read_bytes(), f.stat().st_mtime_ns) for f in files]
     assert verify(capsys, out / "report.pdf")[0] == 0
     assert [(f.read_bytes(), f.stat().st_mtime_ns) for f in files] == before
+
+
+def test_data_changed_beyond_reading_still_names_the_change(made, capsys):
+    """Data changed so that they can no longer be analysed: exit 1 with the data's hash, and a note
+    that nothing was recomputed (not exit 2: the inputs were found, they differ)."""
+    study, out = made
+    data = study / "heights.csv"
+    data.write_bytes(data.read_bytes().replace(b"14.2,coir", b"14.2,cork", 1))  # a level the plan does not list
+    code, text, _ = verify(capsys, out / "results.json")
+    assert code == 1
+    assert "input data (" in text and "no number was recomputed" in text and "cork" in text
