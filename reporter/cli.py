@@ -394,13 +394,14 @@ def _verify_arguments(v: argparse.ArgumentParser) -> None:
     v.add_argument("results", metavar="RESULTS", help="results.json or report.pdf written by 'anova-report run'")
     v.add_argument("--data", metavar="FILE", help="the data file, when it is not where RESULTS records it")
     v.add_argument("--plan", metavar="PLAN", help="the plan file, when it is not where RESULTS records it")
+    v.add_argument("--lock", metavar="FILE", help="the plan lock the run was compared with (default: the one beside the plan)")
 
 
 def _cmd_verify(args) -> int:
     from reporter.trail.verify import render_verification, verify
 
     with _quiet_readers(args.messages.quiet):
-        result = verify(args.results, plan=args.plan, data=args.data, quiet=args.messages.quiet)
+        result = verify(args.results, plan=args.plan, data=args.data, lock=args.lock, quiet=args.messages.quiet)
     print(show_controls(render_verification(result), keep="\n"))
     if not result.agrees:
         args.messages.failed(f"verify found {len(result.differences)} difference(s); they are listed on stdout.")

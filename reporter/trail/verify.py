@@ -287,8 +287,12 @@ def _compare(rec: Any, new: Any, path: tuple, w: _Walk) -> None:
 
 
 def verify(results: str | os.PathLike, *, plan: str | os.PathLike | None = None,
-           data: str | os.PathLike | None = None, quiet: bool = True) -> Verification:
+           data: str | os.PathLike | None = None, lock: str | os.PathLike | None = None,
+           quiet: bool = True) -> Verification:
     """Check a results file against its inputs and a recomputation (see the module docstring).
+
+    The run is compared with a plan lock as it was: ``lock`` when given, else the lock beside the
+    plan file, else (when the results record one) the lock of that name beside the recorded plan.
 
     Raises a :class:`ReporterError` (exit 2) when the check cannot be made: the results file is
     missing or is not one, a PDF holds no results.json, an input cannot be found.
@@ -360,6 +364,7 @@ def verify(results: str | os.PathLike, *, plan: str | os.PathLike | None = None,
             spec = load_plan(plan_path)
             spec = replace(spec, data=replace(spec.data, path=data_path))
             prep = prepare(spec)
+            prep = _with_lock(prep, doc, lock, _recorded(prov, "plan_path", results))
             _, new = results_document(prep, analyse(prep, quiet=quiet), argv=argv, results_folder=results.parent)
         except ReporterError as exc:
             if not changed:
@@ -387,6 +392,20 @@ def verify(results: str | os.PathLike, *, plan: str | os.PathLike | None = None,
         command=None if argv is None else tuple(argv),
         note=note,
     )
+
+
+def _with_lock(prep, doc, lock, recorded_plan: Path | None):
+    """The prepared run checked against the lock the recorded run used (see :func:`verify`)."""
+    from reporter.trail.deviations import apply_lock
+
+    if lock is not None:
+        return apply_lock(prep, lock)
+    recorded = doc.get("lock")
+    if prep.lock is None and isinstance(recorded, dict) and isinstance(recorded.get("file"), str) and recorded_plan:
+        beside = recorded_plan.parent / Path(recorded["file"]).name
+        if beside.is_file():
+            return apply_lock(prep, beside)
+    return prep
 
 
 def _versions(pairs) -> str:

@@ -245,3 +245,21 @@ def test_data_changed_beyond_reading_still_names_the_change(made, capsys):
     code, text, _ = verify(capsys, out / "results.json")
     assert code == 1
     assert "input data (" in text and "no number was recomputed" in text and "cork" in text
+
+
+def test_a_run_checked_against_its_lock_verifies_also_from_the_pdf_alone(made, capsys, tmp_path):
+    """lock, run, verify: the recomputation is compared with the same lock (beside the plan), and a
+    PDF whose plan file is gone finds the lock beside the recorded plan."""
+    from reporter.trail.lock import lock_plan
+
+    study, _ = made
+    lock_plan(study / "plan.toml")
+    out = tmp_path / "locked"
+    assert main(["run", str(study / "plan.toml"), "--out", str(out), "--format", "json,pdf"]) == 0
+    doc = json.loads((out / "results.json").read_text(encoding="utf-8"))
+    assert doc["provenance"]["lock_sha256"] == doc["lock"]["sha256"]
+    code, text, _ = verify(capsys, out / "results.json")
+    assert code == 0, text
+    (study / "plan.toml").unlink()
+    code, text, _ = verify(capsys, out / "report.pdf")
+    assert code == 0, text
