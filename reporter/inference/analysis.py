@@ -95,6 +95,13 @@ class Analysis:
 
 
 def describe_cell_summaries(cells: CellStats, fit: ModelFit, alpha: float) -> tuple[CellSummary, ...]:
+    """Each cell's n, mean, SD, SE and two 1 − α intervals for its mean.
+
+    ``ci`` is the one-sample t interval mean ± t(1 − α/2, n − 1)·SD/√n from the cell alone; the
+    last field is the model-based interval mean ± t(1 − α/2, df_error)·√(MSE/n), which pools the
+    variance over cells as the ANOVA does (Maxwell, Delaney & Kelley 2018, *Designing
+    Experiments and Analyzing Data*, 3rd ed., Routledge).
+    """
     out = []
     q_pooled = float(t_ppf(1 - alpha / 2, fit.df_error))
     for c in range(cells.k):

@@ -10,7 +10,9 @@ ANOVA rows (Lakens 2013, Frontiers in Psychology 4:863, between-subjects formula
     partial omega squared  (SS_effect - df_effect * MSE) / (SS_effect + (N - df_effect) * MSE)
     Cohen's f              sqrt(partial eta squared / (1 - partial eta squared))   (Cohen 1988)
 
-Partial omega squared is the form of Olejnik & Algina (2003) that Lakens (2013) reproduces; it
+Cohen 1988: *Statistical Power Analysis for the Behavioral Sciences*, 2nd ed., Lawrence Erlbaum.
+
+Partial omega squared is the form of Olejnik & Algina (2003, Psychological Methods 8, 434-447) that Lakens (2013) reproduces; it
 equals df_effect (F - 1) / (df_effect (F - 1) + N). Omega squared, in a one-way design, equals
 (F - 1) / (F + (df_error + 1) / df_effect). Both omegas are unbiased-type estimators and are
 returned as computed, negative values included (they are negative exactly when F < 1); truncating
@@ -26,10 +28,12 @@ then above zero exactly when the F test rejects at alpha.
 
 The standardized contrast of one contrast row is d = (c'y - h) / sqrt(MSE) after the weights (and h
 with them) are scaled so the positive weights sum to 1 and the negative weights to -1; its interval
-inverts the noncentral t distribution (Steiger & Fouladi 1997; Cumming & Finch 2001), and the
+inverts the noncentral t distribution (Steiger & Fouladi 1997, chapter 9 of Harlow, Mulaik & Steiger
+(eds.), *What If There Were No Significance Tests?*, Lawrence Erlbaum; Cumming & Finch 2001,
+Educational and Psychological Measurement 61, 532-574), and the
 small-sample correction is g = J d with Hedges' (1981) exact gamma-function J; g's interval is
 d's noncentral-t interval times the same J (Hedges 1981, JEBS 6, 107-128; Hedges & Olkin 1985,
-*Statistical Methods for Meta-Analysis*, chapter 5). A standardized contrast is defined only for
+*Statistical Methods for Meta-Analysis*, Academic Press, chapter 5). A standardized contrast is defined only for
 weights that sum to zero.
 
 scipy.stats.ncf.sf returns -cdf instead of 1 - cdf when the noncentrality is exactly 0 (scipy

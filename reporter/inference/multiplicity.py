@@ -8,7 +8,7 @@ Methods (m = number of p-values in the family, p_(1) <= ... <= p_(m) the sorted 
 - ``"hochberg"``: step-up, adjusted p_(i) = min_{j>=i} min(1, (m - j + 1) p_(j))
   (Hochberg 1988, Biometrika 75:800). Familywise control under independence or positive
   dependence; never larger than Holm's.
-- ``"bonferroni"``: min(1, m p).
+- ``"bonferroni"``: min(1, m p) (Dunn 1961, Journal of the American Statistical Association 56:52).
 - ``"benjamini-hochberg"``: step-up, adjusted p_(i) = min_{j>=i} min(1, m p_(j) / j)
   (Benjamini & Hochberg 1995, JRSS B 57:289). Controls the false discovery rate.
 - ``"none"``: the p-values unchanged.

@@ -9,7 +9,7 @@ They are computed stably:
 * the mean is refined by the corrected two-pass algorithm: m = m0 + sum(x - m0)/n, and
   S = sum((x - m)^2) - (sum(x - m))^2/n (Chan, Golub & LeVeque (1983), "Algorithms for
   computing the sample variance", The American Statistician 37(3), 242-247, eq. 1.7);
-* sums across cells use math.fsum (exactly rounded, Shewchuk 1997).
+* sums across cells use math.fsum (exactly rounded, Shewchuk 1997, Discrete & Computational Geometry 18, 305-363).
 
 Raw "sum of squares minus n times mean squared" formulas are never used. Values arrive as
 offsets from a pivot (see :mod:`reporter.intake.data`), which the statistics carry along.
