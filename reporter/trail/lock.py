@@ -15,7 +15,8 @@ The lock is a JSON file beside the plan, named after it: ``oneway.toml`` is lock
   hypothesis tests, not how it is worded (:mod:`reporter.trail.deviations`);
 * ``power``: the a-priori power table of the plan's ``[planning]`` table, if any.
 
-Beside the lock, the analysis-plan document is written as ``oneway.analysis-plan.html`` and
+The file follows the JSON Schema ``reporter/schema/lock-1.schema.json``. Beside the lock, the
+analysis-plan document is written as ``oneway.analysis-plan.html`` and
 ``oneway.analysis-plan.pdf`` (PDF/A-3b, with the plan and the lock attached). No data file is
 read: the levels come from the plan. An existing lock (or plan document) is replaced only with
 ``--force``; the three files are written all or nothing.

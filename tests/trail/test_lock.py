@@ -6,6 +6,7 @@ from __future__ import annotations
 import hashlib
 import io
 import json
+from pathlib import Path
 
 import pytest
 from pypdf import PdfReader
@@ -169,3 +170,19 @@ def test_plan_document_is_deterministic(locked, tmp_path, monkeypatch):
     assert lock_path(plan).read_bytes() == lock_path(locked).read_bytes()
     for fmt in ("html", "pdf"):
         assert document_paths(plan)[fmt].read_bytes() == document_paths(locked)[fmt].read_bytes()
+
+
+@pytest.mark.parametrize("name", ["oneway", "factorial"])
+def test_locks_follow_the_published_schema(name, locked):
+    """The demo's committed locks and a fresh one validate against reporter/schema/lock-1.schema.json
+    (jsonschema, Draft 2020-12), and each demo lock matches its plan as it is now."""
+    import jsonschema
+    from importlib import resources
+
+    from reporter.api import prepare
+
+    schema = json.loads(resources.files("reporter.schema").joinpath("lock-1.schema.json").read_text(encoding="utf-8"))
+    demo = Path(__file__).resolve().parents[2] / "demo_project"
+    for path in (demo / f"{name}.lock.json", lock_path(locked)):
+        jsonschema.Draft202012Validator(schema).validate(json.loads(path.read_bytes()))
+    assert prepare(demo / f"{name}.toml").lock.matched
