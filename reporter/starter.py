@@ -22,6 +22,7 @@ Values that the intake reads as missing (``[data] missing``) are not levels.
 
 from __future__ import annotations
 
+import collections
 import difflib
 import math
 import os
@@ -157,6 +158,7 @@ class _Source:
         self.header, sample = self._read()
         if not self.header:
             raise DataError(f"{describe_path(path)}: has no columns.")
+        sample = sample[:SAMPLE_ROWS]  # the roles are guessed from the first rows, whatever the file's size
         self.columns = _profile(self.header, sample)
         self.sample = sample  # the rows the roles are guessed from
 
@@ -226,21 +228,19 @@ class _Source:
         not counted)."""
         idx = [self.header.index(n) for n in names]
         if self.rows is not None:
-            pairs: Iterable[Sequence] = ([rec[i] for i in idx] for rec in self.rows)
-            grouped = None
-        else:
-            pairs, grouped = None, self._duck_columns(idx)
-        if grouped is None:
+            # One pass over the rows counts each combination of raw values (in order of first
+            # appearance); each distinct combination is then read as text once.
+            raw = collections.Counter(tuple(rec[i] for i in idx) for rec in self.rows)
             grouped = {}
             profiles = [_Profile(n) for n in names]
-            for rec in pairs:
+            for rec, n in raw.items():
                 for p, v in zip(profiles, rec):
-                    p.add(v)
+                    p.add(v, n)
                 key = tuple(_text(v) for v in rec)
-                grouped[key] = grouped.get(key, 0) + 1
+                grouped[key] = grouped.get(key, 0) + n
             cols = [p.column() for p in profiles]
         else:
-            grouped, cols = grouped
+            grouped, cols = self._duck_columns(idx)
         counts: dict[tuple, int] = {}
         for key, n in grouped.items():
             texts = [_text(v) for v in key]
