@@ -145,7 +145,7 @@ class _Source:
 
         if any(ch in path.name for ch in "*?"):
             raise DataError(f"{describe_path(path)}: init reads one data file; name the file, not a pattern.")
-        self.path = require_file(path)
+        self.path = require_file(path, "Give 'anova-report init' the path of a .csv, .tsv or .parquet data file.")
         self.suffix = path.suffix.lower()
         if self.suffix not in (".csv", ".tsv", ".txt", ".parquet"):
             raise DataError(

@@ -107,10 +107,11 @@ class Dataset:
 # Public entry points
 
 
-def require_file(path: Path) -> Path:
+def require_file(path: Path, fix: str | None = None) -> Path:
     """The data path, after checking that it names a regular file that can be opened for reading
-    (a folder, a FIFO, a device or a socket is refused; see :mod:`reporter.intake.files`)."""
-    _open_data(path).close()
+    (a folder, a FIFO, a device or a socket is refused; see :mod:`reporter.intake.files`).
+    ``fix`` replaces the advice of the message when the path came from elsewhere than the plan."""
+    _open_data(path, fix).close()
     return path
 
 
@@ -135,9 +136,9 @@ def load_data(plan: Plan) -> Dataset:
 _DATA_FIX = "Check [data] path in the plan (it is relative to the plan file); it must name a data file."
 
 
-def _open_data(path: Path):
+def _open_data(path: Path, fix: str | None = None):
     """The data file opened for reading, if it is a regular file (see :mod:`reporter.intake.files`)."""
-    return open_regular(path, "the data file", DataError, _DATA_FIX)
+    return open_regular(path, "the data file", DataError, fix or _DATA_FIX)
 
 
 def _read_text_file(path: Path) -> tuple[bytes, str]:

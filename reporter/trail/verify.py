@@ -170,8 +170,14 @@ def _pdf_attachments(raw: bytes, shown: str) -> dict[str, bytes]:
 
 def _recorded(prov: dict[str, Any], key: str, results: Path) -> Path | None:
     value = prov.get(key)
-    if not isinstance(value, str) or not value:
+    if value is None:
         return None
+    option = "--plan PLAN" if key == "plan_path" else "--data FILE"
+    if not isinstance(value, str) or not value or "\0" in value:
+        raise OptionError(
+            f"{describe_path(results)}: provenance.{key} must be a path written as text, got "
+            f"{json.dumps(value, ensure_ascii=False)[:80]}; the file was not written by 'anova-report run' as it is. "
+            f"Give the file with {option}.")
     path = Path(value)
     if prov.get("paths_relative_to") == "results-folder" and not path.is_absolute():
         path = results.parent / path
@@ -196,7 +202,16 @@ def data_sha256(path: Path) -> str:
 def _data_exists(path: Path) -> bool:
     from reporter.intake.duckdb_source import is_glob
 
-    return bool(glob.glob(str(path))) if is_glob(path) else path.exists()
+    return bool(glob.glob(str(path))) if is_glob(path) else _exists(path)
+
+
+def _exists(path: Path) -> bool:
+    """Whether a recorded path names something; a path the system refuses (too long, a name
+    part too long) names nothing here."""
+    try:
+        return path.exists()
+    except (OSError, ValueError):
+        return False
 
 
 def _short_hash(h) -> str:
@@ -318,7 +333,7 @@ def verify(results: str | os.PathLike, *, plan: str | os.PathLike | None = None,
 
     with contextlib.ExitStack() as stack:
         plan_path = Path(plan) if plan is not None else _recorded(prov, "plan_path", results)
-        if plan_path is None or (plan is None and not plan_path.exists()):
+        if plan_path is None or (plan is None and not _exists(plan_path)):
             if embedded_plan is None:
                 missing = ("records no plan file (the plan was built in Python)" if plan_path is None else
                            f"records the plan at {describe_path(prov.get('plan_path'))} ({_where(prov)}), which is not there")
@@ -337,8 +352,17 @@ def verify(results: str | os.PathLike, *, plan: str | os.PathLike | None = None,
         if data is None and not _data_exists(data_path):
             raise OptionError(f"{shown}: records the data at {describe_path(prov.get('data_path'))} ({_where(prov)}), "
                               "which is not there; give the data file with --data FILE.")
+        given = f"--data {describe_path(data_path)}" if data is not None else (
+            f"{shown}: the data it records at {describe_path(data_path)}")
         if data_path.suffix.lower() not in D.DATA_SUFFIXES:
-            raise OptionError(f"--data {describe_path(data_path)}: must end in .csv, .tsv or .parquet; give the data file.")
+            raise OptionError(f"{given}: must end in .csv, .tsv or .parquet; give the data file with --data FILE.")
+        from reporter.intake.duckdb_source import is_glob
+
+        if not is_glob(data_path):
+            from reporter.intake.data import require_file
+
+            require_file(data_path, "Give the data file with --data FILE." if data is not None else
+                         f"It is the data path recorded in {shown}; give the data file with --data FILE.")
 
         raw_plan = read_limited(plan_path, "the plan file", OptionError, "Give the plan with --plan PLAN.",
                                 D.MAX_PLAN_BYTES, "a plan file")
