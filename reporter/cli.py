@@ -227,8 +227,10 @@ def _say(text: str, keep: str = "") -> None:
     """One message on stderr, hidden characters shown; a closed stderr is not an error."""
     if sys.stderr is None:  # started with stderr closed
         return
+    # A path that is not UTF-8 holds surrogates: written as \udcXX, so the message is never lost.
+    text = show_controls(text, keep).encode("utf-8", "backslashreplace").decode("utf-8")
     with contextlib.suppress(OSError, ValueError):
-        print(f"anova-report: {show_controls(text, keep)}", file=sys.stderr)
+        print(f"anova-report: {text}", file=sys.stderr)
         sys.stderr.flush()
 
 

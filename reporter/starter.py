@@ -456,6 +456,12 @@ def _validate(text: str, target: Path, source: _Source):
 def _plan_lines(source: _Source, out: Column, cols: list[Column], why: list[str],
                 columns: dict[str, str]) -> list[str]:
     data_name = source.path.name
+    try:
+        data_name.encode("utf-8")
+    except UnicodeEncodeError as exc:
+        raise DataError(
+            f"{describe_path(source.path)}: the file's name holds bytes that are not UTF-8 (position {exc.start}), "
+            "so a plan cannot name it. Rename the file with UTF-8 characters only.") from None
     names = [c.name for c in cols]
     title = f"{out.name} by {' and '.join(names)}"[: D.MAX_TITLE_CHARS]
     L = [
@@ -497,7 +503,15 @@ def _plan_lines(source: _Source, out: Column, cols: list[Column], why: list[str]
             L += ["", "[[hypotheses]]", f"name = {toml_string(f'{kind} of {label}'[: D.MAX_NAME_CHARS])}",
                   f"effect = {toml_string(_effect_text(combo))}"]
     L += _directional_examples(cols)
-    return L
+    # A comment ends at a line break and TOML refuses control characters in it: names from the
+    # data (file, columns, levels) are shown there with those characters written as \\uXXXX.
+    return [_comment(line) if line.startswith("#") else line for line in L]
+
+
+def _comment(line: str) -> str:
+    from reporter.render.visible import show_controls
+
+    return show_controls(line).encode("utf-8", "backslashreplace").decode("utf-8")
 
 
 _ANALYSIS_MARK = "# [analysis]: every key at its default"
