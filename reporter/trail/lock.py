@@ -151,6 +151,8 @@ def lock_plan(plan_path: str | os.PathLike, *, force: bool = False) -> list[Path
     from reporter.trail.plan_document import build_plan_document
 
     plan_path = Path(plan_path)
+    if not plan_path.name:  # ".", "/": a folder, which has no name to put the lock beside; the reader refuses it
+        load_plan(plan_path)
     targets = {"lock": lock_path(plan_path), **document_paths(plan_path)}
     _refuse_existing(targets, force)
     plan = load_plan(plan_path)
