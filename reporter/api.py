@@ -379,6 +379,12 @@ def _levels_in_order(data: Any, columns: list[str], column: str, factor: str) ->
         if k not in seen:
             seen.add(k)
             levels.append(t)
+    if len(levels) < 2:
+        got = "the data have no rows" if len(values) == 0 else (
+            f"its only value is {levels[0]!r}" if levels else "every value is missing")
+        raise DataError(f"analyze(): factors[{factor!r}] reads the column '{column}', which must hold at least 2 "
+                        f"distinct values to be a factor ({got}). Give data with rows in at least 2 levels, or "
+                        "list the levels, e.g. factors={\"dose\": [\"low\", \"high\"]}.")
     return levels
 
 

@@ -577,6 +577,10 @@ def _directional_examples(cols: list[Column]) -> list[str]:
 def plan_path(data: str | os.PathLike) -> Path:
     """Where the starter plan of a data file goes: beside it, its name with ``.toml``."""
     path = Path(data)
+    if not path.name:  # ".", "/": a folder, which has no name to put a plan beside; the reader refuses it
+        from reporter.intake.data import require_file
+
+        require_file(path, "Give 'anova-report init' the path of a .csv, .tsv or .parquet data file.")
     return path.with_name(path.stem + ".toml")
 
 

@@ -179,7 +179,18 @@ def data_from_frame(plan: Plan, frame: Any, name: str = "DataFrame") -> Dataset:
     """Match a pandas DataFrame (or any mapping of column name to sequence) to the plan."""
     columns = [str(c) for c in frame.columns] if hasattr(frame, "columns") else list(frame)
     needed = _needed_columns(plan, columns, name)
-    n = len(frame[needed[0]]) if needed else 0
+    lengths: dict[str, int] = {}
+    for c in needed:  # a mapping of columns may hold a scalar or columns of unequal length
+        try:
+            lengths[c] = len(frame[c])
+        except TypeError:
+            raise DataError(f"{name}: column '{c}' must be a sequence of values, one per row "
+                            f"(got {type(frame[c]).__name__}).") from None
+    if len(set(lengths.values())) > 1:
+        shown = ", ".join(f"'{c}' {k}" for c, k in lengths.items())
+        raise DataError(f"{name}: the columns have different lengths ({shown}); every column needs one value per row. "
+                        "Give columns of equal length (a DataFrame has them).")
+    n = lengths[needed[0]] if needed else 0
     col_values: dict[str, Sequence[Any]] = {}
     for c in needed:
         col = frame[c]
