@@ -160,12 +160,20 @@ class Report:
 
     def _write_one(self, path: str | os.PathLike[str], fmt: str, method: str) -> Path:
         """Render one format, then write it to ``path`` all or nothing (an input file is never replaced)."""
+        from reporter.intake.files import describe_path
         from reporter.run import _input_files, commit
 
         if not isinstance(path, (str, os.PathLike)) or not str(os.fspath(path)).strip() or "\0" in str(os.fspath(path)):
             raise RenderError(f"{method}(path): give the path of the file to write, such as \"report.{fmt}\" "
                               f"(got {path!r}).")
         target = Path(os.fspath(path))
+        try:
+            os.lstat(target)
+        except FileNotFoundError:
+            pass
+        except OSError as exc:  # a name too long, a file where a folder should be, ...
+            raise RenderError(f"{method}({describe_path(target)!r}): cannot be written there ({exc.strerror or exc}); "
+                              f"give another path, such as \"report.{fmt}\".") from None
         if target.is_dir():
             raise RenderError(f"{method}({str(target)!r}): is a folder; give a file name, such as "
                               f"{str(target / ('report.' + fmt))!r}.")

@@ -258,3 +258,62 @@ def test_init_guess_reads_a_sample_and_counts_every_level(tmp_path, capsys):
     plan = tomllib.loads((tmp_path / "late.toml").read_text(encoding="utf-8"))
     assert plan["factors"][0]["levels"] == ["a", "b", "c"]
     assert data.read_bytes() == before
+
+
+@pytest.mark.parametrize("path", [".", "/", ""])
+@pytest.mark.parametrize("command", ["init", "lock"])
+def test_folder_without_a_name(tmp_path, capsys, monkeypatch, command, path):
+    monkeypatch.chdir(tmp_path)
+    _bad([command, path], capsys, "is a folder")
+    assert list(tmp_path.iterdir()) == []
+
+
+# ---------------------------------------------------------------------------------------------
+# analyze() and Report: data of the wrong shape, paths the system refuses
+
+
+@pytest.mark.parametrize(("data", "words"), [
+    ({"g": list("aabbcc"), "y": [1.0, 2.0, 3.0]}, "different lengths"),
+    ({"g": list("aabbcc"), "y": [1.0] * 7}, "different lengths"),
+    ({"g": list("aabbcc"), "y": 5}, "sequence of values"),
+    ({"g": list("aabbcc"), "y": None}, "sequence of values"),
+])
+def test_analyze_columns_of_unequal_length(data, words):
+    import reporter
+    from reporter.errors import DataError
+
+    with pytest.raises(DataError, match=words) as info:
+        reporter.analyze(data, outcome="y", factors=["g"])
+    assert "'y'" in str(info.value)
+
+
+@pytest.mark.parametrize(("g", "words"), [
+    ([], "no rows"),
+    (["a"] * 4, "only value is 'a'"),
+    ([None] * 4, "every value is missing"),
+    (["NA", "", "NA", ""], "every value is missing"),
+])
+def test_analyze_factor_with_fewer_than_two_levels(g, words):
+    import reporter
+    from reporter.errors import DataError
+
+    y = [float(i) for i in range(len(g))]
+    with pytest.raises(DataError, match=words) as info:
+        reporter.analyze({"g": g, "y": y}, outcome="y", factors=["g"])
+    assert "factors['g']" in str(info.value) and "at least 2" in str(info.value)
+
+
+@pytest.mark.parametrize("name", ["x" * 5000 + ".html", "y" * 300 + ".html", "a file/sub.html"])
+@pytest.mark.parametrize("method", ["to_html", "to_pdf"])
+def test_report_path_the_system_refuses(tmp_path, monkeypatch, name, method):
+    import reporter
+    from reporter.errors import RenderError
+
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "a file").write_text("kept", encoding="utf-8")
+    rows = {"g": list("aabbccaabbcc"), "y": [1.0, 2.0, 3.5, 4.0, 6.0, 7.5, 1.5, 2.5, 3.0, 4.5, 6.5, 7.0]}
+    report = reporter.analyze(rows, outcome="y", factors=["g"])
+    with pytest.raises(RenderError, match="cannot be written there"):
+        getattr(report, method)(name)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["a file"]
+    assert (tmp_path / "a file").read_text(encoding="utf-8") == "kept"
