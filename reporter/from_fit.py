@@ -35,7 +35,7 @@ from typing import TYPE_CHECKING, Any, Mapping
 
 import numpy as np
 
-from reporter.errors import FittedModelError
+from reporter.errors import FittedModelError, ReporterError
 
 if TYPE_CHECKING:  # pragma: no cover
     from reporter.api import Report
@@ -120,13 +120,16 @@ def from_statsmodels(
     options["summary"] = " ".join(t for t in (given, fit_summary(structure)) if t)
     if hypotheses is None:
         hypotheses = default_hypotheses(structure)
-    report = analyze(
-        structure.frame,
-        outcome=structure.outcome,
-        factors=structure.levels,
-        hypotheses=hypotheses,
-        **options,
-    )
+    try:
+        report = analyze(
+            structure.frame,
+            outcome=structure.outcome,
+            factors=structure.levels,
+            hypotheses=hypotheses,
+            **options,
+        )
+    except ReporterError as exc:  # the message names the function the user called
+        raise type(exc)(str(exc).replace("analyze(): ", "from_statsmodels(): ", 1)) from None
     check_residual_ss(structure, residual_ss(report))
     return report
 

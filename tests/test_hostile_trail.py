@@ -317,3 +317,25 @@ def test_report_path_the_system_refuses(tmp_path, monkeypatch, name, method):
         getattr(report, method)(name)
     assert sorted(p.name for p in tmp_path.iterdir()) == ["a file"]
     assert (tmp_path / "a file").read_text(encoding="utf-8") == "kept"
+
+
+@pytest.mark.parametrize("keywords", [
+    {"hypotheses": {"x": "nope > massed"}},
+    {"hypotheses": 3},
+    {"alfa": 0.1},
+    {"alpha": "high"},
+])
+def test_from_statsmodels_messages_name_the_function_called(keywords):
+    """A bad argument to from_statsmodels is reported as from_statsmodels's (the fit: statsmodels
+    OLS on the simulated one-way demo data)."""
+    import pandas as pd
+    import statsmodels.formula.api as smf
+
+    import reporter
+    from reporter.errors import ReporterError
+
+    frame = pd.read_csv(DEMO / "recall_oneway.csv")
+    fit = smf.ols("recalled ~ C(schedule)", frame).fit()
+    with pytest.raises(ReporterError) as info:
+        reporter.from_statsmodels(fit, **keywords)
+    assert "analyze()" not in str(info.value)
