@@ -121,6 +121,11 @@ def _count_words(n: int, noun: str, plural: str | None = None) -> str:
     return f"{word} {noun if n == 1 else (plural or noun + 's')}"
 
 
+def _literal(text: str) -> N.Run:
+    """A hash, path or command line, set so that it can be copied exactly (fixed width, no hyphens)."""
+    return N.Run(text, False, True)
+
+
 class _Builder:
     def __init__(self, prep, analysis, provenance):
         self.prep = prep
@@ -873,11 +878,11 @@ class _Builder:
     def provenance(self) -> Section:
         p = self.prov
         items = [
-            (runs_of("Plan file"), runs_of(p.plan_file or "(built in Python)")),
-            (runs_of("Plan SHA-256"), runs_of(p.plan_sha256 or "—")),
-            (runs_of("Data file"), runs_of(f"{p.data_file} ({p.data_format}"
+            (runs_of("Plan file"), runs_of(_literal(p.plan_file) if p.plan_file else "(built in Python)")),
+            (runs_of("Plan SHA-256"), runs_of(_literal(p.plan_sha256) if p.plan_sha256 else "—")),
+            (runs_of("Data file"), runs_of(_literal(p.data_file), f" ({p.data_format}"
                                             + (", read out-of-core by DuckDB)" if p.data_reader == "out-of-core" else ")"))),
-            (runs_of("Data SHA-256"), runs_of(p.data_sha256 or "—")),
+            (runs_of("Data SHA-256"), runs_of(_literal(p.data_sha256) if p.data_sha256 else "—")),
             (runs_of("How the outcome was read"), runs_of(self.intake_words())),
             *self.provenance_more(),
             (runs_of("Software"), runs_of(", ".join(f"{k} {v}" for k, v in p.software))),
@@ -902,18 +907,20 @@ class _Builder:
                 f"{N.format_count(p.rows_read)} read, {N.format_count(p.rows_used)} used, "
                 + (f"excluded: {excluded}" if excluded else "none excluded"))))
         where = "relative to the folder of results.json" if p.paths_relative_to == "results-folder" else "as given"
-        paths = [f"plan {p.plan_path}" if p.plan_path else "", f"data {p.data_path}" if p.data_path else ""]
-        if any(paths):
-            items.append((runs_of("Input paths"), runs_of(f"{', '.join(x for x in paths if x)} ({where})")))
+        paths = [("plan ", p.plan_path), ("data ", p.data_path)]
+        paths = [(label, _literal(path)) for label, path in paths if path]
+        if paths:
+            items.append((runs_of("Input paths"), runs_of(*paths[0], *(("; ", *x) for x in paths[1:]), f" ({where})")))
         if p.lock_sha256:
-            items.append((runs_of("Plan lock SHA-256"), runs_of(p.lock_sha256)))
+            items.append((runs_of("Plan lock SHA-256"), runs_of(_literal(p.lock_sha256))))
         if p.results_sha256:
             items.append((runs_of("Results digest"), runs_of(
-                f"{p.results_sha256} (results_sha256 of the results.json made with this report)")))
+                _literal(p.results_sha256), " (results_sha256 of the results.json made with this report)")))
         items.append((runs_of("Command line"), runs_of(
-            shlex.join(p.argv) if p.argv is not None else "none: made from Python, not by the anova-report command")))
+            _literal(shlex.join(p.argv)) if p.argv is not None
+            else "none: made from Python, not by the anova-report command")))
         if p.platform:
-            items.append((runs_of("Platform"), runs_of(p.platform)))
+            items.append((runs_of("Platform"), runs_of(_literal(p.platform))))
         if p.randomness is not None:
             items.append((runs_of("Random seeds and permutations"), runs_of(self.randomness_words())))
         return items
@@ -927,7 +934,8 @@ class _Builder:
                          f"{r.permutation_stop_after} permuted F reach the observed one, skipped above "
                          f"{_count_noun(r.permutation_max_rows, 'row')}")
         if r.permutations_run:
-            parts.append("permutations drawn: " + ", ".join(f"{test} {N.format_count(m)}" for test, m in r.permutations_run))
+            parts.append("permutations drawn: " + ", ".join(f"{N.format_count(m)} for “{test}”"
+                                                           for test, m in r.permutations_run))
         if r.shapiro_sample is not None:
             parts.append(f"Shapiro–Wilk on a sample of {N.format_count(r.shapiro_sample)} residuals")
         parts.append(f"figure jitter seed {r.figure_jitter_seed}")

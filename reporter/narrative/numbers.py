@@ -103,10 +103,13 @@ _P_SLACK = 1e-9  # floating-point overshoot of a p above 1 that is still read as
 
 
 class Run(NamedTuple):
-    """One segment of a :class:`Stat`: its text and whether it is set in italics."""
+    """One segment of a :class:`Stat`: its text and whether it is set in italics. ``code``
+    marks a literal to be copied exactly (a hash, a path, a command line): set in a fixed-width
+    font, never hyphenated."""
 
     text: str
     italic: bool = False
+    code: bool = False
 
 
 @dataclass(frozen=True)

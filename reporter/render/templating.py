@@ -255,6 +255,20 @@ def markdown_escape(value: object) -> MarkdownText:
     return MarkdownText(text)
 
 
+def markdown_code(value: object) -> MarkdownText:
+    """A literal (hash, path, command line) as a Markdown code span, shown exactly as it is.
+
+    CommonMark 0.31, section 6.1: the fence is one backtick longer than the longest run of
+    backticks inside, and a space pads a literal that starts or ends with a backtick. A literal
+    holding "|" (a GFM table cell would end there even inside a code span) is escaped as text."""
+    text = show_controls(re.sub(r"\s*[\r\n]+\s*", " ", "" if value is None else str(value)), keep="\t")
+    if not text or "|" in text:
+        return markdown_escape(text)
+    fence = "`" * (max((len(r) for r in re.findall(r"`+", text)), default=0) + 1)
+    pad = " " if text.startswith("`") or text.endswith("`") else ""
+    return MarkdownText(f"{fence}{pad}{text}{pad}{fence}")
+
+
 def _leading_space(text: str) -> str:
     return text[: len(text) - len(text.lstrip())]
 
@@ -325,6 +339,7 @@ def markdown_environment() -> jinja2.Environment:
         keep_trailing_newline=True,
     )
     env.filters["quote"] = _quote
+    env.filters["code"] = markdown_code
     env.filters["rendered"] = MarkdownText
     return _common(env)
 
