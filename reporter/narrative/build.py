@@ -199,6 +199,10 @@ class _Builder:
                      "each is reported below with its estimate, interval and effect size.")
         else:
             text += "The plan states no planned hypothesis."
+        lock = getattr(self.prep, "lock", None)
+        if lock is not None and not lock.matched:
+            text += (f" The analysis departs from the plan locked at {lock.created} in "
+                     f"{_count_noun(len(lock.deviations), 'way')}, listed under “Comparison with the locked plan”.")
         return (
             Paragraph(runs_of(text), "lead"),
             Paragraph(runs_of(
@@ -1333,13 +1337,15 @@ def lock_sections(check) -> tuple[Section, ...]:
     """The comparison of the run with its locked plan (none without a lock): a match, or every deviation."""
     if check is None:
         return ()
-    where = (f"the plan locked at {check.created} (lock file {check.path.name}, SHA-256 {check.sha256})")
+    where = runs_of(f"the plan locked at {check.created} (lock file ", _literal(check.path.name), ", SHA-256 ",
+                    _literal(check.sha256), "; canonical plan SHA-256 ", _literal(check.canonical_sha256),
+                    ", as printed in the analysis-plan document)")
     if check.matched:
         return (Section("lock", "Comparison with the locked plan", (Paragraph(runs_of(
-            f"The analysis matched {where}: no hypothesis, option, factor, level or exclusion rule changed since, "
+            "The analysis matched ", where, ": no hypothesis, option, factor, level or exclusion rule changed since, "
             "and the data hold no level that the locked plan did not list.")),)),)
     n = len(check.deviations)
-    blocks = [Paragraph(runs_of(f"The analysis departs from {where} in {_count_noun(n, 'way')}:")),
+    blocks = [Paragraph(runs_of("The analysis departs from ", where, f" in {_count_noun(n, 'way')}:")),
               BulletList(tuple(runs_of(d.text) for d in check.deviations))]
     if check.added:
         blocks.append(Paragraph(runs_of(

@@ -16,7 +16,7 @@ from fractions import Fraction
 
 from reporter.intake.defaults import FOLLOW_UPS, plan_value
 from reporter.narrative import numbers as N
-from reporter.narrative.build import CODING_NAMES, CORRECTION_NAMES, PARAM_WORDS, contrast_tables
+from reporter.narrative.build import CODING_NAMES, CORRECTION_NAMES, PARAM_WORDS, _literal, contrast_tables
 from reporter.narrative.document import (
     Column, DefinitionList, Document, Note, Paragraph, Section, Table, runs_of,
 )
@@ -243,9 +243,9 @@ class _PlanBuilder:
     def about(self) -> Section:
         lock = self.locked.content
         items = [
-            (runs_of("Plan file"), runs_of(lock["plan_file"] or "(built in Python)")),
-            (runs_of("Plan file SHA-256"), runs_of(lock["plan_file_sha256"] or "—")),
-            (runs_of("Canonical plan SHA-256"), runs_of(lock["canonical_plan_sha256"])),
+            (runs_of("Plan file"), runs_of(_literal(lock["plan_file"]) if lock["plan_file"] else "(built in Python)")),
+            (runs_of("Plan file SHA-256"), runs_of(_literal(lock["plan_file_sha256"]) if lock["plan_file_sha256"] else "—")),
+            (runs_of("Canonical plan SHA-256"), runs_of(_literal(lock["canonical_plan_sha256"]))),
             (runs_of("Locked"), runs_of(lock["created"])),
             (runs_of("Software"), runs_of(", ".join(f"{k} {v}" for k, v in lock["software"].items()))),
         ]
