@@ -255,13 +255,13 @@ class _Builder:
             reasons = "; ".join(f"{e.count} for {e.reason}" for e in excl)
             left = sum(e.count for e in excl)
             sample = (
-                f"The data file {self.prov.data_file} held {_count_noun(data.n_read, 'row')}; "
+                f"{self.data_source_words()} held {_count_noun(data.n_read, 'row')}; "
                 f"{N.format_count(data.n)} were analysed and {N.format_count(left)} left out ({reasons}). "
                 "No row was dropped silently; the row numbers are listed in the results file."
             )
         else:
             sample = (
-                f"All {N.format_count(data.n_read)} rows of the data file {self.prov.data_file} were "
+                f"All {N.format_count(data.n_read)} rows of {self.data_source_words(lower=True)} were "
                 "analysed; no row was left out."
             )
         blocks.append(self.summary_sample() if data.summary is not None else Paragraph(_lead("Sample", sample)))
@@ -884,7 +884,8 @@ class _Builder:
         items = [
             (runs_of("Plan file"), runs_of(_literal(p.plan_file) if p.plan_file else "(built in Python)")),
             (runs_of("Plan SHA-256"), runs_of(_literal(p.plan_sha256) if p.plan_sha256 else "—")),
-            (runs_of("Data file"), runs_of(_literal(p.data_file), f" ({p.data_format}"
+            (runs_of("Data file"), runs_of("none: data given in Python") if p.data_format == "dataframe" else
+             runs_of(_literal(p.data_file), f" ({p.data_format}"
                                             + (", read out-of-core by DuckDB)" if p.data_reader == "out-of-core" else ")"))),
             (runs_of("Data SHA-256"), runs_of(_literal(p.data_sha256) if p.data_sha256 else "—")),
             (runs_of("How the outcome was read"), runs_of(self.intake_words())),
@@ -945,6 +946,12 @@ class _Builder:
         parts.append(f"figure jitter seed {r.figure_jitter_seed}")
         return "; ".join(parts) + "."
 
+    def data_source_words(self, lower: bool = False) -> str:
+        """'The data file NAME', or 'The data given in Python' when there is no file."""
+        words = ("The data given in Python" if self.prov.data_format == "dataframe"
+                 else f"The data file {self.prov.data_file}")
+        return words[0].lower() + words[1:] if lower else words
+
     def intake_words(self) -> str:
         data = self.prep.data
         summary = getattr(data, "summary", None) is not None
@@ -955,7 +962,8 @@ class _Builder:
                     f"subtracted from every {each} in exact decimal arithmetic, and only these differences were "
                     "converted to binary floating point, so no digits are lost when the values are large or close "
                     "together. Means and other locations are reported on the file's own scale.")
-        return (f"{source}as the binary floating-point numbers stored in the {self.prov.data_format} file, which carry "
+        where = "given in Python" if self.prov.data_format == "dataframe" else f"stored in the {self.prov.data_format} file"
+        return (f"{source}as the binary floating-point numbers {where}, which carry "
                 "about 15 to 17 significant digits.")
 
     def build(self) -> Document:

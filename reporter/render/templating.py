@@ -29,6 +29,7 @@ from __future__ import annotations
 import functools
 import re
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any, Callable
 
 import jinja2
@@ -311,11 +312,24 @@ def _common(env: jinja2.Environment) -> jinja2.Environment:
     return env
 
 
+def _template_loader() -> jinja2.BaseLoader:
+    """The installed templates package; else, when ``reporter`` is imported from a source checkout
+    that was installed without ``-e`` (Python started in the checkout's folder finds the source
+    tree's ``reporter`` first, which holds no ``templates`` package), the checkout's ``templates/``."""
+    try:
+        return jinja2.PackageLoader(TEMPLATE_PACKAGE, ".")
+    except (ModuleNotFoundError, ValueError):
+        checkout = Path(__file__).resolve().parents[2] / "templates"
+        if (checkout / "report.html.j2").is_file():
+            return jinja2.FileSystemLoader(checkout)
+        raise
+
+
 @functools.cache
 def html_environment() -> jinja2.Environment:
     """The environment for ``*.html.j2`` templates: autoescape always on."""
     env = jinja2.Environment(
-        loader=jinja2.PackageLoader(TEMPLATE_PACKAGE, "."),
+        loader=_template_loader(),
         autoescape=True,
         finalize=_html_text,
         undefined=jinja2.StrictUndefined,
@@ -330,7 +344,7 @@ def html_environment() -> jinja2.Environment:
 def markdown_environment() -> jinja2.Environment:
     """The environment for ``*.md.j2`` templates: every interpolated value Markdown-escaped."""
     env = jinja2.Environment(
-        loader=jinja2.PackageLoader(TEMPLATE_PACKAGE, "."),
+        loader=_template_loader(),
         autoescape=False,
         finalize=markdown_escape,
         undefined=jinja2.StrictUndefined,
