@@ -98,7 +98,7 @@ def test_report_prints_the_provenance_block(project, tmp_path):
         assert f"{n} read, {n} used, none excluded" in text
         assert p["platform"] in text
         assert f"seed {p['randomness']['seed']} (used by: permutation F)" in text
-        assert re.search(rf"Results digest\W*{doc['results_sha256']} \(results_sha256 of the results.json", text)
+        assert re.search(rf"Results digest\W*{doc['results_sha256']}`? \(results_sha256 of the results.json", text)
     assert shlex.join(["anova-report", *argv]) in md
 
 
