@@ -105,9 +105,10 @@ class Report:
     def document(self) -> Any:
         """The document model of the report (built on demand; nothing is cached)."""
         from reporter.narrative.build import build_document
-        from reporter.provenance import collect_provenance
+        from reporter.run import sealed_results
 
-        return build_document(self.prepared, self.analysis, collect_provenance(self.prepared))
+        provenance, _ = sealed_results(self.prepared, self.analysis)  # the provenance render() prints
+        return build_document(self.prepared, self.analysis, provenance)
 
     def render(self, fmt: str) -> bytes:
         """The bytes of one format: "html", "json", "md" or "pdf"."""

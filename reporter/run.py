@@ -74,12 +74,7 @@ def render_outputs(prep, analysis: Analysis, formats, *, argv=None, results_fold
 
     ``argv`` is the command line as typed (None from Python); ``results_folder`` the folder the
     files go to, which recorded input paths are relative to (None: paths as given)."""
-    from reporter.render.results_json import DIGEST_FIELD, render_json, with_digest
-
-    provenance, doc = results_document(prep, analysis, argv=argv, results_folder=results_folder)
-    doc = with_digest(doc)
-    results = render_json(doc)
-    provenance = replace(provenance, results_sha256=doc[DIGEST_FIELD])  # printed by the report
+    provenance, results = sealed_results(prep, analysis, argv=argv, results_folder=results_folder)
     document = None
     if {"html", "pdf", "md"} & set(formats):
         from reporter.narrative.build import build_document
@@ -114,6 +109,15 @@ def results_document(prep, analysis: Analysis, *, argv=None, results_folder=None
 
     provenance = collect_provenance(prep, analysis=analysis, argv=argv, results_folder=results_folder)
     return provenance, results_dict(prep, analysis, provenance)
+
+
+def sealed_results(prep, analysis: Analysis, *, argv=None, results_folder=None):
+    """(provenance with the results digest, results.json bytes): what every format of a run shares."""
+    from reporter.render.results_json import DIGEST_FIELD, render_json, with_digest
+
+    provenance, doc = results_document(prep, analysis, argv=argv, results_folder=results_folder)
+    doc = with_digest(doc)
+    return replace(provenance, results_sha256=doc[DIGEST_FIELD]), render_json(doc)
 
 
 def _attachments(prep, results: bytes) -> dict[str, bytes]:

@@ -266,3 +266,16 @@ def test_mapping_of_columns():
     row = report.to_json()["anova"]["rows"][0]
     ref = f_oneway(*([y for g, y in zip(data["g"], data["y"]) if g == level] for level in "abc"))
     assert math.isclose(row["F"], ref.statistic, rel_tol=1e-9) and math.isclose(row["p"], ref.pvalue, rel_tol=1e-9)
+
+
+def test_document_carries_the_provenance_that_render_prints():
+    """Report.document() and Report.render() share one provenance (results digest, permutation
+    counts): the document renders to the very bytes of render("md"). The digest itself is
+    checked against hashlib in tests/test_provenance.py."""
+    from reporter.render.markdown import render_markdown
+
+    frame = pd.DataFrame({"g": ["a"] * 4 + ["b"] * 4, "y": [1.0, 2.0, 3.0, 4.0, 2.0, 4.0, 5.0, 7.0]})
+    rep = reporter.analyze(frame, outcome="y", factors={"g": None}, hypotheses={"b beats a": "b > a"})
+    text = render_markdown(rep.document())
+    assert text == rep.render("md")
+    assert rep.to_json()["results_sha256"] in text.decode("utf-8")
