@@ -13,6 +13,11 @@ They are computed stably:
 
 Raw "sum of squares minus n times mean squared" formulas are never used. Values arrive as
 offsets from a pivot (see :mod:`reporter.intake.data`), which the statistics carry along.
+
+With covariates (:func:`describe_covariates`) each cell also carries the covariate means (offsets
+from each covariate's own pivot) and the within-cell centred cross-products of the covariates with
+each other and with the outcome, computed by the same rules; these are the sufficient statistics of
+the analysis of covariance (Searle (1987), *Linear Models for Unbalanced Data*, section 9.2).
 """
 
 from __future__ import annotations
@@ -25,6 +30,48 @@ import numpy as np
 
 
 @dataclass(frozen=True)
+class CovariateStats:
+    """Per-cell covariate statistics of p covariates over k cells.
+
+    ``offset_mean`` (k, p) are the cell means of each covariate minus its ``pivot`` (NaN rows for
+    empty cells); ``sxx`` (k, p, p) the within-cell centred cross-products
+    Σ (x_j − x̄_j)(x_l − x̄_l) and ``sxy`` (k, p) the within-cell Σ (x_j − x̄_j)(y − ȳ); both are
+    zero for an empty cell (an empty sum).
+    """
+
+    names: tuple[str, ...]
+    offset_mean: np.ndarray
+    pivot: np.ndarray
+    pivot_exact: tuple[Fraction, ...]
+    sxx: np.ndarray
+    sxy: np.ndarray
+
+    @property
+    def p(self) -> int:
+        return len(self.names)
+
+    @property
+    def mean(self) -> np.ndarray:
+        """Cell means of each covariate on the original scale (NaN rows for empty cells)."""
+        return self.offset_mean + self.pivot
+
+    def pooled_sxx(self, observed: np.ndarray) -> np.ndarray:
+        """Σ over observed cells of the within-cell cross-products (p, p), each entry exactly rounded."""
+        return _fsum_cells(self.sxx[observed])
+
+    def pooled_sxy(self, observed: np.ndarray) -> np.ndarray:
+        """Σ over observed cells of the within-cell covariate x outcome cross-products (p,)."""
+        return _fsum_cells(self.sxy[observed])
+
+
+def _fsum_cells(a: np.ndarray) -> np.ndarray:
+    out = np.empty(a.shape[1:])
+    flat = a.reshape(a.shape[0], -1)
+    out.reshape(-1)[:] = [math.fsum(flat[:, j].tolist()) for j in range(flat.shape[1])]
+    return out
+
+
+@dataclass(frozen=True)
 class CellStats:
     """Sufficient statistics of k cells; ``offset_mean`` is the mean minus ``pivot``."""
 
@@ -33,6 +80,7 @@ class CellStats:
     ss: np.ndarray
     pivot: float
     pivot_exact: Fraction
+    covariates: CovariateStats | None = None
 
     @property
     def k(self) -> int:
@@ -94,28 +142,94 @@ def _sum_pairwise(x: np.ndarray) -> float:
     return float(x.sum())
 
 
+def _grouped(cell: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Cell counts, a stable order grouping rows by cell, and each cell's start and end in it."""
+    n = np.bincount(cell, minlength=k).astype(np.int64)
+    code_type = np.uint8 if k <= 255 else np.uint16 if k <= 65535 else np.int64
+    order = np.argsort(cell.astype(code_type, copy=False), kind="stable")
+    ends = np.cumsum(n)
+    return n, order, ends - n, ends
+
+
+def _refined_deviations(x: np.ndarray, total) -> tuple[float, np.ndarray, float]:
+    """The corrected two-pass mean m of x, the deviations x − m and their (tiny) sum."""
+    m0 = total(x) / x.size
+    m = m0 + total(x - m0) / x.size
+    d = x - m
+    return m, d, total(d)
+
+
 def describe_cells(y: np.ndarray, cell: np.ndarray, k: int, pivot: float = 0.0, pivot_exact: Fraction | None = None) -> CellStats:
     """Per-cell n, mean and centred SS of ``y`` (offsets from ``pivot``) grouped by ``cell``."""
     y = np.asarray(y, dtype=np.float64)
     cell = np.asarray(cell)
-    n = np.bincount(cell, minlength=k).astype(np.int64)
-    code_type = np.uint8 if k <= 255 else np.uint16 if k <= 65535 else np.int64
-    order = np.argsort(cell.astype(code_type, copy=False), kind="stable")
+    n, order, starts, ends = _grouped(cell, k)
     ys = y[order]
-    ends = np.cumsum(n)
-    starts = ends - n
     mean = np.full(k, np.nan)
     ss = np.full(k, np.nan)
     for c in np.flatnonzero(n):
         x = ys[starts[c] : ends[c]]
         total = _sum_exact if x.size <= _FSUM_LIMIT else _sum_pairwise
-        m0 = total(x) / n[c]
-        m = m0 + total(x - m0) / n[c]
-        d = x - m
-        s1 = total(d)
+        m, d, s1 = _refined_deviations(x, total)
         mean[c] = m
         ss[c] = max(total(d * d) - s1 * s1 / n[c], 0.0)
     for arr in (n, mean, ss):
         arr.setflags(write=False)
     exact = pivot_exact if pivot_exact is not None else Fraction(pivot)
     return CellStats(n=n, offset_mean=mean, ss=ss, pivot=float(pivot), pivot_exact=exact)
+
+
+
+def describe_covariates(
+    y: np.ndarray,
+    x: np.ndarray,
+    cell: np.ndarray,
+    k: int,
+    pivot: np.ndarray | None = None,
+    pivot_exact: tuple[Fraction, ...] | None = None,
+    names: tuple[str, ...] | None = None,
+) -> CovariateStats:
+    """Per-cell covariate means and within-cell cross-products.
+
+    ``y`` (N,) are outcome offsets, ``x`` (N, p) covariate offsets from ``pivot`` (p,), ``cell``
+    the cell code of each row. The accuracy rules of :func:`describe_cells` apply: a stable
+    grouping, exactly rounded sums up to 16,384 values per cell (pairwise beyond), means refined by
+    the corrected two-pass algorithm and cross-products as the corrected two-pass sums
+    Σ d_j·d_l − (Σ d_j)(Σ d_l)/n (Chan, Golub & LeVeque (1983), The American Statistician 37(3),
+    242-247, eq. 1.7, extended to cross-products).
+    """
+    y = np.asarray(y, dtype=np.float64)
+    x = np.asarray(x, dtype=np.float64)
+    if x.ndim == 1:
+        x = x[:, None]
+    cell = np.asarray(cell)
+    p = x.shape[1]
+    piv = np.zeros(p) if pivot is None else np.array(pivot, dtype=np.float64).reshape(p)
+    exact = tuple(Fraction(float(v)) for v in piv) if pivot_exact is None else tuple(pivot_exact)
+    labels = tuple(f"x{j + 1}" for j in range(p)) if names is None else tuple(names)
+    n, order, starts, ends = _grouped(cell, k)
+    ys = y[order]
+    xs = x[order]
+    mean = np.full((k, p), np.nan)
+    sxx = np.zeros((k, p, p))
+    sxy = np.zeros((k, p))
+    for c in np.flatnonzero(n):
+        sl = slice(starts[c], ends[c])
+        total = _sum_exact if n[c] <= _FSUM_LIMIT else _sum_pairwise
+        _, dy, sy = _refined_deviations(ys[sl], total)
+        dev = []
+        for j in range(p):
+            m, d, s1 = _refined_deviations(np.ascontiguousarray(xs[sl, j]), total)
+            mean[c, j] = m
+            dev.append((d, s1))
+        for j, (dj, sj) in enumerate(dev):
+            sxy[c, j] = total(dj * dy) - sj * sy / n[c]
+            for l in range(j + 1):
+                dl, sl1 = dev[l]
+                v = total(dj * dl) - sj * sl1 / n[c]
+                if l == j:
+                    v = max(v, 0.0)
+                sxx[c, j, l] = sxx[c, l, j] = v
+    for arr in (mean, piv, sxx, sxy):
+        arr.setflags(write=False)
+    return CovariateStats(names=labels, offset_mean=mean, pivot=piv, pivot_exact=exact, sxx=sxx, sxy=sxy)
