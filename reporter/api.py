@@ -205,9 +205,10 @@ ANALYZE_SOURCE = "analyze() arguments"
 #: The ``[data] path`` of a plan given to :func:`analyze` (its rows come from the data frame).
 ANALYZE_DATA_PATH = "data.csv"
 
-_OWN_KEYWORDS = ("outcome", "factors", "hypotheses", "title", "summary", "study")
+_OWN_KEYWORDS = ("outcome", "factors", "covariates", "hypotheses", "title", "summary", "study")
 _FACTOR_KEYS = ("levels", "exclude", "column")
 _HYPOTHESIS_KEYS = ("means", "effect", "role", "description")
+_COVARIATE_KEYS = ("name", "adjust_to", "slopes", "description")
 
 
 def analyze(
@@ -216,6 +217,7 @@ def analyze(
     outcome: str,
     factors: Mapping[str, Sequence[Any] | Mapping[str, Any] | None] | Sequence[str],
     hypotheses: Mapping[str, str | Mapping[str, Any]] | None = None,
+    covariates: str | Sequence[str | Mapping[str, Any]] | None = None,
     title: str | None = None,
     summary: str | None = None,
     study: Mapping[str, str] | None = None,
@@ -245,6 +247,11 @@ def analyze(
                 "dose works alike in both sexes": {"effect": "dose x sex", "role": "exploratory"},
                 "high beats low": "high > low",
             }
+    ``covariates``
+        Numeric columns whose linear effect the model removes (analysis of covariance): a column
+        name, a list of names, or a list of mappings of the keys of a plan's ``[[covariates]]``
+        table (``name``, ``adjust_to``, ``slopes``, ``description``), e.g.
+        ``covariates=[{"name": "pretest", "slopes": "per-cell"}]``.
     ``title``, ``summary``, ``study``
         The plan's title (by default "<outcome> by <factors>"), summary and ``[study]`` texts.
     ``**analysis_options``
@@ -282,6 +289,9 @@ def analyze(
         doc["summary"] = summary
     doc["data"] = {"path": ANALYZE_DATA_PATH, "outcome": outcome}
     doc["factors"] = factor_tables
+    covariate_tables = _covariate_tables(covariates)
+    if covariate_tables:
+        doc["covariates"] = covariate_tables
     doc["analysis"] = {k: _plain_arg(v) for k, v in analysis_options.items()}
     doc["hypotheses"] = hypothesis_tables
     if study is not None:
@@ -292,7 +302,7 @@ def analyze(
     try:
         plan = plan_from_dict(doc, base_dir=".", source=ANALYZE_SOURCE)
     except PlanError as exc:
-        raise PlanError(_analyze_message(str(exc), factor_tables, hypothesis_tables)) from None
+        raise PlanError(_analyze_message(str(exc), factor_tables, hypothesis_tables, covariate_tables)) from None
     text = plan_toml(plan).encode("utf-8")
     plan = replace(plan, sha256=hashlib.sha256(text).hexdigest(), source_bytes=text)
     try:
@@ -419,6 +429,30 @@ def _hypothesis_tables(hypotheses: Any) -> list[dict[str, Any]]:
     return out
 
 
+def _covariate_tables(covariates: Any) -> list[dict[str, Any]]:
+    """``covariates=``: a name, a list of names, or a list of mappings of [[covariates]] keys."""
+    if covariates is None:
+        return []
+    items = [covariates] if isinstance(covariates, (str, Mapping)) else covariates
+    if not isinstance(items, (list, tuple)):
+        raise PlanError(f"analyze(): 'covariates' must be a column name, a list of names or a list of mappings such "
+                        f"as [{{\"name\": \"pretest\"}}] (got {type(covariates).__name__}).")
+    out = []
+    for j, item in enumerate(items):
+        if isinstance(item, str):
+            out.append({"name": item})
+        elif isinstance(item, Mapping):
+            _check_keys(item, _COVARIATE_KEYS, f"covariates[{j}]")
+            if "name" not in item:
+                raise PlanError(f"analyze(): covariates[{j}] has no 'name'; give the covariate's column, e.g. "
+                                "{\"name\": \"pretest\"}.")
+            out.append({k: _plain_arg(v) for k, v in item.items() if v is not None})
+        else:
+            raise PlanError(f"analyze(): covariates[{j}] must be a column name or a mapping with 'name' "
+                            f"(got {type(item).__name__} {item!r}).")
+    return out
+
+
 def _check_keys(spec: Mapping[Any, Any], allowed: tuple[str, ...], where: str) -> None:
     for key in spec:
         if key not in allowed:
@@ -446,7 +480,8 @@ def _check_text(value: Any, where: str = "") -> None:
 _PLAN_PATH = re.compile(r"^" + re.escape(ANALYZE_SOURCE) + r"(?:, line \d+)?: '([^']*)' ", re.S)
 
 
-def _analyze_message(message: str, factors: list[dict[str, Any]], hypotheses: list[dict[str, Any]]) -> str:
+def _analyze_message(message: str, factors: list[dict[str, Any]], hypotheses: list[dict[str, Any]],
+                     covariates: list[dict[str, Any]] = ()) -> str:
     """A plan-file message about the arguments, with the key path said as the argument."""
     m = _PLAN_PATH.match(message)
     if not m:
@@ -471,6 +506,11 @@ def _analyze_message(message: str, factors: list[dict[str, Any]], hypotheses: li
         shown = table("hypotheses", h.group(1), hypotheses)
         if h.group(2) in ("role", "description", "effect"):
             shown += f"[{h.group(2)!r}]"
+    elif (c := re.fullmatch(r"covariates\[(\d+)\](?:\.(\w+))?", path)):
+        k = int(c.group(1)) - 1
+        shown = f"covariates[{k}]" if 0 <= k < len(covariates) else "covariates"
+        if c.group(2) and c.group(2) != "name":
+            shown += f"[{c.group(2)!r}]"
     elif path.startswith("study."):
         shown = f"study[{path[len('study.'):]!r}]"
     else:

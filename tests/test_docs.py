@@ -270,14 +270,17 @@ def _allowed(plan: dict, prefix: str) -> set[str]:
     return set(m.group(1).split(", "))
 
 
+_FIRST_ITEM = {"covariates": {"name": "x"}}  # a valid first table of an array not in MINIMAL
+
+
 def code_keys() -> dict[str, set[str]]:
     """Every table of the plan and the keys the reader accepts in it."""
     top = _allowed({**MINIMAL, PROBE: 1}, "")
     out = {"": top}
     for table in sorted(top):
         value = MINIMAL.get(table)
-        if isinstance(value, list) or table in ("factors", "hypotheses"):
-            item = dict(value[0]) if value else {"name": "h", "means": "a > b"}
+        if isinstance(value, list) or table in ("factors", "hypotheses", "covariates"):
+            item = dict(value[0]) if value else dict(_FIRST_ITEM.get(table, {"name": "h", "means": "a > b"}))
             probe = {**MINIMAL, table: [{**item, PROBE: 1}]}
             out[table] = _allowed(probe, f"{table}[1].")
         elif value is None or isinstance(value, dict):
@@ -331,8 +334,8 @@ def _without(plan: dict, table: str, key: str) -> dict:
     plan = json.loads(json.dumps(plan))
     if table == "":
         plan.pop(key, None)
-    elif table in ("factors", "hypotheses"):
-        plan.setdefault(table, [{"name": "h", "means": "a > b"}])
+    elif table in ("factors", "hypotheses", "covariates"):
+        plan.setdefault(table, [dict(_FIRST_ITEM.get(table, {"name": "h", "means": "a > b"}))])
         plan[table][0].pop(key, None)
     else:
         plan.setdefault(table, {}).pop(key, None)
@@ -370,6 +373,7 @@ def test_plan_reference_limits_match_defaults_py():
     assert shown("levels of one factor") == str(D.MAX_LEVELS)
     assert shown("cells (product of the level counts)") == str(D.MAX_CELLS)
     assert shown("hypotheses") == str(D.MAX_HYPOTHESES)
+    assert shown("covariates") == str(D.MAX_COVARIATES)
     assert shown("missing-value texts") == str(D.MAX_MISSING_TOKENS)
     assert shown("`title`") == f"{D.MAX_TITLE_CHARS} characters"
     assert shown("`[data] path`") == f"{D.MAX_PATH_CHARS} characters"
@@ -667,7 +671,8 @@ def test_plan_reference_defaults_match_a_plan_written_back_out():
 
     docs = documented()
     summary = {**MINIMAL, "data": {**MINIMAL["data"], "layout": "cell-summaries"}}
-    for given in ({**MINIMAL, "hypotheses": [{"name": "h", "means": "a > b"}]}, summary):
+    covariates = {**MINIMAL, "covariates": [{"name": "x"}]}
+    for given in ({**MINIMAL, "hypotheses": [{"name": "h", "means": "a > b"}]}, summary, covariates):
         mapping = plan_mapping(P.plan_from_dict(given))
         for table, content in mapping.items():
             if not isinstance(content, (dict, list)):

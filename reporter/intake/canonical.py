@@ -55,6 +55,8 @@ def plan_mapping(plan: Plan) -> dict[str, Any]:
         out["summary"] = plan.summary
     out["data"] = _data(plan)
     out["factors"] = [_factor(f) for f in plan.factors]
+    if plan.covariates:  # left out when there are none, as a plan file without [[covariates]] does
+        out["covariates"] = [_covariate(c) for c in plan.covariates]
     out["analysis"] = _analysis(plan)
     out["hypotheses"] = [_hypothesis(h) for h in plan.hypotheses]
     out["study"] = {
@@ -101,6 +103,25 @@ def _factor(f) -> dict[str, Any]:
     out: dict[str, Any] = {"name": f.name, "levels": list(f.levels), "exclude": list(f.exclude)}
     if f.column is not None:
         out["column"] = f.column
+    return out
+
+
+def _covariate(c) -> dict[str, Any]:
+    """One ``[[covariates]]`` table with its defaults; ``adjust_to`` a whole number when the
+    plan gave one, else the float64 (whose shortest decimal the plan reader takes as exact)."""
+    out: dict[str, Any] = {"name": c.name}
+    if c.adjust_to_exact is None:
+        out["adjust_to"] = "mean"
+    elif isinstance(c.adjust_to_exact, int) or (c.adjust_to_exact.denominator == 1 and abs(c.adjust_to_exact) < 2**63):
+        out["adjust_to"] = int(c.adjust_to_exact)
+    else:
+        out["adjust_to"] = float(c.adjust_to)
+    out["slopes"] = c.slopes
+    if c.description is not None:
+        out["description"] = c.description
+    missing = [k for k in D.COVARIATES_DEFAULTS if k not in out and D.COVARIATES_DEFAULTS[k] is not None]
+    if missing:  # a key added to the defaults must be added here too
+        raise AssertionError(f"plan_mapping does not write [[covariates]] {', '.join(missing)}")
     return out
 
 

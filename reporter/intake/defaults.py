@@ -78,6 +78,20 @@ PLANNING_DEFAULTS: dict[str, object] = {
 }
 MAX_PLANNING_POWERS = 5
 
+COVARIATES_DEFAULTS: dict[str, object] = {
+    # Each [[covariates]] table names a numeric column of the data ("name", required) whose
+    # linear effect the model removes (analysis of covariance).
+    # The covariate value at which adjusted means are evaluated: "mean" (the mean of the rows
+    # used) or a number in the covariate's units.
+    "adjust_to": "mean",
+    # "common" (one slope for all cells) or "per-cell" (a separate slope in each cell; effects are
+    # then evaluated at adjust_to).
+    "slopes": "common",
+    # An optional text for the plan's reader.
+    "description": None,
+}
+COVARIATE_SLOPES = ("common", "per-cell")
+
 # Keys of [data] that only a cell-summary table reads (layout = "cell-summaries").
 SUMMARY_DEFAULTS: dict[str, object] = {
     # Column holding each cell's number of observations (a whole number >= 1).
@@ -169,6 +183,7 @@ MAX_LEVELS = 256  # levels of one factor
 MAX_FACTORS = 6
 MAX_CELLS = 256  # product of the factors' level counts (measured: 256 cells run in under a minute)
 MAX_HYPOTHESES = 100
+MAX_COVARIATES = 10  # [[covariates]] tables
 # Hypothesis statements: characters, tokens, and depth of nested parentheses and signs.
 MAX_STATEMENT_CHARS = 5_000
 MAX_STATEMENT_TOKENS = 1_000

@@ -16,6 +16,7 @@ import math
 import re
 import tomllib
 from dataclasses import dataclass, field
+from fractions import Fraction
 from pathlib import Path
 from typing import Any, Mapping
 
@@ -66,6 +67,28 @@ class FactorSpec:
     @property
     def data_column(self) -> str:
         return self.column or self.name
+
+
+@dataclass(frozen=True)
+class CovariateSpec:
+    """One ``[[covariates]]`` table: a numeric column whose linear effect the model removes.
+
+    ``adjust_to`` is the covariate value at which adjusted means are evaluated (None: the mean
+    of the rows used); ``adjust_to_exact`` is that number as the plan wrote it (the shortest
+    decimal of the float64 TOML gives, or the whole number), for the exact pivot arithmetic.
+    ``slopes`` is "common" (one slope for all cells) or "per-cell".
+    """
+
+    name: str
+    adjust_to: float | None = None
+    adjust_to_exact: Fraction | None = None
+    slopes: str = "common"
+    description: str | None = None
+    index: int = 0  # 1-based position in the plan
+
+    @property
+    def key_path(self) -> str:
+        return f"covariates[{self.index}]"
 
 
 @dataclass(frozen=True)
@@ -162,6 +185,7 @@ class Plan:
     study: StudySpec = field(default_factory=StudySpec)
     summary: str | None = None
     planning: PlanningSpec | None = None  # the optional [planning] table
+    covariates: tuple[CovariateSpec, ...] = ()  # the [[covariates]] tables, in plan order
     source: Path | None = None
     sha256: str | None = None
     source_bytes: bytes | None = field(default=None, repr=False, compare=False)
@@ -176,10 +200,11 @@ class Plan:
 # ---------------------------------------------------------------------------------------------
 # Reading and validation
 
-_TOP_KEYS = ("title", "summary", "data", "factors", "analysis", "hypotheses", "study", "planning")
+_TOP_KEYS = ("title", "summary", "data", "factors", "covariates", "analysis", "hypotheses", "study", "planning")
 _DATA_KEYS = ("path", "outcome", "delimiter", "decimal", "missing", "layout", "reader", *D.SUMMARY_DEFAULTS)
 _FACTOR_KEYS = ("name", "levels", "exclude", "column")
 _HYP_KEYS = ("name", "means", "effect", "role", "description")
+_COVARIATE_KEYS = ("name", *D.COVARIATES_DEFAULTS)
 _STUDY_KEYS = tuple(StudySpec.__dataclass_fields__)
 
 
@@ -413,6 +438,7 @@ def plan_from_dict(
 
     data = _read_data(doc, ck, Path(base_dir))
     factors = _read_factors(doc, ck, data)
+    covariates = _read_covariates(doc, ck, data, factors)
     analysis = _read_analysis(doc, ck, factors)
     hypotheses = _read_hypotheses(doc, ck)
     study = _read_study(doc, ck)
@@ -426,6 +452,7 @@ def plan_from_dict(
         analysis=analysis,
         study=study,
         planning=planning,
+        covariates=covariates,
     )
 
 
@@ -620,6 +647,70 @@ def _read_factors(doc, ck: _Checker, data: DataSpec) -> tuple[FactorSpec, ...]:
             table="factors", index=1,
         )
     return tuple(out)
+
+
+def _read_covariates(doc, ck: _Checker, data: DataSpec, factors) -> tuple[CovariateSpec, ...]:
+    """The ``[[covariates]]`` tables (see :data:`~reporter.intake.defaults.COVARIATES_DEFAULTS`)."""
+    if "covariates" not in doc:
+        return ()
+    raw = doc["covariates"]
+    if not isinstance(raw, list) or not all(isinstance(c, dict) for c in raw):
+        raise ck.fail("covariates", f'must be written as [[covariates]] tables, one per covariate, each with '
+                      f'name = "..." (got {_show(raw)}).', key="covariates")
+    if raw and data.layout == "cell-summaries":
+        raise ck.fail("covariates", 'cannot be used with [data] layout = "cell-summaries": a table of cell summaries '
+                      "gives each cell's n, mean and spread of the outcome, but not the within-cell covariances of "
+                      "the covariates with the outcome that the adjustment needs. Give the data as rows "
+                      '(layout = "rows"), or remove the [[covariates]] tables.', table="covariates", index=1)
+    if len(raw) > D.MAX_COVARIATES:
+        raise ck.fail("covariates", f"lists {len(raw)} covariates; the limit is {D.MAX_COVARIATES}. Keep the few "
+                      "measured before the treatment that predict the outcome best.",
+                      table="covariates", index=D.MAX_COVARIATES + 1)
+    taken: dict[str, str] = {data.outcome: "the outcome column"}
+    for f in factors:
+        taken.setdefault(f.data_column, f"the column of factor '{f.name}'")
+        taken.setdefault(f.name, f"the name of factor '{f.name}'")
+    out: list[CovariateSpec] = []
+    seen: dict[str, int] = {}
+    for i, c in enumerate(raw, start=1):
+        loc = {"table": "covariates", "index": i}
+        p = f"covariates[{i}]."
+        ck.unknown_keys(c, _COVARIATE_KEYS, p, **loc)
+        name = ck.text(c, "name", p + "name", **loc).strip()
+        if name in seen:
+            raise ck.fail(p + "name", f'repeats the covariate "{name}" of covariates[{seen[name]}]; list each '
+                          "covariate once.", key="name", **loc)
+        if name in taken:
+            raise ck.fail(p + "name", f'is "{name}", which is {taken[name]}; a covariate needs a numeric column of '
+                          "its own. Name another column.", key="name", **loc)
+        seen[name] = i
+        adjust_to, exact = _adjust_to(c, ck, p + "adjust_to", loc)
+        slopes = ck.choice(c, "slopes", p + "slopes", D.COVARIATE_SLOPES, D.COVARIATES_DEFAULTS["slopes"], **loc)
+        desc = ck.text(c, "description", p + "description", required=False, limit=D.MAX_DESCRIPTION_CHARS, **loc)
+        out.append(CovariateSpec(name=name, adjust_to=adjust_to, adjust_to_exact=exact, slopes=slopes,
+                                 description=desc, index=i))
+    return tuple(out)
+
+
+def _adjust_to(c, ck: _Checker, path: str, loc: dict) -> tuple[float | None, Fraction | None]:
+    """``adjust_to``: "mean" (None) or a finite number, with its exact value (a whole number as
+    it is; a float64 as its shortest decimal, the number the plan wrote)."""
+    value = c.get("adjust_to", D.COVARIATES_DEFAULTS["adjust_to"])
+    if value == "mean":
+        return None, None
+    if isinstance(value, int) and not isinstance(value, bool):
+        return float(value), Fraction(value)
+    if isinstance(value, float) and math.isfinite(value):
+        return value, Fraction(repr(value))
+    hint = ""
+    if isinstance(value, str):
+        t = value.strip()
+        if is_plain(t) and math.isfinite(float(t)):
+            hint = f" Write the number without quotes: adjust_to = {t}."
+        elif difflib.get_close_matches(t.lower(), ["mean", "average", "avg"], n=1, cutoff=0.6) or t.lower() == "mean":
+            hint = ' Did you mean "mean"?'
+    raise ck.fail(path, f'must be "mean" (the mean of the rows used) or a finite number in the covariate\'s units, '
+                  f"such as 50 (got {ck.raw('adjust_to', value, **loc)}).{hint}", key="adjust_to", **loc)
 
 
 def _level_key(text: str):

@@ -129,6 +129,7 @@ def read_summary(plan: Plan) -> Dataset:
     spec = plan.data.summary
     if spec is None:
         raise ValueError("read_summary needs a plan with [data] layout = \"cell-summaries\"")
+    _refuse_covariates(plan, str(plan.data.path))
     path = require_file(plan.data.path)
     suffix = path.suffix.lower()
     if suffix == ".parquet":
@@ -154,6 +155,7 @@ def summary_from_frame(plan: Plan, frame: Any, name: str = "DataFrame") -> Datas
     Numeric columns count as binary floating point (unrounded unless the plan states decimals);
     text columns are read as exact decimals, like a text file. Rows are numbered from 1.
     """
+    _refuse_covariates(plan, name)
     columns = [str(c) for c in frame.columns] if hasattr(frame, "columns") else list(frame)
     _require_columns(plan, columns, name)
     cols: dict[str, Any] = {}
@@ -167,6 +169,17 @@ def summary_from_frame(plan: Plan, frame: Any, name: str = "DataFrame") -> Datas
         raise DataError(f"{name}: has no data rows.")
     cols["__row__"] = list(range(1, n + 1))
     return _build(plan, name, None, "dataframe", cols, n, "row", kinds)
+
+
+def _refuse_covariates(plan: Plan, source: str) -> None:
+    """Cell summaries cannot carry covariates (the plan reader refuses the pair; a plan put
+    together in Python is refused here with the same reason)."""
+    if plan.covariates:
+        names = ", ".join(f"'{c.name}'" for c in plan.covariates)
+        raise DataError(f"{source}: a table of cell summaries cannot be adjusted for covariates ({names}): it gives each "
+                        "cell's n, mean and spread of the outcome, but not the within-cell covariances of the covariates "
+                        "with the outcome that the adjustment needs. Give the data as rows (layout = \"rows\"), or "
+                        "remove the covariates.")
 
 
 # ---------------------------------------------------------------------------------------------

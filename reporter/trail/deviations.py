@@ -12,7 +12,9 @@ A run looks for the lock beside its plan (:func:`reporter.trail.lock.lock_path`)
   hypothesis added after the lock is tested as exploratory (:func:`apply_lock`), whatever its role
   in the plan;
 * every key of the ``[analysis]`` table (α, correction, sums of squares, coding, the unequal-
-  variance policy, the follow-ups, ...), the outcome, the factors and their levels, and the
+  variance policy, the follow-ups, ...), the outcome, the factors and their levels, the
+  covariates (each ``[[covariates]]`` table by its name: added, removed, or a changed
+  ``adjust_to`` or ``slopes``), and the
   exclusion rules (each factor's ``exclude`` list, ``[data] missing``, ``[study] exclusion_rules``),
   through the canonical plans (:func:`reporter.intake.canonical.plan_mapping`);
 * the data: a level with data that the locked plan did not list.
@@ -34,6 +36,7 @@ from reporter.trail.lock import Lock, lock_path, read_lock
 KINDS = (
     "hypothesis-added", "hypothesis-removed", "hypothesis-changed", "hypothesis-renamed", "hypothesis-role-changed",
     "analysis-option-changed", "outcome-changed", "factor-added", "factor-removed", "levels-changed",
+    "covariate-added", "covariate-removed", "covariate-changed",
     "exclusion-rules-changed", "data-level-not-locked",
 )
 
@@ -149,6 +152,7 @@ def check_against_lock(lock: Lock, prep) -> LockCheck:
     devs += _hypotheses(lock, prep.contrasts, tuple(tuple(c.levels) for c in design.cells))
     devs += _analysis(lock.canonical, now)
     devs += _design(lock.canonical, now, lock)
+    devs += _covariates(lock.canonical, now)
     devs += _exclusions(lock.canonical, now)
     devs += _data_levels(lock, prep)
     devs.sort(key=lambda d: KINDS.index(d.kind))
@@ -263,6 +267,39 @@ def _design(old: dict, new: dict, lock: Lock) -> list[Deviation]:
                                  f"The levels of {name} changed ({'; '.join(parts)}): locked {_levels(fa[name])}, "
                                  f"now {_levels(fb[name])}."))
     return out
+
+
+def _covariate_tables(mapping: dict) -> dict[str, dict]:
+    out = {}
+    for c in mapping.get("covariates") or []:
+        if isinstance(c, dict) and "name" in c:
+            out[str(c["name"])] = c
+    return out
+
+
+def _covariates(old: dict, new: dict) -> list[Deviation]:
+    """Covariates added, removed, or read at another value or with other slopes than locked (a
+    lock made before covariates existed holds none). A changed description is no deviation."""
+    ca, cb = _covariate_tables(old), _covariate_tables(new)
+    out = []
+    for name, c in cb.items():
+        if name not in ca:
+            out.append(Deviation("covariate-added", name, None, _covariate_text(c),
+                                 f"Covariate {name} ({_covariate_text(c)}) was added after the lock; the means compared "
+                                 "are now adjusted for it."))
+    for name, c in ca.items():
+        if name not in cb:
+            out.append(Deviation("covariate-removed", name, _covariate_text(c), None,
+                                 f"Covariate {name} ({_covariate_text(c)}) was in the locked plan and is no longer "
+                                 "adjusted for."))
+        elif any(c.get(k) != cb[name].get(k) for k in ("adjust_to", "slopes")):
+            out.append(Deviation("covariate-changed", name, _covariate_text(c), _covariate_text(cb[name]),
+                                 f"Covariate {name} changed: locked {_covariate_text(c)}, now {_covariate_text(cb[name])}."))
+    return out
+
+
+def _covariate_text(c: dict) -> str:
+    return f"adjust_to = {_text(c.get('adjust_to', 'mean'))}, slopes = {_text(c.get('slopes', 'common'))}"
 
 
 def _levels(f: dict) -> str:

@@ -218,6 +218,19 @@ def _plans(draw):
             h["description"] = draw(_text)
         hyps.append(h)
     doc["hypotheses"] = hyps
+    if layout == "rows" and draw(st.booleans()):
+        covs = []
+        for i in range(draw(st.integers(1, 3))):
+            c: dict = {"name": f"{draw(_name)} cov{i}"}
+            if draw(st.booleans()):
+                c["adjust_to"] = draw(st.one_of(st.just("mean"), st.integers(-2**63, 2**63 - 1),
+                                                st.floats(allow_nan=False, allow_infinity=False)))
+            if draw(st.booleans()):
+                c["slopes"] = draw(st.sampled_from(D.COVARIATE_SLOPES))
+            if draw(st.booleans()):
+                c["description"] = draw(_text)
+            covs.append(c)
+        doc["covariates"] = covs
     if draw(st.booleans()):
         doc["study"] = {k: draw(_text) for k in draw(st.lists(st.sampled_from(
             ["sample_size_rationale", "allocation", "blinding", "stopping_rule", "exclusion_rules"]), unique=True))}
