@@ -311,7 +311,7 @@ def _run_arguments(r: argparse.ArgumentParser) -> None:
 
 @contextlib.contextmanager
 def _quiet_readers(quiet: bool):
-    """Tell the out-of-core reader (reporter.intake.duckdb_source) to show no progress bar,
+    """Tell the out-of-core reader (reporter.intake.duck) to show no progress bar,
     for this command only."""
     key = "ANOVA_REPORT_QUIET"
     before = os.environ.get(key)

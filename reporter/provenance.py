@@ -54,7 +54,7 @@ class Provenance:
     data_format: str
     software: tuple[tuple[str, str], ...]
     created: str
-    data_reader: str = "in-memory"  # "out-of-core": read by DuckDB queries (duckdb_source)
+    data_reader: str = "in-memory"  # "out-of-core": read by DuckDB queries (reporter.intake.duck)
     data_path: str | None = None  # see the module docstring for the rule
     plan_path: str | None = None
     paths_relative_to: str | None = "as-given"  # or "results-folder"; None when no path is recorded
@@ -120,7 +120,7 @@ def recorded_path(path, results_folder) -> str | None:
 def _data_bytes(data, path) -> int | None:
     if path is None or data.sha256 is None:
         return None
-    from reporter.intake.duckdb_source import matched_files
+    from reporter.intake.duck.files import matched_files
 
     try:
         return sum(os.stat(f).st_size for f in matched_files(Path(path)))

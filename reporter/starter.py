@@ -4,7 +4,7 @@ The data file is read by the intake's rules (a regular file; UTF-8 text with a h
 Parquet; :mod:`reporter.intake.data`, :mod:`reporter.intake.files`). A file under
 ``OUT_OF_CORE_BYTES`` is read whole. A larger one is read in two steps: its first
 :data:`SAMPLE_ROWS` rows to guess the roles of the columns, then only the factor columns in
-full, to list every level (one DuckDB query, :mod:`reporter.intake.duckdb_source`).
+full, to list every level (one DuckDB query, :mod:`reporter.intake.duck`).
 
 How the roles are guessed (the thresholds are common practice, no source):
 
@@ -173,7 +173,7 @@ class _Source:
             check_widths(describe_path(self.path), header, rows, lines)
             self.rows = rows
             return header, rows
-        from reporter.intake.duckdb_source import _read_header
+        from reporter.intake.duck.files import _read_header
 
         header, _ = _read_header(self.path, self.delimiter)
         return header, self._duck(f"SELECT * FROM {self._scan(len(header))} LIMIT {SAMPLE_ROWS}")
@@ -194,12 +194,12 @@ class _Source:
         return header, list(zip(*cols)) if cols else []
 
     def _parquet_types(self):
-        from reporter.intake.duckdb_source import _lit
+        from reporter.intake.duck.connection import _lit
 
         return [(r[0], r[1]) for r in self._duck(f"DESCRIBE SELECT * FROM read_parquet({_lit(self.path.as_posix())})")]
 
     def _scan(self, width: int) -> str:
-        from reporter.intake.duckdb_source import _lit
+        from reporter.intake.duck.connection import _lit
 
         spec = "{" + ", ".join(f"'c{i}': 'VARCHAR'" for i in range(width)) + "}"
         return (f"read_csv({_lit(self.path.as_posix())}, header = true, auto_detect = false, columns = {spec}, "
@@ -207,7 +207,7 @@ class _Source:
 
     def _duck(self, *queries: str):
         """Run queries in a private DuckDB; the rows of the last one."""
-        from reporter.intake.duckdb_source import _close, _connect, _run
+        from reporter.intake.duck.connection import _close, _connect, _run
 
         folder = tempfile.mkdtemp(prefix="anova-report-")
         con = _connect(folder)
@@ -253,7 +253,8 @@ class _Source:
         """Levels and combinations from DuckDB in one GROUP BY over the needed columns, each
         combination with its first row: Parquet gives its row numbers; a text file's needed
         columns are first copied to a table, whose rowid keeps the file's order."""
-        from reporter.intake.duckdb_source import _factor_text_sql, _ident, _lit
+        from reporter.intake.duck.connection import _ident, _lit
+        from reporter.intake.duck.levels import _factor_text_sql
 
         keys = ", ".join(f"f{j}" for j in range(len(idx)))
         if self.suffix == ".parquet":

@@ -90,7 +90,7 @@ class Dataset:
     # Set when the input is a table of cell summaries (reporter.intake.summary.SummaryInput):
     # how it was read (spread, conversion, rounding); there are no rows then.
     summary: Any = None
-    # Which reader read the rows: "in-memory" or "out-of-core" (DuckDB, see duckdb_source).
+    # Which reader read the rows: "in-memory" or "out-of-core" (DuckDB, see reporter.intake.duck).
     reader: str = "in-memory"
 
     @property
@@ -117,10 +117,10 @@ def require_file(path: Path, fix: str | None = None) -> Path:
 
 def load_data(plan: Plan) -> Dataset:
     """Read the data file named by the plan and match it to the plan's factors."""
-    from reporter.intake.duckdb_source import use_out_of_core
+    from reporter.intake.duck.files import use_out_of_core
 
     if use_out_of_core(plan):
-        from reporter.intake.duckdb_source import load_out_of_core
+        from reporter.intake.duck.reader import load_out_of_core
 
         return load_out_of_core(plan)
     path = require_file(plan.data.path)

@@ -190,9 +190,9 @@ def _where(prov) -> str:
 
 def data_sha256(path: Path) -> str:
     """The SHA-256 the readers record for a data path: of the file's bytes, or for a pattern of
-    several files, of their names and hashes (as :mod:`reporter.intake.duckdb_source` does)."""
+    several files, of their names and hashes (as :mod:`reporter.intake.duck.files` does)."""
     from reporter.intake.data import hash_file
-    from reporter.intake.duckdb_source import _glob_digest, matched_files
+    from reporter.intake.duck.files import _glob_digest, matched_files
 
     files = matched_files(path)
     digests = [(hash_file(f),) for f in files]
@@ -200,7 +200,7 @@ def data_sha256(path: Path) -> str:
 
 
 def _data_exists(path: Path) -> bool:
-    from reporter.intake.duckdb_source import is_glob
+    from reporter.intake.duck.files import is_glob
 
     return bool(glob.glob(str(path))) if is_glob(path) else _exists(path)
 
@@ -356,7 +356,7 @@ def verify(results: str | os.PathLike, *, plan: str | os.PathLike | None = None,
             f"{shown}: the data it records at {describe_path(data_path)}")
         if data_path.suffix.lower() not in D.DATA_SUFFIXES:
             raise OptionError(f"{given}: must end in .csv, .tsv or .parquet; give the data file with --data FILE.")
-        from reporter.intake.duckdb_source import is_glob
+        from reporter.intake.duck.files import is_glob
 
         if not is_glob(data_path):
             from reporter.intake.data import require_file

@@ -22,7 +22,8 @@ import scipy.stats
 
 from reporter.errors import DataError, PlanError
 from reporter.intake import defaults as D
-from reporter.intake import duckdb_source as ds
+from reporter.intake.duck import outcome as duck_outcome
+from reporter.intake.duck import rows as duck_rows
 from reporter.intake.cells import describe_cells
 from reporter.intake.data import load_data
 from reporter.intake.plan import load_plan, plan_from_dict
@@ -289,15 +290,15 @@ def test_order_statistics_when_buckets_must_be_refined(rows_pair, monkeypatch):
     """With a fetch budget of a few values every wanted bucket is refined again (down to the
     depth limit); medians, quantiles and figure points still equal numpy's (reference library)."""
     y, cell, cells, rows, _ = rows_pair
-    monkeypatch.setattr(ds, "_FETCH", 1)
+    monkeypatch.setattr(duck_rows, "_FETCH", 1)
     depths = []
-    refine = ds.DuckRows._refine
+    refine = duck_rows.DuckRows._refine
 
     def counted(self, *args, **kwargs):
         depths.append(args[4])
         return refine(self, *args, **kwargs)
 
-    monkeypatch.setattr(ds.DuckRows, "_refine", counted)
+    monkeypatch.setattr(duck_rows.DuckRows, "_refine", counted)
     rows._medians = None
     assert_close(rows.medians(), np.array([np.median(y[cell == c]) for c in range(6)]))
     scale = np.array([2.0, 3.0, 1.0, 4.0, 2.5, 5.0])
@@ -496,7 +497,7 @@ def test_reader_key_and_automatic_switch(tmp_path, monkeypatch):
 
 
 def test_whitespace_list_is_python_strip():
-    assert set(ds._WS) == {chr(c) for c in range(0x110000) if chr(c).isspace()}
+    assert set(duck_outcome._WS) == {chr(c) for c in range(0x110000) if chr(c).isspace()}
 
 
 def test_number_rule_in_sql_equals_the_plain_decimal_rule(tmp_path):
@@ -510,7 +511,7 @@ def test_number_rule_in_sql_equals_the_plain_decimal_rule(tmp_path):
     texts = sorted({"".join(rnd.choice(alphabet) for _ in range(rnd.randint(0, 8))) for _ in range(30000)})
     texts += ["NA", " nan ", "-NaN", "None", "1e400", "-1e-400", "1e-310", "0e-999", "1e00001", "1_000", "+-1",
               "\u22121.5", "1" * 100, "1" * 101, "0." + "0" * 98, "infinity", "0x1p3", "1.5f", "1d5"]
-    fast, t, status, value = ds._status_sql("y", plan)
+    fast, t, status, value = duck_outcome._status_sql("y", plan)
     con = duckdb.connect()
     con.execute("CREATE TABLE s (i INTEGER, y VARCHAR)")
     con.executemany("INSERT INTO s VALUES (?, ?)", [[i, x] for i, x in enumerate(texts)])
@@ -518,7 +519,7 @@ def test_number_rule_in_sql_equals_the_plain_decimal_rule(tmp_path):
         f"SELECT i, {status}, {value} FROM (SELECT *, {t} AS t FROM (SELECT *, {fast} AS fast FROM s)) ORDER BY i"
     ).fetchall()
     for (i, st, val), x in zip(got, texts):
-        want = ds._clean_number(x, plan)
+        want = duck_outcome._clean_number(x, plan)
         assert (st == 0) == (want is not None), x
         if want is not None:
             assert float(val) == float(want), x

@@ -1,0 +1,303 @@
+"""The row-access questions (:mod:`reporter.intake.rows`) answered by SQL over the compact table
+of :mod:`.reader`: medians, deviations, rank sums, order statistics and quantiles, the outlier
+screen and the Shapiro-Wilk sample."""
+
+from __future__ import annotations
+
+import math
+import threading
+import weakref
+from fractions import Fraction
+from pathlib import Path
+from typing import Any, Sequence
+
+import numpy as np
+
+from reporter.intake.duck.cell_table import _moments
+from reporter.intake.duck.connection import _close, _doubles
+from reporter.intake.duck.files import _RowNumbers
+from reporter.intake.rows import CellPoints, FlaggedRows, RankSums, sample_positions
+
+
+class DuckRows:
+    """The :class:`~reporter.intake.rows.RowAccess` questions answered by SQL over the compact
+    table that :func:`load_out_of_core` wrote (values are offsets from the pivot).
+
+    Quantiles are type 7 (DuckDB's ``quantile_cont``, linear interpolation between order
+    statistics, Hyndman & Fan 1996, The American Statistician 50(4), 361-365). The sample is the
+    rows at :func:`~reporter.intake.rows.sample_positions`, the rule the in-memory rows use too.
+    """
+
+    kind = "duckdb"
+
+    def __init__(self, con, folder: str, k: int, rownum: _RowNumbers, files: Sequence[Path],
+                 counts: np.ndarray | None = None, lo: np.ndarray | None = None, hi: np.ndarray | None = None):
+        self._con, self._folder, self.k, self._rownum = con, folder, k, rownum
+        self.files = tuple(files)
+        if counts is None or lo is None or hi is None:
+            [(counts, _, _)], (lo, hi) = _moments(con, ["d"], "kept", k, extremes=True)
+        self._counts = np.asarray(counts, dtype=np.int64)
+        self._lo, self._hi = np.asarray(lo, dtype=np.float64), np.asarray(hi, dtype=np.float64)
+        self.n = int(self._counts.sum())
+        self._n_obs = int(con.execute("SELECT count(*) FROM obs").fetchall()[0][0])
+        self._finalizer = weakref.finalize(self, _close, con, folder)
+        self._lock = threading.Lock()
+        self._medians: np.ndarray | None = None
+
+    def close(self) -> None:
+        self._finalizer()
+
+    def _q(self, sql: str, params: Sequence[Any] = ()):
+        with self._lock:
+            return self._con.execute(sql, list(params)).fetchall()
+
+    def _np(self, sql: str) -> dict[str, np.ndarray]:
+        with self._lock:
+            return self._con.execute(sql).fetchnumpy()
+
+    def _observed(self) -> dict[int, int]:
+        return {c: int(m) for c, m in enumerate(self._counts.tolist()) if m > 0}
+
+    def medians(self) -> np.ndarray:
+        """Per-cell medians from exact order statistics (DuckDB's median aggregate would hold
+        every value of a cell in memory); computed once."""
+        if self._medians is None:
+            out = np.full(self.k, np.nan)
+            counts = self._observed()
+            bounds = {c: (self._lo[c], self._hi[c]) for c in counts}
+            for c, q in self._quantiles(counts, "SELECT cell, d AS v FROM kept", [0.5], bounds).items():
+                out[c] = q[0]
+            self._medians = out
+        return self._medians.copy()
+
+    def deviation_stats(self, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        return self.deviation_stats_many([centre])[0]
+
+    def deviation_stats_many(self, centres: Sequence[np.ndarray]) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+        """:meth:`deviation_stats` about each centre, all from the same two scans."""
+        with self._lock:
+            return _moments(self._con, [f"abs(d - {_doubles(c)}[cell + 1])" for c in centres], "kept", self.k)[0]
+
+    def rank_sums(self) -> RankSums:
+        """Rank sums with mid-ranks for ties, in exact integers (twice each sum): a value shared
+        by t rows that has ``below`` rows under it gets rank (2·below + t + 1)/2; the tie term
+        is Σ(t³ − t). Up to :data:`_WIDE_CELLS` cells this is one hash aggregate of the rows by
+        value (with a count per cell) and one running sum over the distinct values."""
+        if self.k <= _WIDE_CELLS:
+            counts = ", ".join(f"count(*) FILTER (WHERE cell = {j}) AS c{j}" for j in range(self.k))
+            sums = ", ".join(f"sum(CAST(c{j} AS HUGEINT) * (2 * CAST(below AS HUGEINT) + t + 1))" for j in range(self.k))
+            got = self._q(
+                f"WITH v AS (SELECT d, count(*) AS t, {counts} FROM kept GROUP BY d), "
+                "r AS (SELECT *, sum(t) OVER (ORDER BY d ROWS UNBOUNDED PRECEDING) - t AS below FROM v) "
+                f"SELECT sum(CAST(t AS HUGEINT) * t * t - t), {sums} FROM r"
+            )[0]
+            tie, rows = got[0], list(enumerate(got[1:]))
+        else:
+            rows = self._q(
+                "WITH g AS (SELECT d, cell, count(*) AS m FROM kept GROUP BY d, cell), "
+                "v AS (SELECT d, sum(m) AS t FROM g GROUP BY d), "
+                "r AS (SELECT d, t, sum(t) OVER (ORDER BY d ROWS UNBOUNDED PRECEDING) - t AS below FROM v) "
+                "SELECT g.cell, sum(CAST(g.m AS HUGEINT) * (2 * CAST(r.below AS HUGEINT) + CAST(r.t AS HUGEINT) + 1)) "
+                "FROM g JOIN r USING (d) GROUP BY g.cell"
+            )
+            tie = self._q("SELECT sum(t * t * t - t) FROM (SELECT CAST(count(*) AS HUGEINT) AS t FROM kept GROUP BY d)")[0][0]
+        rank_sum = np.zeros(self.k)
+        for c, twice in rows:
+            rank_sum[c] = float(Fraction(int(twice or 0), 2))
+        return RankSums(rank_sum=rank_sum, tie_term=float(int(tie or 0)), n=self.n)
+
+    def _order_stats(self, source: str, positions: dict[int, list[int]], bounds: dict[int, tuple[float, float]],
+                     counts: dict[int, int]) -> dict[tuple[int, int], float]:
+        """Order statistics (0-based ranks within each cell) of ``v`` in ``source``, exactly and
+        without a sort: a histogram of equal-width buckets per cell (between the cell's known
+        smallest and largest value, ``bounds``) locates each rank's bucket (bucket numbers are
+        monotone in the value, so buckets hold consecutive ranks); the values of those buckets
+        are fetched and sorted when they number at most :data:`_FETCH`, and a larger bucket is
+        refined the same way. Each step is one linear scan with memory bounded by the buckets,
+        so it stays out-of-core (the selection algorithm of Floyd & Rivest 1975, CACM 18(3),
+        165-172, by bucketing instead of sampling)."""
+        result: dict[tuple[int, int], float] = {}
+        wanted = {c: sorted({int(q) for q in qs}) for c, qs in positions.items() if qs}
+        self._refine(source, "true", wanted, result, 0, bounds, counts)
+        return result
+
+    def _refine(self, source: str, where: str, wanted: dict[int, list[int]], result, depth: int,
+                bounds: dict[int, tuple[float, float]] | None = None, counts: dict[int, int] | None = None) -> None:
+        cells = ", ".join(map(str, sorted(wanted)))
+        scope = f"FROM ({source}) WHERE {where} AND cell IN ({cells})"
+        if bounds is None:
+            bounds = {c: (a, b) for c, a, b in self._q(f"SELECT cell, min(v), max(v) {scope} GROUP BY cell")}
+        # Buckets per cell: enough that the buckets holding the wanted ranks are small (about
+        # half of _FETCH values in all for evenly spread values, so that one fetch usually ends
+        # the search), and at most about 4 million in all (the histogram is fetched as an array).
+        need = max(max(16 * len(q), 2 * len(q) * (counts or {}).get(c, 0) * len(wanted) // _FETCH)
+                   for c, q in wanted.items())
+        nb = min(_MAX_BUCKETS, max(1024, 1 << math.ceil(math.log2(need))))
+        nb = max(1024, min(nb, 1 << int(math.log2(max((1 << 22) // len(wanted), 1)))))
+        lo = np.zeros(self.k)
+        scale = np.zeros(self.k)
+        live = {}
+        for c, (a, b) in bounds.items():
+            if c not in wanted:
+                continue
+            if a == b:  # every value of the cell (in this bucket) is the same
+                result.update({(c, q): float(a) for q in wanted[c]})
+                continue
+            step = nb / (b - a)
+            if not math.isfinite(step):
+                step = 0.0  # a range below float64's resolution for the division: one bucket
+            lo[c], scale[c], live[c] = a, step, wanted[c]
+        if not live:
+            return
+        bucket = (f"greatest(least(CAST(floor((v - {_doubles(lo)}[cell + 1]) * {_doubles(scale)}[cell + 1]) AS BIGINT), "
+                  f"{nb - 1}), 0)")
+        cells = ", ".join(map(str, sorted(live)))
+        scope = f"FROM ({source}) WHERE {where} AND cell IN ({cells})"
+        hist = self._np(f"SELECT key, count(*) AS m FROM (SELECT cell * {nb} + {bucket} AS key {scope}) GROUP BY key")
+        key = np.asarray(hist["key"], dtype=np.int64)
+        order = sorted(live)
+        row = np.zeros(self.k, dtype=np.int64)
+        row[order] = np.arange(len(order))
+        sizes_arr = np.zeros((len(order), nb), dtype=np.int64)
+        np.add.at(sizes_arr, (row[key // nb], key % nb), np.asarray(hist["m"], dtype=np.int64))
+        sizes = {c: sizes_arr[row[c]] for c in order}
+        targets: dict[tuple[int, int], list[tuple[int, int]]] = {}
+        for c, ranks in live.items():
+            ends = np.cumsum(sizes[c])
+            for q in ranks:
+                b = int(np.searchsorted(ends, q, side="right"))
+                targets.setdefault((c, b), []).append((q, q - int(ends[b] - sizes[c][b])))
+        fetch, total = [], 0
+        for (c, b), items in sorted(targets.items(), key=lambda kv: sizes[kv[0][0]][kv[0][1]]):
+            m = int(sizes[c][b])
+            if total + m <= _FETCH or depth >= 6:
+                fetch.append((c, b))
+                total += m
+            else:
+                sub: dict[tuple[int, int], float] = {}
+                self._refine(source, f"{where} AND cell = {c} AND {bucket} = {b}", {c: [w for _, w in items]}, sub, depth + 1)
+                result.update({(c, q): sub[(c, w)] for q, w in items})
+        if fetch:
+            keys = [c * nb + b for c, b in fetch]
+            with self._lock:
+                got = self._con.execute(
+                    f"SELECT key, v FROM (SELECT cell * {nb} + {bucket} AS key, v {scope}) "
+                    "WHERE key IN (SELECT unnest($1::BIGINT[]))", [keys]).fetchnumpy()
+            key = np.asarray(got["key"], dtype=np.int64)
+            vals = np.asarray(got["v"], dtype=np.float64)
+            order = np.lexsort((vals, key))
+            key, vals = key[order], vals[order]
+            for c, b in fetch:
+                start = int(np.searchsorted(key, c * nb + b, side="left"))
+                for q, w in targets[(c, b)]:
+                    result[(c, q)] = float(vals[start + w])
+
+    def _quantiles(self, counts: dict[int, int], source: str, probs: Sequence[float],
+                   bounds: dict[int, tuple[float, float]]) -> dict[int, np.ndarray]:
+        """Type 7 quantiles per cell (numpy's default: h = (n − 1)p, linear interpolation written
+        as numpy writes it), from the order statistics of one sort."""
+        p = np.asarray(probs, dtype=np.float64)
+        plan = {}
+        for c, n in counts.items():
+            h = (n - 1) * p
+            lo = np.floor(h).astype(np.int64)
+            hi = np.minimum(lo + 1, n - 1)
+            plan[c] = (lo, hi, h - lo)
+        stats = self._order_stats(source, {c: [*lo.tolist(), *hi.tolist()] for c, (lo, hi, _) in plan.items()}, bounds, counts)
+        out = {}
+        for c, (lo, hi, t) in plan.items():
+            a = np.array([stats[(c, int(i))] for i in lo])
+            b = np.array([stats[(c, int(i))] for i in hi])
+            diff = b - a
+            out[c] = np.where(t >= 0.5, b - diff * (1 - t), a + diff * t)
+        return out
+
+    def residual_quantiles(self, means: np.ndarray, scale: np.ndarray, probs: Sequence[float]) -> np.ndarray:
+        """Quantiles of (d − mean_c)/scale_c over the usable cells. Their count and range come
+        from the cell table and each cell's smallest and largest value: the map is monotone
+        increasing within a cell (a subtraction and a division by a positive number, each
+        rounded monotonically), so no scan is needed for them."""
+        probs = [float(p) for p in probs]
+        if not probs:
+            return np.empty(0)
+        means = np.asarray(means, dtype=np.float64)
+        scale = np.asarray(scale, dtype=np.float64)
+        with np.errstate(invalid="ignore"):
+            usable = np.isfinite(scale) & (scale > 0) & (self._counts > 0)
+        n = int(self._counts[usable].sum())
+        if n == 0:
+            return np.full(len(probs), np.nan)
+        m, s = _doubles(means), _doubles(scale)
+        source = (f"SELECT 0 AS cell, (d - {m}[cell + 1]) / {s}[cell + 1] AS v FROM kept "
+                  f"WHERE isfinite({s}[cell + 1]) AND {s}[cell + 1] > 0")
+        with np.errstate(invalid="ignore", divide="ignore"):
+            lo = float(np.min(((self._lo - means) / scale)[usable]))
+            hi = float(np.max(((self._hi - means) / scale)[usable]))
+        return self._quantiles({0: n}, source, probs, {0: (lo, hi)})[0]
+
+    def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
+        """Small cells: every value in increasing order; large cells: ``max_points`` quantiles."""
+        counts = self._observed()
+        small = [c for c, n in counts.items() if n <= max_points]
+        large = {c: n for c, n in counts.items() if n > max_points}
+        values: dict[int, Sequence[float]] = {}
+        if small:
+            for c, vals in self._q(
+                f"SELECT cell, list(d ORDER BY d) FROM kept WHERE cell IN ({', '.join(map(str, small))}) GROUP BY cell"
+            ):
+                values[c] = vals
+        if large:
+            listed = ", ".join(map(str, large))
+            values.update(self._quantiles(large, f"SELECT cell, d AS v FROM kept WHERE cell IN ({listed})",
+                                          np.linspace(0.0, 1.0, max_points),
+                                          {c: (self._lo[c], self._hi[c]) for c in large}))
+        return tuple(
+            CellPoints(n=int(counts.get(c, 0)), values=tuple(float(v) for v in values.get(c, ())), summarized=c in large)
+            for c in range(self.k)
+        )
+
+    def flagged(self, centre: np.ndarray, bound: np.ndarray, limit: int) -> FlaggedRows:
+        """One scan writes the flagged rows (usually few) to a temporary table; their per-cell
+        sums and the largest deviations are read from it."""
+        c, b = _doubles(centre), _doubles(bound)
+        with self._lock:
+            self._con.execute(
+                f"CREATE OR REPLACE TEMP TABLE flagged AS SELECT r, cell, d, e FROM (SELECT r, cell, d, "
+                f"d - {c}[cell + 1] AS e, {b}[cell + 1] AS b FROM kept) WHERE isfinite(b) AND abs(e) > b")
+        try:
+            agg = self._q("SELECT cell, count(*), fsum(e), fsum(e * e) FROM flagged GROUP BY cell")
+            top = self._q(f"SELECT r, cell, d FROM flagged ORDER BY abs(e) DESC, r LIMIT {int(max(limit, 0))}")
+        finally:
+            self._q("DROP TABLE flagged")
+        count = np.zeros(self.k, dtype=np.int64)
+        sum_dev = np.zeros(self.k)
+        sum_dev2 = np.zeros(self.k)
+        for c, m, s1, s2 in agg:
+            count[c], sum_dev[c], sum_dev2[c] = m, s1, s2
+        rows = tuple((self._rownum.number(r), int(c), float(d)) for r, c, d in top)
+        return FlaggedRows(total=int(count.sum()), rows=rows, count=count, sum_dev=sum_dev, sum_dev2=sum_dev2)
+
+    def sample(self, size: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
+        """The rows at :func:`~reporter.intake.rows.sample_positions` (the in-memory reader's
+        rule), fetched by position among the analysed rows: the row id itself when no row was
+        left out, else the running row number of the analysed rows in table order."""
+        if self.n <= size:
+            got = self._np("SELECT d, cell FROM kept ORDER BY r")
+        else:
+            pos = sample_positions(self.n, size, seed).tolist()
+            if self.n == self._n_obs:
+                sql = "SELECT d, cell FROM kept WHERE id IN (SELECT unnest($1::BIGINT[])) ORDER BY r"  # row ids: fast
+            else:
+                sql = ("SELECT d, cell FROM (SELECT d, cell, r, row_number() OVER () - 1 AS p FROM kept) "
+                       "WHERE p IN (SELECT unnest($1::BIGINT[])) ORDER BY r")
+            with self._lock:
+                got = self._con.execute(sql, [pos]).fetchnumpy()
+        return np.asarray(got["d"], dtype=np.float64), np.asarray(got["cell"], dtype=np.int64)
+
+    def arrays(self) -> None:
+        return None
+
+
+_MAX_BUCKETS = 1 << 20  # histogram buckets per cell at most when locating order statistics
+_FETCH = 1_000_000  # values fetched into Python at most per refinement step
+_WIDE_CELLS = 64  # at most this many cells: rank sums from one aggregate with a count column per cell
