@@ -52,6 +52,21 @@ Kinds (keys of :class:`FigureSpec`; a value of ``None`` is a missing value):
 ``"residuals"``
     ``groups``, ``residuals`` (one tuple per group); optional ``y_label`` (default "Residual").
     The residuals of each cell as jittered dots, with a horizontal line at 0.
+``"adjusted-means"``
+    ``groups``, ``means``, ``ci_low``, ``ci_high`` (the raw cell means and their intervals),
+    ``adjusted``, ``adjusted_low``, ``adjusted_high`` (the covariate-adjusted means and their
+    intervals), ``y_label``, ``ci_label``; optional ``x_label``. Each group shows its raw mean
+    (open circle, grey interval) just left of its adjusted mean (dark diamond, dark interval),
+    joined by a faint line, so the shift made by the adjustment can be read off. An empty group
+    is labelled "no data".
+``"covariate"``
+    ``groups``, ``x``, ``y`` (one tuple of values per group, paired in order), ``lines`` (per
+    group, the fitted line as ``(x0, y0, x1, y1)`` or None), ``x_label``, ``y_label``; optional
+    ``legend_title`` and ``reference`` (a covariate value marked by a dashed vertical line, the
+    value at which adjusted means are taken). The outcome against a covariate: each group's
+    points and its fitted line in the group's colour, marker and dash pattern. The drawing
+    shows the points it is given; the caller bounds them (at most 200 per cell, see
+    :mod:`reporter.inference.scatter`).
 
 The jitter is uniform within ±0.17 of a group's position, drawn from one generator with a
 fixed seed in group order; given values in the same order, a row sits at the same sideways
@@ -110,7 +125,7 @@ MUTED = "#6B6B6B"
 GRID = "#E4E4E4"
 """The light horizontal grid."""
 
-KINDS = ("means", "interaction", "qq", "residuals")
+KINDS = ("means", "interaction", "qq", "residuals", "adjusted-means", "covariate")
 
 FIGSIZE = (6.4, 3.6)
 """Natural size in inches; 460.8 x 259.2 pt in the SVG."""
@@ -228,7 +243,7 @@ def _canvas_type():
     return Canvas
 
 
-# ---------------------------------------------------------------- the four kinds
+# ---------------------------------------------------------------- the kinds
 
 
 def _draw_means(ax, data: dict) -> None:
@@ -357,11 +372,123 @@ def _draw_residuals(ax, data: dict) -> None:
     _ensure_ylim(ax, symmetric=True)
 
 
+def _draw_adjusted_means(ax, data: dict) -> None:
+    groups = _strings(data, "groups")
+    k = len(groups)
+    raw = tuple(_numbers(data, key, k) for key in ("means", "ci_low", "ci_high"))
+    adjusted = tuple(_numbers(data, key, k) for key in ("adjusted", "adjusted_low", "adjusted_high"))
+    ci_label = str(data.get("ci_label") or "CI")
+    dx = 0.15
+    empty = []
+    for i in range(k):
+        if raw[0][i] is None and adjusted[0][i] is None:
+            empty.append(i)
+            continue
+        if raw[0][i] is not None and adjusted[0][i] is not None:
+            ax.plot([i - dx, i + dx], [raw[0][i], adjusted[0][i]], color=MUTED, linewidth=0.8,
+                    linestyle=":", zorder=3, gid=f"shift-{i}")
+        for name, (m, lo, hi), x, colour, marker, face in (
+            ("raw", raw, i - dx, MUTED, "o", "white"),
+            ("adjusted", adjusted, i + dx, INK, "D", INK),
+        ):
+            if m[i] is None:
+                continue
+            if lo[i] is not None and hi[i] is not None:
+                bars = ax.errorbar(
+                    [x], [m[i]], yerr=[[max(0.0, m[i] - lo[i])], [max(0.0, hi[i] - m[i])]],
+                    fmt="none", ecolor=colour, elinewidth=1.3, capsize=4, capthick=1.3, zorder=4,
+                )
+                bars.lines[2][0].set_gid(f"{name}-ci-{i}")
+            ax.plot([x], [m[i]], linestyle="none", marker=marker, markersize=6.5, color=colour,
+                    markerfacecolor=face, markeredgewidth=1.2 if name == "raw" else 0.9,
+                    markeredgecolor=colour if name == "raw" else "white", zorder=5,
+                    gid=f"{name}-{i}")
+    _no_data_labels(ax, empty)
+    _category_axis(ax, groups, data.get("x_label"))
+    ax.set_ylabel(_y_label(data, "y_label", None))
+    _ensure_ylim(ax)
+    from matplotlib.lines import Line2D
+
+    handles = [
+        Line2D([], [], color=MUTED, linewidth=1.3, marker="o", markersize=6, markerfacecolor="white",
+               markeredgecolor=MUTED, markeredgewidth=1.2, label=f"Raw mean and {ci_label}"),
+        Line2D([], [], color=INK, linewidth=1.3, marker="D", markersize=6, markeredgecolor="white",
+               label=f"Adjusted mean and {ci_label}"),
+    ]
+    drawn = (any(v is not None for v in raw[0]), any(v is not None for v in adjusted[0]))
+    handles = [h for h, d in zip(handles, drawn) if d]
+    if handles:
+        ax.legend(handles=handles, loc="lower left", bbox_to_anchor=(0, 1.0), ncols=len(handles),
+                  frameon=False, borderaxespad=0.2, handlelength=1.8, columnspacing=1.6)
+
+
+def _draw_covariate(ax, data: dict) -> None:
+    groups = _strings(data, "groups")
+    k = len(groups)
+    xs = data.get("x")
+    ys = data.get("y")
+    lines = data.get("lines")
+    for key, value in (("x", xs), ("y", ys), ("lines", lines)):
+        if not isinstance(value, tuple) or len(value) != k:
+            raise RenderError(
+                f"Figure data {key!r} must be a tuple of {k} entries, one per group (got {value!r})."
+            )
+    drawn_any = False
+    for i in range(k):
+        colour = PALETTE[i % len(PALETTE)]
+        gx = tuple(xs[i] or ())
+        gy = tuple(ys[i] or ())
+        if len(gx) != len(gy):
+            raise RenderError(
+                f"Figure data 'x[{i}]' and 'y[{i}]' must pair up ({len(gx)} and {len(gy)} values)."
+            )
+        pairs = [(a, b) for a, b in zip(_as_numbers(gx, f"x[{i}]", len(gx)), _as_numbers(gy, f"y[{i}]", len(gy)))
+                 if a is not None and b is not None]
+        if pairs:
+            px, py = zip(*pairs)
+            ax.plot(px, py, linestyle="none", marker=_MARKERS[i % len(_MARKERS)], markersize=3.8,
+                    markeredgewidth=0, color=colour, alpha=_alpha(len(pairs), 0.55),
+                    gid=f"points-{i}", zorder=2)
+        line = lines[i]
+        ends = None if line is None else _as_numbers(tuple(line), f"lines[{i}]", 4)
+        if ends is not None and None not in ends:
+            ax.plot([ends[0], ends[2]], [ends[1], ends[3]], color=colour, linewidth=1.8,
+                    linestyle=_DASHES[i % len(_DASHES)], zorder=4, gid=f"line-{i}")
+        drawn_any = drawn_any or bool(pairs) or (ends is not None and None not in ends)
+    reference = data.get("reference")
+    if drawn_any and isinstance(reference, (int, float)) and math.isfinite(reference):
+        ax.axvline(float(reference), color=MUTED, linewidth=1, linestyle="--", zorder=1, gid="reference")
+    ax.set_xlabel(_y_label(data, "x_label", None))
+    ax.set_ylabel(_y_label(data, "y_label", None))
+    ax.grid(True, axis="x", color=GRID, linewidth=0.6)
+    if not drawn_any:
+        ax.text(0.5, 0.5, "no data", transform=ax.transAxes, ha="center", va="center",
+                color=MUTED, style="italic", gid="no-data")
+        ax.set_xticks([])
+        ax.set_yticks([])
+        return
+    from matplotlib.lines import Line2D
+
+    handles = [
+        Line2D([], [], color=PALETTE[i % len(PALETTE)], linewidth=1.6, linestyle=_DASHES[i % len(_DASHES)],
+               marker=_MARKERS[i % len(_MARKERS)], markersize=5, markeredgewidth=0,
+               label=textwrap.fill(groups[i], width=24))
+        for i in range(k)
+    ]
+    ax.legend(
+        handles=handles, title=textwrap.fill(str(data.get("legend_title") or ""), width=24) or None,
+        loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, handlelength=2.6,
+        borderaxespad=0, alignment="left",
+    )
+
+
 _DRAWERS = {
     "means": _draw_means,
     "interaction": _draw_interaction,
     "qq": _draw_qq,
     "residuals": _draw_residuals,
+    "adjusted-means": _draw_adjusted_means,
+    "covariate": _draw_covariate,
 }
 
 
