@@ -27,12 +27,17 @@ from reporter.inference.posthoc import (
 )
 
 __all__ = [
+    "AdjustedCovariance",
     "KruskalWallisResult",
+    "RobustContrastResult",
     "RobustWaldResult",
     "WelchAnovaResult",
     "WelchContrastResult",
     "games_howell",
+    "hc3_adjusted_covariance",
+    "hc3_contrast_adjusted",
     "hc3_wald",
+    "hc3_wald_adjusted",
     "kruskal_wallis",
     "welch_anova",
     "welch_contrast",
@@ -520,3 +525,164 @@ def hc3_wald(C, n, mean, ss, *, h=None, labels=None) -> RobustWaldResult:
     return RobustWaldResult(
         statistic=f, df1=q, df2=df2, p=float(f_sf(f, q, df2)), method="HC3"
     )
+
+
+# ---------------------------------------------------------------------------------------------
+# HC3 with covariates
+
+
+@dataclass(frozen=True, eq=False)
+class AdjustedCovariance:
+    """The HC3 covariance of the covariate-adjusted cell means (k, k; zero rows and columns for
+    empty cells) and the error df of the adjusted model. ``unusable`` marks cells whose adjusted
+    mean has no HC3 variance because a row it depends on has leverage 1."""
+
+    cov: np.ndarray
+    df: int
+    unusable: np.ndarray
+
+
+@dataclass(frozen=True)
+class RobustContrastResult:
+    """A t test of one contrast with a heteroscedasticity-consistent standard error: estimate
+    c'mu (offsets as given), its null value h, SE, df, t, p and the 1 - alpha interval (one-sided
+    when the test is)."""
+
+    estimate: float
+    null_value: float
+    se: float
+    df: float
+    statistic: float
+    p: float
+    alternative: str
+    confidence_level: float
+    ci_low: float
+    ci_high: float
+
+
+def hc3_adjusted_covariance(model, offset_mean, batches, df_error: int) -> AdjustedCovariance:
+    """HC3 covariance of the adjusted cell means of an analysis of covariance, from row batches.
+
+    With the within-cell-centred parameters theta of :mod:`reporter.inference.covariate_model`
+    (G = (X'X)^-1, block diagonal) and A the map to adjusted means, the sandwich is
+    A G [sum_i e_i^2 / (1 - h_i)^2 z_i z_i'] G A' (MacKinnon & White 1985, Journal of
+    Econometrics 29, 305-325; Long & Ervin 2000, The American Statistician 54, 217-224), z_i the
+    row of X (cell indicator, centred covariates), e_i the residual and h_i the leverage of row i.
+    The middle matrix needs, per cell, sum u^2, sum u^2 d and sum u^2 d d' (u = e/(1 - h),
+    d = x - xbar_c): one pass over ``batches`` of (cell, y offsets, x offsets), O(N p^2) time,
+    memory bounded by the batch size. The estimator does not depend on the parameterization, so it
+    equals the HC3 covariance of any other coding of the same model.
+
+    ``offset_mean`` (k,) are the cell means of the outcome (offsets); ``model`` a
+    :class:`reporter.inference.covariate_model.CovariateModel`.
+    """
+    k, p = model.xbar.shape
+    s0 = np.zeros(k)
+    s1 = np.zeros((k, p))
+    s2 = np.zeros((k, p, p))
+    unusable = np.zeros(k, dtype=bool)
+    slope_row_alone = False
+    means = np.where(model.observed, np.nan_to_num(np.asarray(offset_mean, dtype=float)), 0.0)
+    for cell, y, x in batches:
+        cell = np.asarray(cell).astype(np.intp)
+        if cell.size == 0:
+            continue
+        d = np.asarray(x, dtype=np.float64).reshape(cell.size, p) - model.xbar[cell]
+        e = (np.asarray(y, dtype=np.float64) - means[cell]) - np.einsum("ij,ij->i", d, model.slopes[cell])
+        h = model.leverage(cell, d)
+        one = h >= 1.0 - 1e-10
+        if np.any(one):
+            unusable[cell[one]] = True
+            slope_row_alone = slope_row_alone or bool(np.any(np.abs(h[one] - 1.0 / model.n[cell[one]]) > 1e-10))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            u2 = np.where(one, 0.0, (e / (1.0 - h)) ** 2)
+        s0 += np.bincount(cell, weights=u2, minlength=k)
+        for j in range(p):
+            wj = u2 * d[:, j]
+            s1[:, j] += np.bincount(cell, weights=wj, minlength=k)
+            for l in range(j + 1):
+                s2[:, j, l] += np.bincount(cell, weights=wj * d[:, l], minlength=k)
+    s2 = np.tril(s2) + np.transpose(np.tril(s2, -1), (0, 2, 1))
+    if slope_row_alone and model.mode == "common":  # a row alone determines the common slope
+        unusable[:] = True
+    g, m = model.g, model.m
+    obs = np.flatnonzero(model.observed)
+    slot = model.slot()
+    middle = np.zeros((g + m, g + m))
+    middle[np.arange(g), np.arange(g)] = s0[obs]
+    for s, c in enumerate(obs):
+        block = slice(g + slot[c] * p, g + (slot[c] + 1) * p)
+        middle[s, block] = s1[c]
+        middle[block, s] = s1[c]
+        middle[block, block] += s2[c]
+    b = model.adjusting_matrix() @ model.gram_inverse()
+    cov = b @ middle @ b.T
+    cov = (cov + cov.T) / 2.0
+    return AdjustedCovariance(cov=cov, df=int(df_error), unusable=unusable & model.observed)
+
+
+def _check_hc3_cells(cm: np.ndarray, hc: AdjustedCovariance, labels) -> None:
+    used = np.any(cm != 0.0, axis=0)
+    bad = np.flatnonzero(used & hc.unusable)
+    if bad.size:
+        raise FitError(
+            f"the HC3 test needs 1 - leverage > 0 for every row it uses, but {name_cells(bad, labels)} "
+            f"{'has' if bad.size == 1 else 'have'} a row of leverage 1 (a row that alone determines a "
+            "parameter), so no HC3 variance can be estimated there"
+        )
+
+
+def hc3_wald_adjusted(C, d, hc: AdjustedCovariance, *, labels=None) -> RobustWaldResult:
+    """Wald F of C·mu_adj = h with the HC3 covariance of the adjusted cell means.
+
+    ``d`` is C·mu_adj − h (one value per row of C, as the fit computed it);
+    F = d' (C V C')^-1 d / q with df (q, error df of the adjusted model), q the rank of C
+    (MacKinnon & White 1985; Long & Ervin 2000).
+    """
+    k = hc.cov.shape[0]
+    cm, dv = _reduce_rows(C, d, k)
+    _check_hc3_cells(cm, hc, labels)
+    m = cm @ hc.cov @ cm.T
+    try:
+        chol = np.linalg.cholesky(m)
+    except np.linalg.LinAlgError:
+        chol = None
+    if chol is None or np.min(np.diag(chol)) <= 1e-12 * np.sqrt(np.max(np.diag(m))):
+        raise FitError("the HC3 Wald F is undefined: its covariance of the contrasts is singular "
+                       "(the cells it uses have too little spread)")
+    z = np.linalg.solve(chol, dv)
+    q = cm.shape[0]
+    f = float(z @ z) / q
+    return RobustWaldResult(statistic=f, df1=q, df2=hc.df, p=float(f_sf(f, q, hc.df)), method="HC3")
+
+
+def hc3_contrast_adjusted(c, d: float, h: float, hc: AdjustedCovariance, *, alternative: Alternative = "two-sided",
+                          alpha: float = 0.05, labels=None) -> RobustContrastResult:
+    """t test of c'mu_adj = h with the HC3 standard error sqrt(c' V c) on the error df of the
+    adjusted model (MacKinnon & White 1985; Long & Ervin 2000); ``d`` = c'mu_adj − h as fitted.
+    The estimate and interval are c'mu_adj = d + h."""
+    alternative = _check_alternative(alternative)
+    alpha = _check_alpha(alpha)
+    cv = np.asarray(c, dtype=np.float64)
+    _check_hc3_cells(cv[None, :], hc, labels)
+    var = float(cv @ hc.cov @ cv)
+    if not var > 0.0:
+        raise FitError("the HC3 t is undefined: the contrast has no HC3 variance (the cells it uses "
+                       "have too little spread)")
+    se = math.sqrt(var)
+    df = float(hc.df)
+    t = float(d) / se
+    est = float(d) + float(h)
+    if alternative == "two-sided":
+        p = float(2.0 * t_sf(abs(t), df))
+        q = float(t_isf(alpha / 2.0, df))
+        low, high = est - q * se, est + q * se
+    elif alternative == "greater":
+        p = float(t_sf(t, df))
+        low, high = est - float(t_isf(alpha, df)) * se, np.inf
+    else:
+        p = float(t_cdf(t, df))
+        low, high = -np.inf, est + float(t_isf(alpha, df)) * se
+    return RobustContrastResult(estimate=est, null_value=float(h), se=se, df=df, statistic=t, p=min(p, 1.0),
+                                alternative=alternative, confidence_level=1.0 - alpha, ci_low=float(low),
+                                ci_high=float(high))
