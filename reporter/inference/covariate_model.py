@@ -135,15 +135,17 @@ def _inverse(s: np.ndarray, what: str) -> np.ndarray:
     return (inv + inv.T) / 2.0
 
 
-def describe_covariate_model(n, covariate_stats, slopes: np.ndarray, mode: str, reference: np.ndarray) -> CovariateModel:
-    """The :class:`CovariateModel` of a fit from the cell table's covariate statistics
-    (:class:`reporter.intake.cells.CovariateStats`), the (k, p) slopes, the slopes' mode
-    ("common" or "per-cell") and the reference values (offsets from the covariates' pivots)."""
+def describe_covariate_model(n, xbar, sxx, slopes, mode: str, reference) -> CovariateModel:
+    """The :class:`CovariateModel` of a fit from the cell counts, the covariates' cell means
+    ``xbar`` (k, p; offsets) and within-cell cross-products ``sxx`` (k, p, p) (as
+    :class:`reporter.intake.cells.CovariateStats` holds them), the (k, p) slopes, the slopes'
+    mode ("common" or "per-cell") and the reference values (offsets from the covariates' pivots)."""
     n = np.asarray(n)
     obs = n > 0
-    k, p = covariate_stats.offset_mean.shape
-    xbar = np.where(obs[:, None], np.nan_to_num(np.asarray(covariate_stats.offset_mean, dtype=float)), 0.0)
-    sxx = np.asarray(covariate_stats.sxx, dtype=float)
+    xbar = np.asarray(xbar, dtype=float)
+    k, p = xbar.shape
+    xbar = np.where(obs[:, None], np.nan_to_num(xbar), 0.0)
+    sxx = np.asarray(sxx, dtype=float)
     inv = np.zeros((k, p, p))
     if mode == "common":
         inv[:] = _inverse(sxx[obs].sum(axis=0), "the pooled within-cell cross-product matrix of the covariates")

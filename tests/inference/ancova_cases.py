@@ -57,7 +57,7 @@ def model_for(cell, y, x, k, mode, reference=None):
     cov = describe_covariates(y, x, cell, k)
     ref = x.mean(axis=0) if reference is None else np.asarray(reference, float)
     fit = statsmodels_fit(cell, y, x, k, mode)
-    model = describe_covariate_model(cells.n, cov, slopes_from(fit, k, x.shape[1], mode), mode, ref)
+    model = describe_covariate_model(cells.n, cov.offset_mean, cov.sxx, slopes_from(fit, k, x.shape[1], mode), mode, ref)
     return cells, model, fit, ref
 
 
