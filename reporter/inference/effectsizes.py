@@ -525,6 +525,7 @@ def standardized_contrast(
     df_error: float,
     level: float = 0.95,
     alternative: Alternative = "two-sided",
+    cov=None,
 ) -> ContrastEffectSize:
     """Standardized contrast d, Hedges' g, and the noncentral-t interval for the population value.
 
@@ -542,6 +543,13 @@ def standardized_contrast(
     sqrt(sum(c_s^2 / n)) bound the population standardized contrast. g = J d with Hedges' (1981)
     exact J, and g's interval is J times d's (Hedges 1981; Hedges & Olkin 1985, chapter 5).
     Cells with weight 0 may have n = 0 (empty cells).
+
+    With covariates, ``estimate`` is c'mu_adj over the adjusted cell means, ``mse`` and
+    ``df_error`` are those of the covariate-adjusted model (its df count the slopes) and ``cov``
+    is the covariance of the adjusted means divided by sigma^2 (k x k); then
+    t = d / sqrt(c_s' U c_s) and d is in units of the residual SD of the adjusted model, which the
+    method string states. That SD is smaller than the raw within-cell SD by the share of variance
+    the covariates explain, so d is larger than a d standardized by the unadjusted SD.
     """
     c = np.asarray(weights, dtype=float).ravel()
     n_arr = np.asarray(n, dtype=float).ravel()
@@ -575,7 +583,13 @@ def standardized_contrast(
     scale = 1.0 / positive
     scaling = "weights / sum(positive weights)"
     cs = c * scale
-    spread = math.sqrt(float(np.sum(cs[used] ** 2 / n_arr[used])))
+    if cov is None:
+        spread = math.sqrt(float(np.sum(cs[used] ** 2 / n_arr[used])))
+        standard = "(c'y - h) / sqrt(MSE)"
+    else:
+        u = np.asarray(cov, dtype=float)
+        spread = math.sqrt(float(cs[used] @ u[np.ix_(used, used)] @ cs[used]))
+        standard = "(c'y_adj - h) / sqrt(MSE of the covariate-adjusted model), y_adj the adjusted means"
     d = scale * (float(estimate) - float(h)) / math.sqrt(mse)
     t = d / spread
     delta_low, delta_high = t_noncentrality_ci(t, df_error, level, alternative)
@@ -587,7 +601,7 @@ def standardized_contrast(
             value=d,
             ci=ci,
             ci_level=level,
-            method=f"(c'y - h) / sqrt(MSE), {scaling}",
+            method=f"{standard}, {scaling}",
             ci_method=(
                 f"noncentral t inversion, {alternative} "
                 "(Steiger & Fouladi 1997; Cumming & Finch 2001)"

@@ -10,6 +10,19 @@ are then W @ cell_means and, with MSE the pooled within-cell variance,
 
 the variance used by every family below. For cells this is MSE * (1/n_i + 1/n_j).
 
+With covariates the groups are adjusted means and every function takes ``cov``, the covariance
+of the adjusted cell means divided by sigma^2 (U, k x k, from the covariance-analysis fit), in
+place of diag(1/n): var(group_i - group_j) = MSE * (w_i - w_j)' U (w_i - w_j), MSE and df_error
+those of the adjusted model. Scheffe's intervals hold exactly for any U. Tukey-Kramer with a
+general U is the generalized Tukey-Kramer procedure of Hochberg & Tamhane (1987), *Multiple
+Comparison Procedures*, Wiley (chapter 3, the general linear model): its simultaneous coverage
+of at least 1 - alpha is proven for diagonal U (Hayter 1984) but not for every U, and is reported
+by them as holding in the covariance-analysis settings studied (value from memory; no page is
+quoted). Dunnett's computation needs the one-factor correlation of the differences from the
+control (lam_i lam_j). Two or three differences with positive correlations always have it
+exactly (lam_i^2 = r_ij r_ik / r_jk); with four or more, adjusted means, which share the slope
+estimate, break that structure in general, and the family is then refused with that reason.
+
 Families:
 
 * all pairs, Tukey-Kramer: Tukey (1953), "The problem of multiple comparisons" (unpublished
@@ -140,9 +153,10 @@ def _check_alternative(alternative: str) -> str:
 
 
 def _group_structure(
-    estimates, n, mse, df_error, weights
+    estimates, n, mse, df_error, weights, cov=None
 ) -> tuple[np.ndarray, np.ndarray, float, float]:
-    """Validate the inputs; return estimates, V = W diag(1/n) W', mse and df_error."""
+    """Validate the inputs; return estimates, V = W diag(1/n) W' (or W U W' for a given unscaled
+    covariance U of the cell means), mse and df_error."""
     est = np.asarray(estimates, dtype=np.float64)
     if est.ndim != 1 or est.size < 2:
         raise FitError(
@@ -195,7 +209,15 @@ def _group_structure(
         )
     used = counts > 0
     wu = w[:, used]
-    v = (wu / counts[used]) @ wu.T
+    if cov is None:
+        v = (wu / counts[used]) @ wu.T
+    else:
+        u = np.asarray(cov, dtype=np.float64)
+        if u.shape != (counts.size, counts.size) or not np.all(np.isfinite(u[np.ix_(used, used)])):
+            raise FitError(f"'cov' must be a finite ({counts.size}, {counts.size}) covariance of the cell means "
+                           f"(got shape {u.shape}).")
+        v = wu @ u[np.ix_(used, used)] @ wu.T
+        v = (v + v.T) / 2.0
     return est, v, mse, df_error
 
 
@@ -252,6 +274,7 @@ def tukey_kramer(
     *,
     weights=None,
     alpha: float = 0.05,
+    cov=None,
 ) -> ComparisonFamily:
     """All pairwise differences with Tukey-Kramer simultaneous intervals.
 
@@ -267,7 +290,7 @@ def tukey_kramer(
     means (default: the groups are the cells).
     """
     alpha = _check_alpha(alpha)
-    est, v, mse, df_error = _group_structure(estimates, n, mse, df_error, weights)
+    est, v, mse, df_error = _group_structure(estimates, n, mse, df_error, weights, cov)
     g = est.size
     crit = studentized_range_isf(alpha, g, df_error) / np.sqrt(2.0)
     pairs = [(i, j) for i in range(g) for j in range(i + 1, g)]
@@ -497,6 +520,7 @@ def dunnett(
     weights=None,
     alpha: float = 0.05,
     alternative: Alternative = "two-sided",
+    cov=None,
 ) -> ComparisonFamily:
     """Every group against a control group, Dunnett's simultaneous tests and intervals.
 
@@ -516,7 +540,7 @@ def dunnett(
     """
     alpha = _check_alpha(alpha)
     alternative = _check_alternative(alternative)
-    est, v, mse, df_error = _group_structure(estimates, n, mse, df_error, weights)
+    est, v, mse, df_error = _group_structure(estimates, n, mse, df_error, weights, cov)
     g = est.size
     if isinstance(control, bool) or not isinstance(control, (int, np.integer)) or not (
         0 <= control < g
@@ -527,14 +551,25 @@ def dunnett(
         )
     control = int(control)
     others = [i for i in range(g) if i != control]
-    cov = (
+    cov_d = (
         v[np.ix_(others, others)]
         - v[others, control][:, None]
         - v[control, others][None, :]
         + v[control, control]
     )
     se = np.array([_pair_se(v, mse, i, control) for i in others])
-    lam = _many_to_one_lambdas((cov + cov.T) / 2.0)
+    try:
+        lam = _many_to_one_lambdas((cov_d + cov_d.T) / 2.0)
+    except FitError as exc:
+        if cov is None:
+            raise
+        raise FitError(
+            "Dunnett's adjusted p values need differences from the control that are correlated only "
+            "through the control (a one-factor correlation lam_i lam_j); adjusted means also share the "
+            "estimated covariate slopes, which breaks that structure here, and a general multivariate t "
+            "probability is not computed. Compare the groups with the control through the all-pairs "
+            "Tukey–Kramer or Scheffé family, or state the comparisons as planned hypotheses"
+        ) from exc
     crit = dunnett_critical(lam, df_error, alpha, alternative)
     out = []
     for pos, i in enumerate(others):
@@ -587,6 +622,7 @@ def scheffe_pairs(
     *,
     weights=None,
     alpha: float = 0.05,
+    cov=None,
 ) -> ComparisonFamily:
     """All pairwise differences judged by Scheffe's criterion.
 
@@ -598,7 +634,7 @@ def scheffe_pairs(
     P(F_(g-1, df) >= t^2 / (g - 1)).
     """
     alpha = _check_alpha(alpha)
-    est, v, mse, df_error = _group_structure(estimates, n, mse, df_error, weights)
+    est, v, mse, df_error = _group_structure(estimates, n, mse, df_error, weights, cov)
     g = est.size
     family_df = g - 1
     crit = _scheffe_critical(family_df, df_error, alpha)
@@ -621,6 +657,7 @@ def scheffe_contrast(
     *,
     weights=None,
     alpha: float = 0.05,
+    cov=None,
 ) -> ContrastComparison:
     """One contrast sum_i a_i est_i (sum a_i = 0) among g group means, Scheffe's interval.
 
@@ -628,7 +665,7 @@ def scheffe_contrast(
     :func:`scheffe_pairs` with g - 1 numerator degrees of freedom (Scheffe 1953).
     """
     alpha = _check_alpha(alpha)
-    est, v, mse, df_error = _group_structure(estimates, n, mse, df_error, weights)
+    est, v, mse, df_error = _group_structure(estimates, n, mse, df_error, weights, cov)
     a = np.asarray(coefficients, dtype=np.float64)
     if a.shape != est.shape:
         raise FitError(
