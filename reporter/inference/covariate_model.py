@@ -6,21 +6,23 @@ covariates centred within each cell (Searle (1987), *Linear Models for Unbalance
 section 9.2; Maxwell, Delaney & Kelley (2018), *Designing Experiments and Analyzing Data*,
 3rd ed., chapter 9)::
 
-    y_i = alpha_c + b_c'(x_i - xbar_c) + e_i
+    y_i = alpha_c + sum_j b[c, j] (x_ij - xbar_cj) + e_i
 
-with one slope vector b for every cell ("common" slopes) or one per cell ("per-cell"). The
+where each covariate has one slope for all cells ("common") or one per cell ("per-cell"); the
+m distinct slopes form a vector beta and ``index[c, j]`` is the position of b[c, j] in it. The
 columns (cell indicators, centred covariates) span the same space as (cell indicators, raw
-covariates), so fitted values, residuals, leverages and every test are the same; but X'X is
-block diagonal, diag(n) beside the within-cell cross-products of the covariates (pooled over
-cells for common slopes, per cell otherwise), so (X'X)^-1 needs no large inverse. The estimates
-are alpha_c = ybar_c and b = Sxx^-1 Sxy. The adjusted mean of cell c at the reference values x*
-is alpha_c + b_c'(x* - xbar_c), a linear map A of the parameters.
+covariates), so fitted values, residuals, leverages and every test are the same; but X'X is block
+diagonal, diag(n) beside the slopes' cross-product matrix N (whose inverse is the slopes'
+covariance over sigma^2), so (X'X)^-1 needs no large inverse. The estimates are alpha_c = ybar_c
+and beta = N^-1 r (r the within-cell covariate x outcome cross-products in the same layout). The
+adjusted mean of cell c at the reference values x* is alpha_c + b_c'(x* - xbar_c), a linear map A
+of the parameters.
 
-The leverage of row i in cell c is h_i = 1/n_c + d_i' Sxx_c^-1 d_i with d_i = x_i - xbar_c
-(Sxx_c the pooled matrix for common slopes): the diagonal of X (X'X)^-1 X' for this block form.
+The leverage of row i in cell c is h_i = 1/n_c + d_i' Q_c d_i with d_i = x_i - xbar_c and Q_c
+the block of N^-1 for cell c's slopes: the diagonal of X (X'X)^-1 X' for this block form.
 
-Everything is on the offsets from the pivots (the outcome's and each covariate's), as elsewhere;
-only differences of covariate values enter, so the pivots never meet.
+Everything is on the offsets from the pivots (the outcome's and each covariate's); only
+differences of covariate values enter, so the pivots never meet.
 """
 
 from __future__ import annotations
@@ -31,7 +33,7 @@ import numpy as np
 
 from reporter.errors import FitError
 
-__all__ = ["CovariateModel", "describe_covariate_model", "slope_matrix"]
+__all__ = ["CovariateModel", "covariate_model_of", "describe_covariate_model", "slope_layout"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -40,17 +42,17 @@ class CovariateModel:
 
     ``xbar`` (k, p) cell means of the covariates (offsets; zero rows for empty cells),
     ``reference`` (p,) the covariate values the adjusted means are evaluated at (offsets),
-    ``slopes`` (k, p) the slope of each covariate in each cell (the same row repeated for common
-    slopes; zero rows for empty cells), ``inv_sxx`` (k, p, p) the inverse of the slopes'
-    cross-product matrix of each cell (the pooled matrix repeated for common slopes).
+    ``slopes`` (k, p) the slope of each covariate in each cell (zero rows for empty cells),
+    ``index`` (k, p) the position of each b[c, j] in the slope vector (-1 for empty cells) and
+    ``slope_cov`` (m, m) the slope vector's covariance divided by sigma^2.
     """
 
-    mode: str
     n: np.ndarray
     xbar: np.ndarray
     reference: np.ndarray
     slopes: np.ndarray
-    inv_sxx: np.ndarray
+    index: np.ndarray
+    slope_cov: np.ndarray
 
     @property
     def observed(self) -> np.ndarray:
@@ -66,92 +68,111 @@ class CovariateModel:
 
     @property
     def m(self) -> int:
-        """The number of slope parameters: p (common) or g·p (per-cell)."""
-        return self.p if self.mode == "common" else self.g * self.p
+        """The number of slope parameters."""
+        return int(self.slope_cov.shape[0])
 
-    def slot(self) -> np.ndarray:
-        """(k,) each cell's block of slope parameters: 0 for common slopes, the cell's position
-        among the observed cells for per-cell slopes (-1 for empty cells)."""
-        if self.mode == "common":
-            return np.where(self.observed, 0, -1)
-        out = np.full(self.n.size, -1)
-        out[self.observed] = np.arange(self.g)
+    def cell_blocks(self) -> np.ndarray:
+        """(k, p, p) Q_c: the block of the slopes' covariance over sigma^2 that cell c's slopes
+        use (zeros for empty cells)."""
+        k, p = self.xbar.shape
+        out = np.zeros((k, p, p))
+        for c in np.flatnonzero(self.observed):
+            out[c] = self.slope_cov[np.ix_(self.index[c], self.index[c])]
         return out
 
     def gram_inverse(self) -> np.ndarray:
-        """(X'X)^-1 over (alpha of the observed cells, slope blocks): block diagonal."""
-        g, p, m = self.g, self.p, self.m
+        """(X'X)^-1 over (alpha of the observed cells, the slope vector): block diagonal."""
+        g, m = self.g, self.m
         out = np.zeros((g + m, g + m))
-        obs = np.flatnonzero(self.observed)
-        out[np.arange(g), np.arange(g)] = 1.0 / self.n[obs]
-        if self.mode == "common":
-            out[g:, g:] = self.inv_sxx[obs[0]]
-        else:
-            for s, c in enumerate(obs):
-                out[g + s * p: g + (s + 1) * p, g + s * p: g + (s + 1) * p] = self.inv_sxx[c]
+        out[np.arange(g), np.arange(g)] = 1.0 / self.n[self.observed]
+        out[g:, g:] = self.slope_cov
         return out
 
     def adjusting_matrix(self) -> np.ndarray:
         """A (k, g + m): adjusted cell means = A·theta; zero rows for empty cells."""
-        k, g, p = self.n.size, self.g, self.p
+        k, g = self.n.size, self.g
         a = np.zeros((k, g + self.m))
-        slot = self.slot()
         for s, c in enumerate(np.flatnonzero(self.observed)):
             a[c, s] = 1.0
-            a[c, g + slot[c] * p: g + (slot[c] + 1) * p] = self.reference - self.xbar[c]
+            a[c, g + self.index[c]] += self.reference - self.xbar[c]
         return a
 
-    def leverage(self, cell: np.ndarray, d: np.ndarray) -> np.ndarray:
-        """h_i = 1/n_c + d_i' Sxx_c^-1 d_i for rows in ``cell`` with centred covariates ``d``."""
-        w = np.einsum("ij,ijl,il->i", d, self.inv_sxx[cell], d)
-        return 1.0 / self.n[cell] + w
+    def scatter(self) -> np.ndarray:
+        """(g·p, m): per-cell sums of d-weighted quantities, cell-major, added into the slope
+        vector's layout (a sum over cells for a common slope)."""
+        p = self.p
+        out = np.zeros((self.g * p, self.m))
+        for s, c in enumerate(np.flatnonzero(self.observed)):
+            out[s * p + np.arange(p), self.index[c]] = 1.0
+        return out
+
+    def leverage(self, cell: np.ndarray, d: np.ndarray, blocks: np.ndarray | None = None) -> np.ndarray:
+        """h_i = 1/n_c + d_i' Q_c d_i for rows in ``cell`` with centred covariates ``d``."""
+        q = self.cell_blocks() if blocks is None else blocks
+        return 1.0 / self.n[cell] + np.einsum("ij,ijl,il->i", d, q[cell], d)
 
 
-def slope_matrix(slopes, names: tuple[str, ...], k: int) -> tuple[np.ndarray, str]:
-    """(k, p) slopes b[c, j] from the fit's ``Slope`` records, and the mode.
-
-    A record with ``cell`` None is a common slope (copied to every cell); otherwise it belongs to
-    its cell; cells without a record keep 0 (empty cells).
-    """
-    b = np.zeros((k, len(names)))
-    mode = "common"
-    for s in slopes:
-        j = names.index(s.covariate)
-        if s.cell is None:
-            b[:, j] = s.estimate
+def slope_layout(n, modes) -> np.ndarray:
+    """(k, p) position of each b[c, j] in the slope vector: covariates in order, a common slope
+    taking one position and per-cell slopes one per observed cell (-1 for empty cells)."""
+    obs = np.flatnonzero(np.asarray(n) > 0)
+    index = np.full((np.asarray(n).size, len(modes)), -1, dtype=np.int64)
+    nxt = 0
+    for j, mode in enumerate(modes):
+        if mode == "common":
+            index[obs, j] = nxt
+            nxt += 1
+        elif mode == "per-cell":
+            index[obs, j] = np.arange(nxt, nxt + obs.size)
+            nxt += obs.size
         else:
-            mode = "per-cell"
-            b[int(s.cell), j] = s.estimate
-    return b, mode
+            raise FitError(f"'slopes' must be 'common' or 'per-cell' for each covariate (got {mode!r}).")
+    return index
 
 
-def _inverse(s: np.ndarray, what: str) -> np.ndarray:
-    try:
-        inv = np.linalg.inv(s)
-    except np.linalg.LinAlgError:
-        raise FitError(f"{what} is singular, so the slopes are not estimable") from None
-    if not np.all(np.isfinite(inv)):
-        raise FitError(f"{what} is singular, so the slopes are not estimable")
-    return (inv + inv.T) / 2.0
-
-
-def describe_covariate_model(n, xbar, sxx, slopes, mode: str, reference) -> CovariateModel:
-    """The :class:`CovariateModel` of a fit from the cell counts, the covariates' cell means
-    ``xbar`` (k, p; offsets) and within-cell cross-products ``sxx`` (k, p, p) (as
-    :class:`reporter.intake.cells.CovariateStats` holds them), the (k, p) slopes, the slopes'
-    mode ("common" or "per-cell") and the reference values (offsets from the covariates' pivots)."""
+def describe_covariate_model(n, xbar, sxx, sxy, modes, reference) -> CovariateModel:
+    """The covariance analysis fitted from per-cell statistics: cell counts ``n``, covariate means
+    ``xbar`` (k, p; offsets), within-cell cross-products ``sxx`` (k, p, p) and ``sxy`` (k, p) (as
+    :class:`reporter.intake.cells.CovariateStats` holds them), the slopes' mode of each covariate
+    and the reference values (offsets). The slopes solve N·beta = r (module docstring)."""
     n = np.asarray(n)
     obs = n > 0
     xbar = np.asarray(xbar, dtype=float)
     k, p = xbar.shape
-    xbar = np.where(obs[:, None], np.nan_to_num(xbar), 0.0)
-    sxx = np.asarray(sxx, dtype=float)
-    inv = np.zeros((k, p, p))
-    if mode == "common":
-        inv[:] = _inverse(sxx[obs].sum(axis=0), "the pooled within-cell cross-product matrix of the covariates")
-    else:
-        for c in np.flatnonzero(obs):
-            inv[c] = _inverse(sxx[c], f"the cross-product matrix of the covariates in cell {c}")
-    b = np.where(obs[:, None], np.asarray(slopes, dtype=float), 0.0)
-    return CovariateModel(mode=mode, n=n.astype(np.int64), xbar=xbar,
-                          reference=np.asarray(reference, dtype=float).reshape(p), slopes=b, inv_sxx=inv)
+    modes = (modes,) * p if isinstance(modes, str) else tuple(modes)
+    index = slope_layout(n, modes)
+    m = int(index.max()) + 1
+    normal = np.zeros((m, m))
+    rhs = np.zeros(m)
+    for c in np.flatnonzero(obs):
+        normal[np.ix_(index[c], index[c])] += np.asarray(sxx[c], dtype=float)
+        rhs[index[c]] += np.asarray(sxy[c], dtype=float)
+    try:
+        slope_cov = np.linalg.inv(normal)
+    except np.linalg.LinAlgError:
+        raise FitError("the covariates' within-cell cross-product matrix is singular, so the slopes are not "
+                       "estimable") from None
+    if not np.all(np.isfinite(slope_cov)):
+        raise FitError("the covariates' within-cell cross-product matrix is singular, so the slopes are not "
+                       "estimable")
+    slope_cov = (slope_cov + slope_cov.T) / 2.0
+    beta = np.linalg.solve(normal, rhs)
+    slopes = np.where(obs[:, None], beta[np.maximum(index, 0)], 0.0)
+    return CovariateModel(n=n.astype(np.int64), xbar=np.where(obs[:, None], np.nan_to_num(xbar), 0.0),
+                          reference=np.asarray(reference, dtype=float).reshape(p), slopes=slopes, index=index,
+                          slope_cov=slope_cov)
+
+
+def covariate_model_of(fit) -> CovariateModel:
+    """The :class:`CovariateModel` of a :class:`reporter.fitting.linear.ModelFit` with covariates
+    (its slopes, their layout and covariance, the reference values and the covariate cell means):
+    the numbers the fit computed, not a second fit."""
+    cells = fit.cells
+    cf = fit.covariate_fit
+    obs = cells.observed
+    xbar = np.where(obs[:, None], np.nan_to_num(np.asarray(cells.covariates.offset_mean, dtype=float)), 0.0)
+    return CovariateModel(n=np.asarray(cells.n, dtype=np.int64), xbar=xbar,
+                          reference=np.asarray(cf.reference_offset, dtype=float),
+                          slopes=np.where(obs[:, None], np.asarray(cf.slope_matrix, dtype=float), 0.0),
+                          index=np.asarray(cf.slope_index, dtype=np.int64),
+                          slope_cov=np.asarray(cf.slope_cov, dtype=float))

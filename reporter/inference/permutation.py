@@ -279,17 +279,17 @@ def _contrast_rows(C, n: np.ndarray, k: int) -> np.ndarray:
 
 
 def _null_distribution_adjusted(
-    y, codes, x, k, C, slopes: str, reference, n_permutations: int, seed: int, block: int | None = None, *,
+    y, codes, x, k, C, slopes, reference, n_permutations: int, seed: int, block: int | None = None, *,
     stop_after: int | None = None, progress: bool = False, notify=None, label: str = ""
 ) -> _NullDistribution:
-    """Freedman-Lane with covariates: the reduced model keeps the covariates (common or per-cell
-    slopes) and restricts the adjusted cell means by C·mu_adj = 0.
+    """Freedman-Lane with covariates: the reduced model keeps the covariates (with the same
+    slopes, common or per cell) and restricts the adjusted cell means by C·mu_adj = 0.
 
-    With the within-cell-centred parameters theta = (alpha, b) of
+    With the within-cell-centred parameters theta = (alpha, beta) of
     :mod:`reporter.inference.covariate_model`, G = (X'X)^-1 and L = C·A (A maps theta to the
-    adjusted means), a residual vector r enters F only through z = X'r, that is its cell sums S
-    and its sums T = sum_i r_i d_i (d_i the row's centred covariates, per cell): the hypothesis SS
-    is ||R^-1 L G z||^2 with R R' = L G L', and the residual SS is r'r - z'G z (Searle 1987,
+    adjusted means), a residual vector r enters F only through z = X'r, that is its cell sums and
+    its sums of r_i d_i (d_i the row's centred covariates) laid out as the slopes: the hypothesis
+    SS is ||R^-1 L G z||^2 with R R' = L G L', and the residual SS is r'r - z'G z (Searle 1987,
     section 8.5, the general linear hypothesis). Each permutation costs O(N p).
     """
     y, codes, k = _rows(y, codes, k)
@@ -299,8 +299,6 @@ def _null_distribution_adjusted(
     if xx.ndim != 2 or xx.shape[0] != y.size or not np.all(np.isfinite(xx)):
         raise FitError(f"'x' must be a finite (N, p) array of covariate values, one row per row of 'y' "
                        f"(got shape {np.shape(x)}).")
-    if slopes not in ("common", "per-cell"):
-        raise FitError(f"'slopes' must be 'common' or 'per-cell' (got {slopes!r}).")
     p = xx.shape[1]
     n, ybar, _ = _cell_stats_from_rows(y, codes, k)
     obs = np.flatnonzero(n > 0)
@@ -313,24 +311,15 @@ def _null_distribution_adjusted(
         sxy[:, j] = np.bincount(codes, weights=d[:, j] * ey, minlength=k)
         for l in range(p):
             sxx[:, j, l] = np.bincount(codes, weights=d[:, j] * d[:, l], minlength=k)
-    b = np.zeros((k, p))
-    try:
-        if slopes == "common":
-            b[obs] = np.linalg.solve(sxx[obs].sum(axis=0), sxy[obs].sum(axis=0))
-        else:
-            for c in obs:
-                b[c] = np.linalg.solve(sxx[c], sxy[c])
-    except np.linalg.LinAlgError:
-        raise FitError("the covariates' cross-product matrix is singular, so the slopes are not estimable") from None
     ref = xx.mean(axis=0) if reference is None else np.asarray(reference, dtype=np.float64).reshape(p)
-    model = describe_covariate_model(n, xbar, sxx, b, slopes, ref)
+    model = describe_covariate_model(n, xbar, sxx, sxy, slopes, ref)
     g, m, big_n = model.g, model.m, y.size
     df2 = big_n - g - m
     if df2 < 1:
         raise FitError(
             f"the F test needs residual degrees of freedom (N - cells - slopes = {df2}); collect more rows."
         )
-    e_full = ey - np.einsum("ij,ij->i", d, b[codes])
+    e_full = ey - np.einsum("ij,ij->i", d, model.slopes[codes])
     sse = float(e_full @ e_full)
     if not sse > 0.0:
         raise FitError("the covariance analysis fits every row exactly (no residual variation), so F is undefined.")
@@ -342,20 +331,24 @@ def _null_distribution_adjusted(
         cm = _contrast_rows(C, n, k)
     gram = model.gram_inverse()
     L = cm @ model.adjusting_matrix()
-    theta = np.concatenate([ybar[obs], b[obs[0]] if slopes == "common" else b[obs].ravel()])
+    scatter = model.scatter()
+    # the slope vector as the fit laid it out (each slope read from its first cell)
+    beta = np.zeros(m)
+    for c in obs:
+        beta[model.index[c]] = model.slopes[c]
+    theta = np.concatenate([ybar[obs], beta])
     try:
         chol = np.linalg.cholesky(L @ gram @ L.T)
     except np.linalg.LinAlgError as exc:
         raise FitError("the rows of 'C' are not estimable from the observed cells; check 'C'.") from exc
     q = cm.shape[0]
-    lt = L @ theta
-    z = np.linalg.solve(chol, lt)
+    z = np.linalg.solve(chol, L @ theta)
     observed = (float(z @ z) / q) / (sse / df2)
     # reduced-model residuals: e_full + X G L' (L G L')^-1 L theta
     v = gram @ L.T @ np.linalg.solve(chol.T, z)
     position = np.full(k, -1)
     position[obs] = np.arange(g)
-    e0 = e_full + v[position[codes]] + np.einsum("ij,ij->i", d, v[g:].reshape(-1, p)[model.slot()[codes]])
+    e0 = e_full + v[position[codes]] + np.einsum("ij,ij->i", d, v[g:][model.index[codes]])
 
     order = np.argsort(codes, kind="stable")
     resid = e0[order]
@@ -363,18 +356,14 @@ def _null_distribution_adjusted(
     starts = np.concatenate(([0], np.cumsum(n[obs])[:-1]))
     kmat = np.linalg.solve(chol, L @ gram)
     inv_n = 1.0 / n[obs].astype(np.float64)
-    inv_sxx = model.inv_sxx[obs]
+    slope_cov = model.slope_cov
     total = float(resid @ resid)
 
     def f_of_rows(rows: np.ndarray) -> np.ndarray:
         sums = np.add.reduceat(rows, starts, axis=1)
         t = np.stack([np.add.reduceat(rows * ds[:, j], starts, axis=1) for j in range(p)], axis=2)
-        if slopes == "common":
-            tb = t.sum(axis=1)
-            quad = np.einsum("sj,jl,sl->s", tb, inv_sxx[0], tb)
-        else:
-            tb = t.reshape(rows.shape[0], g * p)
-            quad = np.einsum("scj,cjl,scl->s", t, inv_sxx, t)
+        tb = t.reshape(rows.shape[0], g * p) @ scatter
+        quad = np.einsum("sj,jl,sl->s", tb, slope_cov, tb)
         u = np.hstack([sums, tb]) @ kmat.T
         ss_h = np.einsum("ij,ij->i", u, u)
         ss_w = total - (sums * sums) @ inv_n - quad
@@ -382,10 +371,9 @@ def _null_distribution_adjusted(
             return (ss_h / q) / (np.maximum(ss_w, 0.0) / df2)
 
     observed_by_sums = float(f_of_rows(resid[None, :])[0])
-    method = ("Freedman-Lane permutation of reduced-model residuals, covariates kept "
-              f"({'common' if slopes == 'common' else 'per-cell'} slopes)")
-    return _permute(resid, f_of_rows, observed, observed_by_sums, q, df2, method, n_permutations, seed, block,
-                    stop_after=stop_after, progress=progress, notify=notify, label=label)
+    return _permute(resid, f_of_rows, observed, observed_by_sums, q, df2,
+                    "Freedman-Lane permutation of reduced-model residuals, covariates kept", n_permutations, seed,
+                    block, stop_after=stop_after, progress=progress, notify=notify, label=label)
 
 
 def _announce(estimate: float, m: int, big_n: int, label: str, progress: bool, notify):
@@ -417,7 +405,7 @@ def permutation_f_test(
     notify=None,
     label: str = "",
     x=None,
-    slopes: str = "common",
+    slopes="common",
     reference=None,
 ) -> PermutationResult:
     """Permutation p value of the F for C mu = 0 (default: all cell means equal).
@@ -442,7 +430,7 @@ def permutation_f_test(
     are described in the module docstring; ``label`` names the test in those messages.
 
     With covariates ``x`` (N, p) the model is the analysis of covariance (``slopes`` "common" or
-    "per-cell") and C is a hypothesis about the adjusted cell means at ``reference`` (p values on
+    "per-cell", or one of them per covariate) and C is a hypothesis about the adjusted cell means at ``reference`` (p values on
     the scale of ``x``; default the covariates' means). The Freedman-Lane reduced model then keeps
     the covariates: its residuals are permuted and F of C recomputed on the full covariance
     model each time (Freedman & Lane 1983, Journal of Business & Economic Statistics 1, 292-298;

@@ -582,6 +582,7 @@ def hc3_adjusted_covariance(model, offset_mean, batches, df_error: int) -> Adjus
     s2 = np.zeros((k, p, p))
     unusable = np.zeros(k, dtype=bool)
     slope_row_alone = False
+    blocks = model.cell_blocks()
     means = np.where(model.observed, np.nan_to_num(np.asarray(offset_mean, dtype=float)), 0.0)
     for cell, y, x in batches:
         cell = np.asarray(cell).astype(np.intp)
@@ -589,7 +590,7 @@ def hc3_adjusted_covariance(model, offset_mean, batches, df_error: int) -> Adjus
             continue
         d = np.asarray(x, dtype=np.float64).reshape(cell.size, p) - model.xbar[cell]
         e = (np.asarray(y, dtype=np.float64) - means[cell]) - np.einsum("ij,ij->i", d, model.slopes[cell])
-        h = model.leverage(cell, d)
+        h = model.leverage(cell, d, blocks)
         one = h >= 1.0 - 1e-10
         if np.any(one):
             unusable[cell[one]] = True
@@ -603,18 +604,17 @@ def hc3_adjusted_covariance(model, offset_mean, batches, df_error: int) -> Adjus
             for l in range(j + 1):
                 s2[:, j, l] += np.bincount(cell, weights=wj * d[:, l], minlength=k)
     s2 = np.tril(s2) + np.transpose(np.tril(s2, -1), (0, 2, 1))
-    if slope_row_alone and model.mode == "common":  # a row alone determines the common slope
+    if slope_row_alone:  # a row alone determines a slope: no HC3 variance for what uses it
         unusable[:] = True
     g, m = model.g, model.m
     obs = np.flatnonzero(model.observed)
-    slot = model.slot()
     middle = np.zeros((g + m, g + m))
     middle[np.arange(g), np.arange(g)] = s0[obs]
     for s, c in enumerate(obs):
-        block = slice(g + slot[c] * p, g + (slot[c] + 1) * p)
-        middle[s, block] = s1[c]
-        middle[block, s] = s1[c]
-        middle[block, block] += s2[c]
+        cols = g + model.index[c]
+        middle[s, cols] += s1[c]
+        middle[cols, s] += s1[c]
+        middle[np.ix_(cols, cols)] += s2[c]
     b = model.adjusting_matrix() @ model.gram_inverse()
     cov = b @ middle @ b.T
     cov = (cov + cov.T) / 2.0

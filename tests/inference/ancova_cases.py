@@ -24,19 +24,25 @@ def simulate(sizes, p=1, seed=2024, hetero=True, effects=None, slopes=None, pivo
     return cell, y, x
 
 
+def _modes(mode, p):
+    return (mode,) * p if isinstance(mode, str) else tuple(mode)
+
+
 def design_matrix(cell, x, k, mode):
-    """Cell indicators and the covariates (one column per covariate, or per cell and covariate)."""
+    """Cell indicators, then per covariate one column (common slope) or one per cell."""
     dummies = np.eye(k)[cell]
-    if mode == "common":
-        return np.hstack([dummies, x])
-    return np.hstack([dummies] + [dummies * x[:, [j]] for j in range(x.shape[1])])
+    cols = [dummies]
+    for j, m in enumerate(_modes(mode, x.shape[1])):
+        cols.append(x[:, [j]] if m == "common" else dummies * x[:, [j]])
+    return np.hstack(cols)
 
 
 def adjusting_rows(k, p, mode, reference):
     """A_raw (k, columns): adjusted cell means = A_raw @ beta of :func:`design_matrix`."""
-    if mode == "common":
-        return np.hstack([np.eye(k), np.tile(reference, (k, 1))])
-    return np.hstack([np.eye(k)] + [np.eye(k) * reference[j] for j in range(p)])
+    cols = [np.eye(k)]
+    for j, m in enumerate(_modes(mode, p)):
+        cols.append(np.full((k, 1), reference[j]) if m == "common" else np.eye(k) * reference[j])
+    return np.hstack(cols)
 
 
 def statsmodels_fit(cell, y, x, k, mode, cov_type="nonrobust"):
@@ -46,9 +52,13 @@ def statsmodels_fit(cell, y, x, k, mode, cov_type="nonrobust"):
 def slopes_from(fit, k, p, mode):
     """(k, p) slopes from the statsmodels parameters."""
     beta = np.asarray(fit.params)
-    if mode == "common":
-        return np.tile(beta[k:], (k, 1))
-    return np.column_stack([beta[k + j * k: k + (j + 1) * k] for j in range(p)])
+    out = np.zeros((k, p))
+    at = k
+    for j, m in enumerate(_modes(mode, p)):
+        width = 1 if m == "common" else k
+        out[:, j] = beta[at:at + width]
+        at += width
+    return out
 
 
 def model_for(cell, y, x, k, mode, reference=None):
@@ -57,7 +67,8 @@ def model_for(cell, y, x, k, mode, reference=None):
     cov = describe_covariates(y, x, cell, k)
     ref = x.mean(axis=0) if reference is None else np.asarray(reference, float)
     fit = statsmodels_fit(cell, y, x, k, mode)
-    model = describe_covariate_model(cells.n, cov.offset_mean, cov.sxx, slopes_from(fit, k, x.shape[1], mode), mode, ref)
+    model = describe_covariate_model(cells.n, cov.offset_mean, cov.sxx, cov.sxy, mode, ref)
+    np.testing.assert_allclose(model.slopes, slopes_from(fit, k, x.shape[1], mode), rtol=1e-9)
     return cells, model, fit, ref
 
 

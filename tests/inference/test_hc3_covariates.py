@@ -15,6 +15,7 @@ CASES = {
     "2x3, 2 covariates, common": ([6, 11, 8, 14, 9, 10], 2, "common"),
     "one-way, 1 covariate, per-cell": ([9, 12, 10], 1, "per-cell"),
     "2x2, 2 covariates, per-cell": ([9, 12, 10, 14], 2, "per-cell"),
+    "2x2, 2 covariates, mixed": ([9, 12, 10, 14], 2, ("per-cell", "common")),
 }
 
 

@@ -54,6 +54,7 @@ CASES = {
     "one-way, 1 covariate, common": ([8, 11, 7, 10], 1, "common", None),
     "2x2 interaction, 2 covariates, common": ([7, 9, 8, 10], 2, "common", [[1.0, -1.0, -1.0, 1.0]]),
     "one-way, 1 covariate, per-cell, at 55": ([9, 10, 12], 1, "per-cell", None),
+    "2x2 main effect, 2 covariates, mixed": ([9, 10, 12, 11], 2, ("common", "per-cell"), [[1.0, 1.0, -1.0, -1.0]]),
 }
 
 
