@@ -35,6 +35,7 @@ __all__ = [
     "OutlierScan",
     "QQData",
     "StudentizedResiduals",
+    "adjusted_cells",
     "brown_forsythe",
     "cells_without",
     "find_outliers",
@@ -285,11 +286,35 @@ def _external(r, df_e: int):
         return r * np.sqrt((df_e - 1.0) / np.maximum(df_e - r * r, 0.0))
 
 
-def _internal_scale(cells: CellStats, mse: float) -> np.ndarray:
-    """sqrt(MSE (1 - 1/n_c)) per cell; NaN for cells of fewer than 2 rows."""
+def _internal_scale(cells: CellStats, mse: float, leverage: np.ndarray | None = None) -> np.ndarray:
+    """sqrt(MSE (1 - h_c)) per cell with h_c = 1/n_c (or the given per-cell leverage); NaN for
+    cells of fewer than 2 rows or with h_c >= 1."""
     n = cells.n.astype(np.float64)
     with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(cells.n > 1, np.sqrt(mse * (1.0 - 1.0 / np.maximum(n, 1.0))), np.nan)
+        if leverage is None:
+            return np.where(cells.n > 1, np.sqrt(mse * (1.0 - 1.0 / np.maximum(n, 1.0))), np.nan)
+        h = np.asarray(leverage, dtype=np.float64)
+        return np.where((cells.n > 1) & (h < 1.0 - 1e-12), np.sqrt(mse * np.maximum(1.0 - h, 0.0)), np.nan)
+
+
+def adjusted_cells(cells: CellStats, slopes: np.ndarray) -> CellStats:
+    """The cell table of z = y - sum_j b[c, j] x_j (offsets), whose within-cell deviations are
+    the residuals of the covariance analysis with slopes ``slopes`` (k, p): the cell means
+    ybar_c - b_c'xbar_c and the within-cell SS S_yy - 2 b_c'S_xy + b_c'S_xx b_c (the residual SS
+    of cell c; Searle 1987, section 9.2). Row-level checks run on this table and on
+    ``rows.adjusted(slopes)`` unchanged."""
+    cov = cells.covariates
+    b = np.asarray(slopes, dtype=np.float64)
+    o = cells.observed
+    mean = np.full(cells.k, np.nan)
+    ss = np.full(cells.k, np.nan)
+    for c in np.flatnonzero(o):
+        mean[c] = math.fsum([float(cells.offset_mean[c]), *(-(b[c] * cov.offset_mean[c])).tolist()])
+        quad = float(b[c] @ cov.sxx[c] @ b[c])
+        ss[c] = max(math.fsum([float(cells.ss[c]), -2.0 * float(b[c] @ cov.sxy[c]), quad]), 0.0)
+    for arr in (mean, ss):
+        arr.setflags(write=False)
+    return CellStats(n=cells.n, offset_mean=mean, ss=ss, pivot=cells.pivot, pivot_exact=cells.pivot_exact)
 
 
 def normality(rows: RowAccess, cells: CellStats, *, seed: int = 0, max_n: int = SHAPIRO_MAX_N) -> NormalityResult:
@@ -419,7 +444,8 @@ def _royston_shapiro_wilk(x: np.ndarray) -> tuple[float, float]:
     return w, float(norm_cdf(-(y - mean) / sd))
 
 
-def qq_quantiles(rows: RowAccess, cells: CellStats, mse: float, *, max_points: int = QQ_MAX_POINTS) -> QQData:
+def qq_quantiles(rows: RowAccess, cells: CellStats, mse: float, *, max_points: int = QQ_MAX_POINTS,
+                 leverage: np.ndarray | None = None) -> QQData:
     """Normal Q-Q points: Blom positions against order statistics of the internally studentized
     residuals r_i = e_i / sqrt(MSE (1 - 1/n_c)) (rows of one-row cells left out).
 
@@ -428,7 +454,8 @@ def qq_quantiles(rows: RowAccess, cells: CellStats, mse: float, *, max_points: i
     ``max_points`` only the order statistics at ``max_points`` evenly spaced ranks i (the first
     and the last included) are drawn; the i-th order statistic is the type 7 sample quantile at
     (i - 1)/(m - 1) (Hyndman & Fan 1996, The American Statistician 50, 361-365), which the row
-    access returns.
+    access returns. ``leverage`` replaces 1/n_c by a per-cell leverage (with covariates: the
+    cell's average leverage, see :func:`reporter.inference.covariate_model.CovariateModel`).
     """
     m = int(cells.n[cells.n > 1].sum())
     if m == 0:
@@ -438,7 +465,8 @@ def qq_quantiles(rows: RowAccess, cells: CellStats, mse: float, *, max_points: i
     else:
         ranks = np.unique(np.round(np.linspace(1.0, float(m), max_points)))
     probs = (ranks - 1.0) / (m - 1.0) if m > 1 else np.array([0.5])
-    sample = np.asarray(rows.residual_quantiles(cells.offset_mean, _internal_scale(cells, mse), probs.tolist()))
+    sample = np.asarray(rows.residual_quantiles(cells.offset_mean, _internal_scale(cells, mse, leverage),
+                                                probs.tolist()))
     theoretical = norm_ppf((ranks - 0.375) / (m + 0.25))
     return QQData(tuple(float(v) for v in theoretical), tuple(float(v) for v in sample), m, m > max_points)
 
@@ -450,7 +478,8 @@ def qq_points(y, codes, k: int | None = None) -> QQData:
     return qq_quantiles(rows, cells, mse)
 
 
-def outlier_bound(cells: CellStats, mse: float, df_e: int, threshold: float) -> np.ndarray:
+def outlier_bound(cells: CellStats, mse: float, df_e: int, threshold: float,
+                  leverage: np.ndarray | None = None) -> np.ndarray:
     """Per cell, the bound on |e_i| equivalent to |t_i| > ``threshold``.
 
     With r_i = e_i / sqrt(MSE (1 - 1/n_c)) and t_i^2 = r_i^2 (df_e - 1) / (df_e - r_i^2)
@@ -460,11 +489,12 @@ def outlier_bound(cells: CellStats, mse: float, df_e: int, threshold: float) -> 
     Cells of one row get NaN (leverage 1: not checked).
     """
     c = float(threshold)
-    return c * _internal_scale(cells, mse) * math.sqrt(df_e / (df_e - 1.0 + c * c))
+    return c * _internal_scale(cells, mse, leverage) * math.sqrt(df_e / (df_e - 1.0 + c * c))
 
 
-def screen_outliers(rows: RowAccess, cells: CellStats, *, threshold: float = 3.0,
-                    limit: int = 100) -> tuple[OutlierScan, FlaggedRows]:
+def screen_outliers(rows: RowAccess, cells: CellStats, *, threshold: float = 3.0, limit: int = 100,
+                    mse: float | None = None, df_e: int | None = None,
+                    leverage: np.ndarray | None = None) -> tuple[OutlierScan, FlaggedRows]:
     """Rows whose externally studentized residual exceeds ``threshold`` in absolute value, found
     in one pass through the per-cell bound of :func:`outlier_bound`.
 
@@ -472,30 +502,43 @@ def screen_outliers(rows: RowAccess, cells: CellStats, *, threshold: float = 3.0
     (Cook & Weisberg 1982); the cut-off |t_i| > 3 is common practice, no source. At most
     ``limit`` rows are listed (largest |t_i| first), ``total`` counts them all; the returned
     :class:`FlaggedRows` carries the per-cell sums that :func:`cells_without` needs.
+
+    With covariates the caller passes the adjusted model's ``mse`` and ``df_e`` (which count the
+    slopes), rows and cells of z = y - b'x (:func:`adjusted_cells`) and a per-cell ``leverage``:
+    the cell's average leverage (1 + tr(Q_c S_xx,c))/n_c stands for each row's
+    1/n_c + d_i'Q_c d_i, a documented choice (the row access screens by a bound per cell). A row
+    far from its cell's covariate mean has a larger leverage than the average, so its |t_i| is
+    understated by the factor sqrt((1 - h_i)/(1 - h_c)) at most.
     """
     threshold = float(threshold)
     if not (np.isfinite(threshold) and threshold > 0.0):
         raise FitError(f"'threshold' must be a positive number (got {threshold!r}).")
     g = int(np.count_nonzero(cells.n))
-    mse, df_e = _mse(cells.ss_within, cells.n_total - g)
-    flagged = rows.flagged(cells.offset_mean, outlier_bound(cells, mse, df_e, threshold), limit)
-    scale = _internal_scale(cells, mse)
+    if mse is None:
+        mse, df_e = _mse(cells.ss_within, cells.n_total - g)
+    else:
+        _mse(mse * df_e, df_e)  # the same checks of the df and the spread
+    flagged = rows.flagged(cells.offset_mean, outlier_bound(cells, mse, df_e, threshold, leverage), limit)
+    scale = _internal_scale(cells, mse, leverage)
     outliers = []
     for row, c, value in flagged.rows:
         e = float(value - cells.offset_mean[c])
         r = e / float(scale[c])
         outliers.append(Outlier(row=int(row), cell=int(c), residual=e, internal=r, external=float(_external(r, df_e))))
-    single = cells.n == 1
+    single = cells.n == 1 if leverage is None else (cells.n > 0) & ~np.isfinite(scale)
     skipped: tuple[int, ...] = ()
-    n_skipped = int(np.count_nonzero(single))
+    n_skipped = int(cells.n[single].sum())
     note = None
     if n_skipped:
-        # every row of a one-row cell: |x - mean| = 0 > -1
+        # every row of such a cell: |x - mean| >= 0 > -1
         lone = rows.flagged(cells.offset_mean, np.where(single, -1.0, np.nan), limit)
         skipped = tuple(sorted(r for r, _, _ in lone.rows))
         note = (
             f"{n_skipped} row(s) are alone in their cell; such a row has leverage 1 and a "
             "residual of zero by construction, so it cannot be checked."
+        ) if leverage is None else (
+            f"{n_skipped} row(s) are in cells with too few rows for their own slopes; their residuals are zero "
+            "or nearly so by construction, so they cannot be checked."
         )
     scan = OutlierScan(threshold=threshold, outliers=tuple(outliers), n_checked=cells.n_total - n_skipped,
                        skipped_rows=skipped, note=note, total=flagged.total, n_skipped=n_skipped)

@@ -106,6 +106,15 @@ class CovariateModel:
             out[s * p + np.arange(p), self.index[c]] = 1.0
         return out
 
+    def mean_leverage(self, sxx) -> np.ndarray:
+        """(k,) each cell's average leverage (1 + tr(Q_c S_xx,c)) / n_c, since the d_i of cell c
+        sum their outer products to S_xx,c (the within-cell cross-products); NaN for empty cells."""
+        q = self.cell_blocks()
+        out = np.full(self.n.size, np.nan)
+        for c in np.flatnonzero(self.observed):
+            out[c] = (1.0 + float(np.trace(q[c] @ np.asarray(sxx[c], dtype=float)))) / self.n[c]
+        return out
+
     def leverage(self, cell: np.ndarray, d: np.ndarray, blocks: np.ndarray | None = None) -> np.ndarray:
         """h_i = 1/n_c + d_i' Q_c d_i for rows in ``cell`` with centred covariates ``d``."""
         q = self.cell_blocks() if blocks is None else blocks

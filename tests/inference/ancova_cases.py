@@ -3,6 +3,8 @@ of the inference layer with covariates. The data are invented; statsmodels OLS i
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import statsmodels.api as sm
 
@@ -63,8 +65,8 @@ def slopes_from(fit, k, p, mode):
 
 def model_for(cell, y, x, k, mode, reference=None):
     """(CellStats, CovariateModel, statsmodels fit, raw reference) for the rows."""
-    cells = describe_cells(y, cell, k)
     cov = describe_covariates(y, x, cell, k)
+    cells = replace(describe_cells(y, cell, k), covariates=cov)
     ref = x.mean(axis=0) if reference is None else np.asarray(reference, float)
     fit = statsmodels_fit(cell, y, x, k, mode)
     model = describe_covariate_model(cells.n, cov.offset_mean, cov.sxx, cov.sxy, mode, ref)
