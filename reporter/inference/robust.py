@@ -29,7 +29,7 @@ from reporter.inference.posthoc import (
 __all__ = [
     "AdjustedCovariance",
     "KruskalWallisResult",
-    "RobustContrastResult",
+    "ContrastTResult",
     "RobustWaldResult",
     "WelchAnovaResult",
     "WelchContrastResult",
@@ -55,8 +55,9 @@ class WelchAnovaResult:
 
 
 @dataclass(frozen=True)
-class WelchContrastResult:
-    """A t test of one contrast over cells with separate cell variances (Welch-Satterthwaite).
+class ContrastTResult:
+    """A t test of one contrast with a standard error that does not pool the cell variances
+    (Welch-Satterthwaite, or HC3 with covariates).
 
     ``estimate`` is c'ybar, ``null_value`` the hypothesised h; ``statistic`` is
     (estimate - null_value) / se; the interval is for c'mu at ``confidence_level``, one-sided
@@ -73,6 +74,9 @@ class WelchContrastResult:
     confidence_level: float
     ci_low: float
     ci_high: float
+
+
+WelchContrastResult = ContrastTResult
 
 
 @dataclass(frozen=True)
@@ -336,7 +340,14 @@ def welch_contrast(
     se = float(np.sqrt(se2))
     estimate = math.fsum((cv[cells] * mean[cells]).tolist())
     h = float(h)
-    t = (estimate - h) / se
+    return _t_result(estimate, h, estimate - h, se, df, alternative, alpha)
+
+
+def _t_result(estimate: float, h: float, d: float, se: float, df: float, alternative: str,
+              alpha: float) -> ContrastTResult:
+    """t = d / se (d = estimate − h as computed by the caller), its p under ``alternative`` and
+    the 1 − alpha interval for the estimate (one-sided when the test is)."""
+    t = d / se
     if alternative == "two-sided":
         p = float(2.0 * t_sf(abs(t), df))
         q = float(t_isf(alpha / 2.0, df))
@@ -349,7 +360,7 @@ def welch_contrast(
         p = float(t_cdf(t, df))
         q = float(t_isf(alpha, df))
         low, high = -np.inf, estimate + q * se
-    return WelchContrastResult(
+    return ContrastTResult(
         estimate=estimate,
         null_value=h,
         se=se,
@@ -542,24 +553,6 @@ class AdjustedCovariance:
     unusable: np.ndarray
 
 
-@dataclass(frozen=True)
-class RobustContrastResult:
-    """A t test of one contrast with a heteroscedasticity-consistent standard error: estimate
-    c'mu (offsets as given), its null value h, SE, df, t, p and the 1 - alpha interval (one-sided
-    when the test is)."""
-
-    estimate: float
-    null_value: float
-    se: float
-    df: float
-    statistic: float
-    p: float
-    alternative: str
-    confidence_level: float
-    ci_low: float
-    ci_high: float
-
-
 def hc3_adjusted_covariance(model, offset_mean, batches, df_error: int) -> AdjustedCovariance:
     """HC3 covariance of the adjusted cell means of an analysis of covariance, from row batches.
 
@@ -657,7 +650,7 @@ def hc3_wald_adjusted(C, d, hc: AdjustedCovariance, *, labels=None) -> RobustWal
 
 
 def hc3_contrast_adjusted(c, d: float, h: float, hc: AdjustedCovariance, *, alternative: Alternative = "two-sided",
-                          alpha: float = 0.05, labels=None) -> RobustContrastResult:
+                          alpha: float = 0.05, labels=None) -> ContrastTResult:
     """t test of c'mu_adj = h with the HC3 standard error sqrt(c' V c) on the error df of the
     adjusted model (MacKinnon & White 1985; Long & Ervin 2000); ``d`` = c'mu_adj − h as fitted.
     The estimate and interval are c'mu_adj = d + h."""
@@ -669,20 +662,4 @@ def hc3_contrast_adjusted(c, d: float, h: float, hc: AdjustedCovariance, *, alte
     if not var > 0.0:
         raise FitError("the HC3 t is undefined: the contrast has no HC3 variance (the cells it uses "
                        "have too little spread)")
-    se = math.sqrt(var)
-    df = float(hc.df)
-    t = float(d) / se
-    est = float(d) + float(h)
-    if alternative == "two-sided":
-        p = float(2.0 * t_sf(abs(t), df))
-        q = float(t_isf(alpha / 2.0, df))
-        low, high = est - q * se, est + q * se
-    elif alternative == "greater":
-        p = float(t_sf(t, df))
-        low, high = est - float(t_isf(alpha, df)) * se, np.inf
-    else:
-        p = float(t_cdf(t, df))
-        low, high = -np.inf, est + float(t_isf(alpha, df)) * se
-    return RobustContrastResult(estimate=est, null_value=float(h), se=se, df=df, statistic=t, p=min(p, 1.0),
-                                alternative=alternative, confidence_level=1.0 - alpha, ci_low=float(low),
-                                ci_high=float(high))
+    return _t_result(float(d) + float(h), float(h), float(d), math.sqrt(var), float(hc.df), alternative, alpha)
