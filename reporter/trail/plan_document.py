@@ -3,7 +3,7 @@
 The same document model, templates and stylesheet as the report (:mod:`reporter.narrative.document`,
 ``templates/plan.html.j2`` extending ``report.html.j2``); the methods are written in the future
 tense, and there is no results section: no data have been read. The contrast tables are the
-report's own (:func:`reporter.narrative.build.contrast_tables`).
+report's own (:func:`reporter.narrative.matrices.contrast_tables`).
 
 Reporting guidance followed: the preregistration items of the APA Journal Article Reporting
 Standards (Appelbaum et al. (2018), American Psychologist 73(1), 3-25, table 1: hypotheses,
@@ -16,10 +16,11 @@ from fractions import Fraction
 
 from reporter.intake.defaults import FOLLOW_UPS, plan_value
 from reporter.narrative import numbers as N
-from reporter.narrative.build import CODING_NAMES, CORRECTION_NAMES, PARAM_WORDS, _literal, contrast_tables
 from reporter.narrative.document import (
     Column, DefinitionList, Document, Note, Paragraph, Section, Table, runs_of,
 )
+from reporter.narrative.matrices import contrast_tables
+from reporter.narrative.phrases import CODING_NAMES, CORRECTION_NAMES, PARAM_WORDS, _literal
 
 SS_WORDS = {
     "III": "Type III sums of squares (unweighted means): each effect will be a hypothesis about the "
