@@ -15,8 +15,8 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from reporter.errors import DataError, HypothesisError, PlanError, RenderError, ReporterError
-from reporter.intake.cells import CellStats, describe_cells
-from reporter.intake.data import Dataset, data_from_frame, load_data
+from reporter.intake.cells import CellStats, describe_cells, describe_covariates
+from reporter.intake.data import Dataset, check_covariates, data_from_frame, load_data
 from reporter.intake.memory_rows import MemoryRows
 from reporter.intake.plan import Plan, load_plan
 from reporter.intake.summary import read_summary, summary_from_frame
@@ -77,7 +77,15 @@ def prepare(plan: Plan | str | os.PathLike[str], data: Any = None, *, require_es
         cell.setflags(write=False)
         pivot_exact = Fraction(dataset.pivot_text) if dataset.exact_decimal else Fraction(dataset.pivot)
         cells = describe_cells(dataset.y, cell, design.k, dataset.pivot, pivot_exact)
-        rows = MemoryRows(dataset.y, cell, design.k, dataset.rows)
+        cov = dataset.covariates
+        x = None
+        if cov is not None:
+            x = cov.x
+            stats = describe_covariates(dataset.y, x, cell, design.k, np.array(cov.pivot), cov.pivot_exact, cov.names)
+            cells = replace(cells, covariates=stats)
+        rows = MemoryRows(dataset.y, cell, design.k, dataset.rows, x=x)
+    if cells.covariates is not None:
+        check_covariates(plan, cells.covariates, cells.n, [c.label for c in design.cells], dataset.source)
     counts = tuple(int(c) for c in cells.n)
     contrasts = compile_hypotheses(plan, design, counts if require_estimable else None)
     from reporter.trail.deviations import apply_lock

@@ -27,7 +27,8 @@ import difflib
 import hashlib
 import io
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
+from fractions import Fraction
 from pathlib import Path
 from typing import Any, Sequence
 
@@ -92,6 +93,8 @@ class Dataset:
     summary: Any = None
     # Which reader read the rows: "in-memory" or "out-of-core" (DuckDB, see reporter.intake.duck).
     reader: str = "in-memory"
+    # The plan's covariates, read like the outcome (None when the plan has none).
+    covariates: "CovariateColumns | None" = None
 
     @property
     def n(self) -> int:
@@ -101,6 +104,30 @@ class Dataset:
     def outcome_values(self) -> np.ndarray:
         """The outcome on its original scale (float64)."""
         return self.y + self.pivot
+
+
+@dataclass(frozen=True)
+class CovariateColumns:
+    """The covariates of the analysed rows, each read like the outcome.
+
+    ``x`` (N, p) holds each covariate minus its ``pivot`` (float64), row for row with
+    :attr:`Dataset.y`; ``pivot_text`` is each pivot as the file wrote it and ``exact`` says
+    whether the offsets were taken in exact decimal arithmetic (text input). The out-of-core
+    reader, which keeps no rows in memory, gives an empty ``x`` (0, p).
+    """
+
+    names: tuple[str, ...]
+    x: np.ndarray
+    pivot: tuple[float, ...]
+    pivot_text: tuple[str, ...]
+    exact: bool
+
+    @property
+    def pivot_exact(self) -> tuple[Fraction, ...]:
+        """Each pivot as an exact fraction (the decimal written, on text intake)."""
+        if self.exact:
+            return tuple(Fraction(t) for t in self.pivot_text)
+        return tuple(Fraction(float(v)) for v in self.pivot)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -257,12 +284,19 @@ def check_widths(source: str, header, rows, lines) -> None:
             )
 
 
+def _role(plan: Plan, name: str) -> str:
+    """What the plan reads from a data column: "outcome", "factor" or "covariate"."""
+    if name == plan.data.outcome:
+        return "outcome"
+    return "covariate" if name in {c.name for c in plan.covariates} else "factor"
+
+
 def _needed_columns(plan: Plan, columns: Sequence[str], source: str) -> list[str]:
-    needed = [plan.data.outcome] + [f.data_column for f in plan.factors]
+    needed = [plan.data.outcome] + [f.data_column for f in plan.factors] + [c.name for c in plan.covariates]
     for name in needed:
         where = [i for i, c in enumerate(columns, start=1) if c == name]
         if len(where) > 1:
-            role = "outcome" if name == plan.data.outcome else "factor"
+            role = _role(plan, name)
             shown = ", ".join(str(i) for i in where)
             raise DataError(
                 f"{source}: the header names the column '{name}' (the {role} named in the plan) "
@@ -270,7 +304,7 @@ def _needed_columns(plan: Plan, columns: Sequence[str], source: str) -> list[str
                 "the duplicate."
             )
         if name not in columns:
-            role = "outcome" if name == plan.data.outcome else "factor"
+            role = _role(plan, name)
             hint = difflib.get_close_matches(name, list(columns), n=1, cutoff=0.6)
             fix = f" Did you mean '{hint[0]}'?" if hint else ""
             shown = ", ".join(f"'{c}'" if len(c) <= 40 else f"'{c[:24]}…'" for c in columns[:20])
@@ -321,6 +355,9 @@ def _build_columns(plan: Plan, source, sha, fmt, cols, n, *, row_numbers) -> Dat
         reasons.append((f"non-numeric outcome '{plan.data.outcome}'", bad_y, shown))
     dropped_outcome = missing_y | bad_y
     keep &= ~dropped_outcome
+    covariates = None
+    if plan.covariates:
+        covariates, keep = _read_covariates(plan, cols, keep, reasons, source, line_of)
 
     exclusions = tuple(
         Exclusion(
@@ -339,6 +376,10 @@ def _build_columns(plan: Plan, source, sha, fmt, cols, n, *, row_numbers) -> Dat
     levels_kept = np.ascontiguousarray(level_idx[keep])
     for arr in (y_kept, levels_kept, rows, dropped_levels):
         arr.setflags(write=False)
+    if covariates is not None:
+        x_kept = np.ascontiguousarray(covariates.x[keep])
+        x_kept.setflags(write=False)
+        covariates = replace(covariates, x=x_kept)
     return Dataset(
         source=source,
         sha256=sha,
@@ -354,7 +395,85 @@ def _build_columns(plan: Plan, source, sha, fmt, cols, n, *, row_numbers) -> Dat
         n_read=n,
         exclusions=exclusions,
         dropped_outcome_levels=dropped_levels,
+        covariates=covariates,
     )
+
+
+def _read_covariates(plan: Plan, cols, keep: np.ndarray, reasons: list, source: str, line_of):
+    """Each covariate read by the outcome's rules (exact decimals from text, float64 as it is),
+    in plan order. In the rows still analysed, a missing value leaves the row out under its own
+    reason and a value that is not a number is refused; a covariate with no value at all in
+    those rows is refused. Returns the columns (offsets for every row) and the rows kept."""
+    keep = keep.copy()
+    candidates = keep.copy()  # the rows analysed before any covariate is read
+    xs, pivots, texts, exact_all = [], [], [], True
+    for cov in plan.covariates:
+        label = (f"the covariate '{cov.name}'", "the covariate")
+        raw = cols[cov.name]
+        x, status, pivot, pivot_text, exact = _read_outcome(raw, plan, candidates, source, line_of, label=label)
+        bad = (status == 2) & candidates
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            raise DataError(
+                f"{source}, {line_of(i)}: the covariate '{cov.name}' (column '{cov.name}') is "
+                f"{_shown(str(raw[i]).strip())}, which is not a number. A covariate needs a plain decimal number in "
+                "every analysed row: correct the value, or write a missing-value text ([data] missing) to leave "
+                "the row out."
+            )
+        missing = (status == 1) & keep
+        if not ((status == 0) & candidates).any() and candidates.any():
+            raise DataError(
+                f"{source}: the covariate '{cov.name}' (column '{cov.name}') has no value in any of the "
+                f"{int(candidates.sum())} rows otherwise analysed (every one is missing). Check [[covariates]] name "
+                "in the plan, or fill in the column."
+            )
+        if missing.any():
+            reasons.append((f"missing covariate '{cov.name}'", missing, ""))
+            keep &= ~missing
+        xs.append(x)
+        pivots.append(float(pivot))
+        texts.append(pivot_text)
+        exact_all = exact_all and exact
+    x = np.column_stack(xs) if xs else np.empty((keep.shape[0], 0))
+    columns = CovariateColumns(names=tuple(c.name for c in plan.covariates), x=x, pivot=tuple(pivots),
+                               pivot_text=tuple(texts), exact=exact_all)
+    return columns, keep
+
+
+def check_covariates(plan: Plan, stats, n: np.ndarray, cell_labels: Sequence[str], source: str) -> None:
+    """Refuse covariates whose slopes cannot be estimated from the analysed rows, before the fit:
+    a covariate that does not vary within any cell (a constant one among them), with
+    ``slopes = "per-cell"`` one that does not vary within some observed cell, and covariates
+    that are linear combinations of one another within cells (the correlation matrix of the
+    pooled within-cell cross-products has an eigenvalue under 1e-10: common practice, no source).
+    ``stats`` is the :class:`~reporter.intake.cells.CovariateStats` of the analysed rows."""
+    observed = np.asarray(n) > 0
+    pooled = stats.pooled_sxx(observed)
+    for j, cov in enumerate(plan.covariates):
+        where = f"{source}: the covariate '{cov.name}' ({cov.key_path} in the plan)"
+        if not pooled[j, j] > 0:
+            lo, hi = np.nanmin(stats.mean[observed, j]), np.nanmax(stats.mean[observed, j])
+            shown = (f"has the same value, {float(lo)!r}, in every analysed row" if lo == hi else
+                     "does not vary within any cell (each cell's rows share one value)")
+            raise DataError(f"{where} {shown}, so its slope cannot be estimated: a covariate must vary within "
+                            "cells. Remove the [[covariates]] table, or name a covariate that varies.")
+        if cov.slopes == "per-cell":
+            flat = np.flatnonzero(observed & ~(stats.sxx[:, j, j] > 0))
+            if flat.size:
+                listed = ", ".join(str(cell_labels[c]) for c in flat[:5]) + (" …" if flat.size > 5 else "")
+                raise DataError(f"{where} does not vary within {flat.size} {'cell' if flat.size == 1 else 'cells'} "
+                                f"({listed}), so a separate slope cannot be estimated there. Use slopes = \"common\", "
+                                "or leave those cells out.")
+    if len(plan.covariates) > 1:
+        d = np.sqrt(np.diag(pooled))
+        corr = pooled / np.outer(d, d)
+        values, vectors = np.linalg.eigh(corr)
+        if values[0] < 1e-10:
+            involved = np.flatnonzero(np.abs(vectors[:, 0]) > 1e-6)
+            names = " and ".join(f"'{plan.covariates[j].name}'" for j in involved)
+            raise DataError(f"{source}: the covariates {names} are linear combinations of one another within cells "
+                            "(their pooled within-cell correlations are singular), so their slopes cannot be told "
+                            "apart. Keep one of them.")
 
 
 def _as_texts(values) -> tuple[np.ndarray, np.ndarray]:
@@ -435,13 +554,16 @@ def _match_levels(plan, factor, values, source, line_of, counts=None):
     return code_of_uniq[inv], missing_u[inv], excluded_u[inv]
 
 
-def _read_outcome(values, plan, keep, source: str = "data", line_of=None):
+def _read_outcome(values, plan, keep, source: str = "data", line_of=None, label: tuple[str, str] | None = None):
     """Return (y - pivot, status, pivot, pivot_text, exact) with status 0 ok, 1 missing, 2 non-numeric.
 
     A value that float64 cannot hold, an infinite value, or a number written in a form other than
     plain decimal notation is an error naming its line (see :mod:`reporter.intake.numtext`); so
-    is an outcome whose spread would overflow the sums of squares.
+    is an outcome whose spread would overflow the sums of squares. ``label`` names the column in
+    messages, as (its name with the column, its kind): by default the outcome; a covariate is
+    read by the same rules.
     """
+    label = label or (f"the outcome '{plan.data.outcome}'", "the outcome")
     if line_of is None:
         def line_of(i: int) -> str:
             return f"row {i + 1}"
@@ -455,7 +577,7 @@ def _read_outcome(values, plan, keep, source: str = "data", line_of=None):
         if inf.any():
             i = int(np.flatnonzero(inf)[0])
             raise DataError(
-                f"{source}, {line_of(i)}: the outcome '{plan.data.outcome}' is {float(y[i])!r}; only "
+                f"{source}, {line_of(i)}: {label[0]} is {float(y[i])!r}; only "
                 "finite values can be analysed. Remove the row or make the value missing."
             )
         ok = (status == 0) & keep
@@ -463,26 +585,26 @@ def _read_outcome(values, plan, keep, source: str = "data", line_of=None):
         pivot = float(y[first]) if first >= 0 else 0.0
         with np.errstate(over="ignore", invalid="ignore"):
             y = np.where(status == 0, y - pivot, np.nan)
-        _check_spread(y, ok, first, pivot, plan, source, line_of)
+        _check_spread(y, ok, first, pivot, plan, source, line_of, label=label)
         return y, status, pivot, repr(pivot), False
-    return _exact_from_text(arr, plan, keep, status, source, line_of)
+    return _exact_from_text(arr, plan, keep, status, source, line_of, label=label)
 
 
 def _shown(text: str) -> str:
     return f'"{text}"' if len(text) <= 40 else f'"{text[:24]}…" ({len(text)} characters)'
 
 
-def _exact_from_text(arr, plan, keep, status, source: str = "data", line_of=None):
+def _exact_from_text(arr, plan, keep, status, source: str = "data", line_of=None, label: tuple[str, str] | None = None):
     """Subtract a decimal pivot exactly before conversion to float64."""
     comma = plan.data.decimal == ","
     missing = set(plan.data.missing)
-    outcome = plan.data.outcome
+    label = label or (f"the outcome '{plan.data.outcome}'", "the outcome")
     n = arr.shape[0]
     decs: list[decimal.Decimal | None] = [None] * n
     keep_list = keep.tolist()
 
     def fail(i: int, raw: str, why: str) -> DataError:
-        return DataError(f"{source}, {line_of(i)}: the outcome '{outcome}' is {_shown(raw)}, which {why}.")
+        return DataError(f"{source}, {line_of(i)}: {label[0]} is {_shown(raw)}, which {why}.")
 
     for i, v in enumerate(arr.tolist()):
         raw = "" if v is None else str(v).strip()
@@ -509,7 +631,7 @@ def _exact_from_text(arr, plan, keep, status, source: str = "data", line_of=None
         problem = numtext.range_problem(d)
         if problem is not None:
             if keep_list[i]:
-                raise fail(i, raw, problem + ". Rescale the outcome (for example use larger or smaller units)")
+                raise fail(i, raw, problem + f". Rescale {label[1]} (for example use larger or smaller units)")
             status[i] = 2
             continue
         decs[i] = d
@@ -524,11 +646,12 @@ def _exact_from_text(arr, plan, keep, status, source: str = "data", line_of=None
         dtype=np.float64,
         count=n,
     )
-    _check_spread(y, ok_mask, first, float(pivot), plan, source, line_of)
+    _check_spread(y, ok_mask, first, float(pivot), plan, source, line_of, label=label)
     return y, status, float(pivot), str(pivot), True
 
 
-def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of, n_values: int | None = None) -> None:
+def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of, n_values: int | None = None,
+                  label: tuple[str, str] | None = None) -> None:
     """Refuse offsets from the pivot that float64 cannot hold, and a spread of the outcome so wide
     or so narrow that the fit's sums would overflow or underflow float64.
 
@@ -539,29 +662,29 @@ def _check_spread(y, ok, first: int, pivot: float, plan, source: str, line_of, n
     idx = np.flatnonzero(ok)
     vals = y[idx]
     bad = ~np.isfinite(vals)
-    outcome = plan.data.outcome
+    what, noun = label or (f"the outcome '{plan.data.outcome}'", "the outcome")
     if bad.any():
         i = int(idx[np.flatnonzero(bad)[0]])
         raise DataError(
-            f"{source}, {line_of(i)}: the outcome '{outcome}' differs from the first value "
-            f"({pivot!r}, {line_of(first)}) by more than float64 can hold (about 1.8e308). Rescale the "
-            "outcome (for example use larger units)."
+            f"{source}, {line_of(i)}: {what} differs from the first value "
+            f"({pivot!r}, {line_of(first)}) by more than float64 can hold (about 1.8e308). Rescale "
+            f"{noun} (for example use larger units)."
         )
     lo, hi = int(idx[int(np.argmin(vals))]), int(idx[int(np.argmax(vals))])
     spread = float(y[hi]) - float(y[lo])
     count = idx.size if n_values is None else n_values  # the out-of-core reader passes min and max only
     lower, upper = numtext.spread_limits(count)
-    shown = (f"the outcome '{outcome}' ranges from {float(y[lo]) + pivot!r} ({line_of(lo)}) to "
+    shown = (f"{what} ranges from {float(y[lo]) + pivot!r} ({line_of(lo)}) to "
              f"{float(y[hi]) + pivot!r} ({line_of(hi)})")
     if not (spread <= upper):
         raise DataError(
             f"{source}: {shown}; with {count} values a spread over {upper:.3g} makes the fit's sums "
-            "of squares overflow float64 (about 1.8e308). Rescale the outcome (for example use larger units)."
+            f"of squares overflow float64 (about 1.8e308). Rescale {noun} (for example use larger units)."
         )
     if 0 < spread < lower:
         raise DataError(
             f"{source}: {shown}; a spread under {lower:g} makes the fit's sums of squares "
-            "underflow float64. Rescale the outcome (for example use smaller units)."
+            f"underflow float64. Rescale {noun} (for example use smaller units)."
         )
 
 
@@ -606,8 +729,8 @@ def _from_parquet(plan: Plan, path: Path) -> Dataset:
         if pa.types.is_dictionary(kind):
             kind = kind.value_type
         if pa.types.is_nested(kind) or pa.types.is_binary(kind) or pa.types.is_large_binary(kind) or pa.types.is_null(kind):
-            role = "outcome" if name == plan.data.outcome else "factor"
-            need = "a number" if role == "outcome" else "a text or a number"
+            role = _role(plan, name)
+            need = "a text or a number" if role == "factor" else "a number"
             raise DataError(
                 f"{path}: column '{name}' (the {role} named in the plan) has the Parquet type {kind}; "
                 f"the {role} needs {need} in every row. Write that column as plain values."
@@ -628,9 +751,12 @@ def _from_parquet(plan: Plan, path: Path) -> Dataset:
             idx = np.where(enc.is_null().to_numpy(zero_copy_only=False), len(uniq), idx)
             uniq = np.append(uniq, None)
         cols[f.data_column] = _Encoded(uniq, idx.astype(np.int64))
-    out = table.column(plan.data.outcome)
-    if pa.types.is_integer(out.type) or pa.types.is_floating(out.type) or pa.types.is_decimal(out.type):
-        cols[plan.data.outcome] = out.cast(pa.float64()).to_numpy(zero_copy_only=False)
-    else:
-        cols[plan.data.outcome] = np.asarray(out.cast(pa.string()).to_pylist(), dtype=object)
+    for name in dict.fromkeys([plan.data.outcome, *(c.name for c in plan.covariates)]):
+        out = table.column(name)
+        if pa.types.is_dictionary(out.type):
+            out = out.cast(out.type.value_type)
+        if pa.types.is_integer(out.type) or pa.types.is_floating(out.type) or pa.types.is_decimal(out.type):
+            cols[name] = out.cast(pa.float64()).to_numpy(zero_copy_only=False)
+        else:
+            cols[name] = np.asarray(out.cast(pa.string()).to_pylist(), dtype=object)
     return _build_columns(plan, str(path), sha, "parquet", cols, n, row_numbers=np.arange(1, n + 1, dtype=np.int64))

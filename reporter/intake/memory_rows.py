@@ -45,19 +45,22 @@ class MemoryRows:
     """:class:`reporter.intake.rows.RowAccess` over numpy arrays.
 
     ``y`` holds the values as offsets from the pivot, ``cell`` each row's design cell (0 .. k-1)
-    and ``row_numbers`` each row's number as a person finds it in the input (default 1..N).
+    and ``row_numbers`` each row's number as a person finds it in the input (default 1..N);
+    ``x`` (N, p), when given, the covariates as offsets from their pivots.
     The arrays are not copied; the caller must not change them.
     """
 
     kind = "memory"
 
-    def __init__(self, y: np.ndarray, cell: np.ndarray, k: int, row_numbers: np.ndarray | None = None):
+    def __init__(self, y: np.ndarray, cell: np.ndarray, k: int, row_numbers: np.ndarray | None = None,
+                 x: np.ndarray | None = None):
         self._y = np.asarray(y, dtype=np.float64)
         self._cell = np.asarray(cell)
         self.n = int(self._y.shape[0])
         self.k = int(k)
         if self._cell.shape != self._y.shape:
             raise ValueError(f"cell codes ({self._cell.shape}) and values ({self._y.shape}) differ in shape")
+        self._x = None if x is None else np.asarray(x, dtype=np.float64).reshape(self.n, -1)
         self._rows = row_numbers
         self._counts = np.bincount(self._cell, minlength=self.k).astype(np.int64) if self.n else np.zeros(self.k, np.int64)
         self._ends = np.cumsum(self._counts)
@@ -160,3 +163,46 @@ class MemoryRows:
 
     def arrays(self) -> tuple[np.ndarray, np.ndarray]:
         return self._y, self._cell
+
+    # -----------------------------------------------------------------------------------------
+    # covariates
+
+    def covariate_arrays(self) -> np.ndarray | None:
+        return self._x
+
+    def adjusted(self, b: np.ndarray) -> "MemoryRows":
+        """The rows with outcome z = y − Σ_j b[c, j]·x_j (offsets; see :func:`slope_matrix`)."""
+        z = adjust(self._y, self._cell, self._x, slope_matrix(b, self.k, self._x))
+        z.setflags(write=False)
+        return MemoryRows(z, self._cell, self.k, self._rows, x=self._x)
+
+    def batches(self, size: int):
+        """(cell, y offsets, x offsets) of at most ``size`` rows at a time, in input order (views,
+        no copy); x has 0 columns without covariates."""
+        size = max(int(size), 1)
+        x = self._x if self._x is not None else np.empty((self.n, 0))
+        for start in range(0, self.n, size):
+            stop = min(start + size, self.n)
+            yield self._cell[start:stop], self._y[start:stop], x[start:stop]
+
+
+def slope_matrix(b, k: int, x: np.ndarray | None) -> np.ndarray:
+    """``b`` as a (k, p) float array: the slope of each covariate in each cell. A (p,) vector is
+    one common slope per covariate (the same row in every cell)."""
+    p = 0 if x is None else x.shape[1]
+    b = np.asarray(b, dtype=np.float64)
+    if b.ndim == 1:
+        b = np.broadcast_to(b, (k, b.shape[0]))
+    if b.shape != (k, p):
+        raise ValueError(f"slopes of shape {b.shape} given for {k} cells and {p} covariates; expected ({k}, {p})")
+    return b
+
+
+def adjust(y: np.ndarray, cell: np.ndarray, x: np.ndarray | None, b: np.ndarray) -> np.ndarray:
+    """z = y − Σ_j b[cell, j]·x_j, one chunk of rows (the rule both row sources use)."""
+    z = np.array(y, dtype=np.float64, copy=True)
+    if x is None:
+        return z
+    for j in range(x.shape[1]):
+        z -= b[cell, j] * x[:, j]
+    return z

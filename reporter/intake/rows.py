@@ -24,7 +24,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from collections.abc import Sequence as SequenceABC
-from typing import Protocol, Sequence
+from typing import Iterator, Protocol, Sequence
 
 import numpy as np
 
@@ -129,6 +129,21 @@ class RowAccess(Protocol):
 
     def arrays(self) -> tuple[np.ndarray, np.ndarray] | None:
         """(values, cells) of every row, or None when the rows are not held in memory."""
+
+    def covariate_arrays(self) -> np.ndarray | None:
+        """The covariates of every row as offsets from their pivots (N, p), or None without
+        covariates or when the rows are not held in memory."""
+
+    def adjusted(self, b: np.ndarray) -> "RowAccess":
+        """The same rows with outcome z = y − Σ_j b[c, j]·x_j (offsets), ``b`` (k, p) the slope of
+        each covariate in each cell (the same row repeated for common slopes; a (p,) vector is
+        taken as such). Every question above then concerns z: residuals of the analysis of
+        covariance for the residual-based steps. The terms are subtracted in covariate order,
+        each product rounded once, so every source gives the same z."""
+
+    def batches(self, size: int) -> Iterator[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+        """(cells, y offsets, x offsets (m, p)) of at most ``size`` rows at a time, in input
+        order, in bounded memory: for any other row-level sum."""
 
 
 # ---------------------------------------------------------------------------------------------
