@@ -414,12 +414,7 @@ def _read_covariates(plan: Plan, cols, keep: np.ndarray, reasons: list, source: 
         bad = (status == 2) & candidates
         if bad.any():
             i = int(np.flatnonzero(bad)[0])
-            raise DataError(
-                f"{source}, {line_of(i)}: the covariate '{cov.name}' (column '{cov.name}') is "
-                f"{_shown(str(raw[i]).strip())}, which is not a number. A covariate needs a plain decimal number in "
-                "every analysed row: correct the value, or write a missing-value text ([data] missing) to leave "
-                "the row out."
-            )
+            raise covariate_not_a_number(cov.name, raw[i], source, line_of(i))
         missing = (status == 1) & keep
         if not ((status == 0) & candidates).any() and candidates.any():
             raise DataError(
@@ -438,6 +433,16 @@ def _read_covariates(plan: Plan, cols, keep: np.ndarray, reasons: list, source: 
     columns = CovariateColumns(names=tuple(c.name for c in plan.covariates), x=x, pivot=tuple(pivots),
                                pivot_text=tuple(texts), exact=exact_all)
     return columns, keep
+
+
+def covariate_not_a_number(name: str, raw, source: str, where: str) -> DataError:
+    """The message for a covariate value that is no number at all (a number-like text that breaks
+    the plain-decimal rule meets the outcome's messages, with the covariate named, first)."""
+    return DataError(
+        f"{source}, {where}: the covariate '{name}' (column '{name}') is {_shown(str(raw).strip())}, which is not "
+        "a number. A covariate needs a plain decimal number in every analysed row: correct the value, or write a "
+        "missing-value text ([data] missing) to leave the row out."
+    )
 
 
 def check_covariates(plan: Plan, stats, n: np.ndarray, cell_labels: Sequence[str], source: str) -> None:
