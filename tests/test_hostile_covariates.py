@@ -16,7 +16,7 @@ import pytest
 
 from test_hostile_inputs import refused
 
-READERS = ["in-memory"]  # the out-of-core reader joins when it reads covariates
+READERS = ["in-memory", "out-of-core"]
 
 PLAN = """
 title = "Recall after two schedules (simulated)"

@@ -45,8 +45,10 @@ def _clean_number(raw: Any, plan) -> str | None:
     return None
 
 
-def _status_sql(y: str, plan) -> tuple[str, str, str, str]:
-    """SQL over the raw outcome text ``y``: (fast, trimmed, status, value).
+def _status_sql(y: str, plan, fast_name: str = "fast", t_name: str = "t") -> tuple[str, str, str, str]:
+    """SQL over the raw outcome text ``y``: (fast, trimmed, status, value). ``fast_name`` and
+    ``t_name`` are the names the later layers give the first two (another column read by the
+    same rule, a covariate, uses its own).
 
     Each is computed as a column of its own query layer (``fast``, then ``t``, then ``st`` and
     ``yv``), so that DuckDB cannot hoist the costly string work out of its CASE and run it for
@@ -67,8 +69,8 @@ def _status_sql(y: str, plan) -> tuple[str, str, str, str]:
     )
     if numeric_tokens:
         fast = f"({fast} AND trim({y}) NOT IN ({', '.join(map(_lit, numeric_tokens))}))"
-    trimmed = f"(CASE WHEN fast THEN NULL ELSE trim(coalesce({y}, ''), {_lit(_WS)}) END)"
-    clean = "replace(t, ',', '.')" if plan.data.decimal == "," else "t"
+    trimmed = f"(CASE WHEN {fast_name} THEN NULL ELSE trim(coalesce({y}, ''), {_lit(_WS)}) END)"
+    clean = f"replace({t_name}, ',', '.')" if plan.data.decimal == "," else t_name
     clean = f"replace({clean}, '\u2212', '-')"
     x = f"TRY_CAST({clean} AS DOUBLE)"
     valid = (
@@ -77,10 +79,10 @@ def _status_sql(y: str, plan) -> tuple[str, str, str, str]:
     )
     missing = ", ".join(_lit(m) for m in plan.data.missing) or "NULL"
     status = (
-        f"(CASE WHEN fast THEN 0 WHEN t IN ({missing}) OR lower(t) IN ({', '.join(map(_lit, _NA_WORDS))}) "
-        f"THEN 1 WHEN {valid} THEN 0 ELSE 2 END)"
+        f"(CASE WHEN {fast_name} THEN 0 WHEN {t_name} IN ({missing}) OR lower({t_name}) IN "
+        f"({', '.join(map(_lit, _NA_WORDS))}) THEN 1 WHEN {valid} THEN 0 ELSE 2 END)"
     )
-    value = f"(CASE WHEN fast THEN {fast_text} ELSE {clean} END)"
+    value = f"(CASE WHEN {fast_name} THEN {fast_text} ELSE {clean} END)"
     return fast, trimmed, status, value
 
 
@@ -95,9 +97,9 @@ def _frac_digits(d: decimal.Decimal) -> int:
     return max(-d.as_tuple().exponent, 0) if d.is_finite() else 0
 
 
-def _offset_sql(pv: decimal.Decimal, head: Sequence[str]) -> tuple[str, bool]:
-    """SQL for the outcome text ``yv`` minus the pivot ``pv``, exact before the conversion to
-    DOUBLE; and whether the route is exact.
+def _offset_sql(pv: decimal.Decimal, head: Sequence[str], yv: str = "yv") -> tuple[str, bool]:
+    """SQL for the outcome text ``yv`` (a column name) minus the pivot ``pv``, exact before the
+    conversion to DOUBLE; and whether the route is exact.
 
     Three routes, tried in turn per row:
 
@@ -116,20 +118,20 @@ def _offset_sql(pv: decimal.Decimal, head: Sequence[str]) -> tuple[str, bool]:
     pivot_text = str(pv)
     top = max(pv.adjusted() + 1, 1) if pv != 0 else 1
     scale = 34 - top
-    as_double = f"(TRY_CAST(yv AS DOUBLE) - CAST({_lit(repr(float(pv)))} AS DOUBLE))"
+    as_double = f"(TRY_CAST({yv} AS DOUBLE) - CAST({_lit(repr(float(pv)))} AS DOUBLE))"
     if scale < 0 or _frac_digits(pv) > scale:
         return as_double, False
     dec = f"DECIMAL(37, {scale})"
-    routes = [f"CAST(TRY_CAST(yv AS {dec}) - CAST({_lit(pivot_text)} AS {dec}) AS DOUBLE)", as_double]
+    routes = [f"CAST(TRY_CAST({yv} AS {dec}) - CAST({_lit(pivot_text)} AS {dec}) AS DOUBLE)", as_double]
     decs = [decimal.Decimal(t) for t in head if "e" not in t.lower()]
     s18 = max([_frac_digits(d) for d in decs] + [_frac_digits(pv)])
     if "e" not in pivot_text.lower() and top + 2 + s18 <= 18:
         d18 = f"DECIMAL(18, {s18})"
         fits = (
-            "(NOT contains(yv, 'e') AND NOT contains(yv, 'E') AND "
-            f"(CASE WHEN instr(yv, '.') > 0 THEN strlen(yv) - instr(yv, '.') ELSE 0 END) <= {s18})"
+            f"(NOT contains({yv}, 'e') AND NOT contains({yv}, 'E') AND "
+            f"(CASE WHEN instr({yv}, '.') > 0 THEN strlen({yv}) - instr({yv}, '.') ELSE 0 END) <= {s18})"
         )
-        routes.insert(0, f"(CASE WHEN {fits} THEN CAST(TRY_CAST(yv AS {d18}) - CAST({_lit(pivot_text)} AS {d18}) AS DOUBLE) END)")
+        routes.insert(0, f"(CASE WHEN {fits} THEN CAST(TRY_CAST({yv} AS {d18}) - CAST({_lit(pivot_text)} AS {d18}) AS DOUBLE) END)")
     return f"coalesce({', '.join(routes)})", True
 
 

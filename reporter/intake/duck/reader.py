@@ -19,14 +19,16 @@ import io
 import math
 import tempfile
 import threading
+from dataclasses import replace
 from fractions import Fraction
 from pathlib import Path
-from typing import Any
+from typing import Any, Sequence
 
 import numpy as np
 
 from reporter.errors import DataError
 from reporter.intake.duck.cell_table import cell_stats
+from reporter.intake.duck import covariates as cov_sql
 from reporter.intake.duck.connection import _close, _connect, _ident, _lit, _Progress, _quiet, _run, _short_error
 from reporter.intake.duck.files import _file_digest, _glob_digest, _read_header, _RowNumbers, matched_files
 from reporter.intake.duck.levels import _LEVEL_CAP, _factor_text_sql, _known_case, _level_codes
@@ -34,8 +36,10 @@ from reporter.intake.duck.outcome import _check_spread, _clean_number, _is_numer
 from reporter.intake.duck.rows import DuckRows
 
 
-def _head_rows(con, path: Path, scan_sql: str, text: bool, delimiter: str, idx: dict[str, int], fexprs, yname):
-    """The first rows of the (first) file as (factor values, outcome) for choosing the pivot."""
+def _head_rows(con, path: Path, scan_sql: str, text: bool, delimiter: str, idx: dict[str, int], fexprs, yname,
+               xexprs: Sequence[str] = ()):
+    """The first rows of the (first) file as (factor values, outcome, covariate values) for
+    choosing the pivots."""
     if text:
         with open(path, "rb") as fh:
             head = fh.read(1 << 20)
@@ -50,17 +54,19 @@ def _head_rows(con, path: Path, scan_sql: str, text: bool, delimiter: str, idx: 
                 if len(rec) != len(idx.get("__width__", [])) and "__width__" in idx:
                     continue
                 out.append(([rec[i] if i < len(rec) else None for i in idx["__factors__"]],
-                            rec[idx["__y__"]] if idx["__y__"] < len(rec) else None))
+                            rec[idx["__y__"]] if idx["__y__"] < len(rec) else None,
+                            [rec[i] if i < len(rec) else None for i in idx.get("__x__", [])]))
         except csv.Error:
             pass
         return out[:-1] if len(out) > 1 else out  # the last record may be cut by the chunk
-    sel = ", ".join(fexprs)
-    return [(list(r[:-1]), r[-1]) for r in con.execute(f"SELECT {sel}, {yname} FROM {scan_sql} LIMIT 1000").fetchall()]
+    sel = ", ".join([*fexprs, yname, *xexprs])
+    nf = len(fexprs)
+    return [(list(r[:nf]), r[nf], list(r[nf + 1:])) for r in con.execute(f"SELECT {sel} FROM {scan_sql} LIMIT 1000").fetchall()]
 
 
 def load_out_of_core(plan, quiet: bool | None = None):
     """Read the plan's data file(s) with DuckDB; see the module docstring."""
-    from reporter.intake.data import Exclusion, _needed_columns, require_file, rowless_dataset
+    from reporter.intake.data import CovariateColumns, Exclusion, _needed_columns, _role, require_file, rowless_dataset
 
     quiet = _quiet() if quiet is None else quiet
     path = plan.data.path
@@ -115,11 +121,12 @@ def load_out_of_core(plan, quiet: bool | None = None):
                 raise DataError(f"{source}: is not a readable Parquet file ({_short_error(exc)}).") from None
             columns = [r[0] for r in rel]
             types = {r[0]: r[1] for r in rel}
-            for name in dict.fromkeys([plan.data.outcome] + [f.data_column for f in plan.factors]):
+            for name in dict.fromkeys([plan.data.outcome] + [f.data_column for f in plan.factors]
+                                      + [c.name for c in plan.covariates]):
                 kind = str(types.get(name, "")).upper()
                 if kind.endswith("]") or kind.startswith(("STRUCT", "MAP", "UNION", "BLOB")) or kind.strip('"') == "NULL":
-                    role = "outcome" if name == plan.data.outcome else "factor"
-                    need = "a number" if role == "outcome" else "a text or a number"
+                    role = _role(plan, name)
+                    need = "a text or a number" if role == "factor" else "a number"
                     raise DataError(
                         f"{source}: column '{name}' (the {role} named in the plan) has the Parquet type "
                         f"{types[name]}; the {role} needs {need} in every row. Write that column as plain values."
@@ -130,17 +137,29 @@ def load_out_of_core(plan, quiet: bool | None = None):
         ycol = col_of[plan.data.outcome]
         ytext = text or not _is_numeric_type(types[plan.data.outcome] or "")
         fexprs = [_factor_text_sql(col_of[f.data_column], types.get(f.data_column)) for f in plan.factors]
+        covs = cov_sql.covariates_of(plan, col_of, types, text)
 
         # The pivot: the first valid outcome of an analysed row near the top of the file.
         if text:
             hidx = {"__factors__": [header.index(f.data_column) for f in plan.factors],
-                    "__y__": header.index(plan.data.outcome), "__width__": header}
+                    "__y__": header.index(plan.data.outcome), "__width__": header,
+                    "__x__": [header.index(c.name) for c in covs]}
         else:
             hidx = {}
         yread = f"CAST({ycol} AS VARCHAR)" if ytext else f"CAST({ycol} AS DOUBLE)"
         pivot_raw = None
         head_texts: list[str] = []
-        for fvals, yv in _head_rows(con, files[0], scan, text, delimiter, hidx, fexprs, yread):
+        head = _head_rows(con, files[0], scan, text, delimiter, hidx, fexprs, yread,
+                          [f"CAST({c.column} AS {'VARCHAR' if c.text else 'DOUBLE'})" for c in covs])
+
+        def factors_ok(fvals) -> bool:
+            try:
+                return all(_level_codes(plan, f, [v if v is not None else ""], source, lambda i: "")[0] >= 0
+                           for f, v in zip(plan.factors, fvals))
+            except DataError:
+                return False
+
+        for fvals, yv, _ in head:
             if ytext:
                 cleaned = _clean_number(yv, plan)
             else:
@@ -151,12 +170,7 @@ def load_out_of_core(plan, quiet: bool | None = None):
                 continue
             if ytext:
                 head_texts.append(cleaned)
-            try:
-                ok = all(_level_codes(plan, f, [v if v is not None else ""], source, lambda i: "")[0] >= 0
-                         for f, v in zip(plan.factors, fvals))
-            except DataError:
-                ok = False
-            if ok:
+            if factors_ok(fvals):
                 pivot_raw = cleaned
 
         # The outcome as SQL.
@@ -187,28 +201,35 @@ def load_out_of_core(plan, quiet: bool | None = None):
             pivot_text = repr(pivot)
             value_sql = f"(yv - CAST({_lit(repr(pivot))} AS DOUBLE))"
 
+        if covs:  # each covariate's pivot: its value in the first analysed row near the top
+            yok = [(_clean_number(yv, plan) if ytext else (yv if yv is not None and math.isfinite(yv) else None)) is not None
+                   for _, yv, _ in head]
+            cov_sql.choose_pivots(con, covs, plan, [(factors_ok(fv) if ok else False, ok, xs)
+                                                    for (fv, _, xs), ok in zip(head, yok)], scan)
+        cl0, cl1, cl2, cl3, cfinal = cov_sql.layers(covs)
+
         # One scan: the compact table (factor codes, outcome status, offset from the pivot).
         keep = [f"c{j}" for j in range(nf)] + [f"v{j}" for j in range(nf)]
         bad_sql = "t" if ytext else "CAST(y AS VARCHAR)"
         layers = [
-            ", ".join([f"{fexprs[j]} AS v{j}" for j in range(nf)] + [layer0]),
+            ", ".join([f"{fexprs[j]} AS v{j}" for j in range(nf)] + [layer0] + cl0),
             ", ".join([f"{_known_case(plan, f, f'v{j}', source)} AS c{j}" for j, f in enumerate(plan.factors)]
-                      + [f"v{j}" for j in range(nf)] + ["y", f"{fast_sql} AS fast"]),
-            ", ".join(keep + ["y", "fast", f"{t_sql} AS t"]),
-            ", ".join(keep + ["y", "t", f"{st_sql} AS st", f"{yv_sql} AS yv"]),
+                      + [f"v{j}" for j in range(nf)] + ["y", f"{fast_sql} AS fast"] + cl1),
+            ", ".join(keep + ["y", "fast", f"{t_sql} AS t"] + cl2),
+            ", ".join(keep + ["y", "t", f"{st_sql} AS st", f"{yv_sql} AS yv"] + cl3),
         ]
         query = f"SELECT {layers[0]} FROM {scan}"
         for layer in layers[1:]:
             query = f"SELECT {layer} FROM ({query})"
         final = ", ".join([f"CAST(c{j} AS SMALLINT) AS c{j}" for j in range(nf)]
-                          + ["CAST(st AS TINYINT) AS st", f"CASE WHEN st = 0 THEN {value_sql} END AS d"])
+                          + ["CAST(st AS TINYINT) AS st", f"CASE WHEN st = 0 THEN {value_sql} END AS d"] + cfinal)
         with _Progress(con, "Reading the data", quiet):
             _run(con, f"CREATE TABLE obs AS SELECT {final} FROM ({query})", source)
         hasher.join()
         for d in digests:
             if isinstance(d, DataError):
                 raise d
-        unresolved = " OR ".join(f"c{j} = -9" for j in range(nf))
+        unresolved = " OR ".join([f"c{j} = -9" for j in range(nf)] + [f"sx{c.j} = 2" for c in covs])
         n_read, n_odd = con.execute(
             f"SELECT count(*), count(*) FILTER (WHERE {unresolved} OR st = 2) FROM obs"
         ).fetchall()[0]
@@ -226,7 +247,7 @@ def load_out_of_core(plan, quiet: bool | None = None):
         # The texts of rows with a factor value not written as in the plan or a non-numeric
         # outcome, kept apart (text columns in the big table would cost 16 bytes a row).
         extra = ", ".join([f"CASE WHEN c{j} = -9 THEN v{j} END AS u{j}" for j in range(nf)]
-                          + [f"CASE WHEN st = 2 THEN {bad_sql} END AS bad"])
+                          + [f"CASE WHEN st = 2 THEN {bad_sql} END AS bad"] + cov_sql.bad_texts(covs))
         con.execute(
             f"CREATE TEMP TABLE extra AS SELECT r, {extra} FROM (SELECT row_number() OVER () AS r, * FROM ({query})) "
             + (f"WHERE {unresolved} OR st = 2" if n_odd else "WHERE false")
@@ -268,20 +289,24 @@ def load_out_of_core(plan, quiet: bool | None = None):
         ).fetchall() if n_odd else []
         for value, first in odd:
             _refuse(plan, value, ytext, source, f"{rownum.word} {rownum.number(first)}")
+        cov_sql.check_values(con, covs, plan, f"{factor_kept} AND st = 0", source,
+                             lambda r: f"{rownum.word} {rownum.number(r)}")
 
         shape = tuple(len(f.levels) for f in plan.factors)
         strides = [int(np.prod(shape[j + 1 :])) for j in range(nf)]
         cell_sql = " + ".join(f"CAST(c{j} AS INTEGER) * {strides[j]}" for j in range(nf))
+        cov_arms, cov_reasons = cov_sql.reasons(covs, 2 * nf + 3)
         reason_sql = "CASE " + " ".join(
             f"WHEN c{j} = -1 THEN {2 * j + 1} WHEN c{j} = -2 THEN {2 * j + 2}" for j in range(nf)
-        ) + f" WHEN st = 1 THEN {2 * nf + 1} WHEN st = 2 THEN {2 * nf + 2} ELSE 0 END"
+        ) + f" WHEN st = 1 THEN {2 * nf + 1} WHEN st = 2 THEN {2 * nf + 2} {cov_arms} ELSE 0 END"
         levels_sql = ", ".join(f"c{j}" for j in range(nf))
         con.execute(
             f"CREATE VIEW rowinfo AS SELECT rowid + 1 AS r, {reason_sql} AS reason, {cell_sql} AS cell, "
             f"d, {levels_sql} FROM obs"
         )
-        all_kept = " AND ".join([f"c{j} >= 0" for j in range(nf)] + ["st = 0"])
-        con.execute(f"CREATE VIEW kept AS SELECT rowid + 1 AS r, rowid AS id, {cell_sql} AS cell, d FROM obs WHERE {all_kept}")
+        all_kept = " AND ".join([f"c{j} >= 0" for j in range(nf)] + ["st = 0"] + [f"sx{c.j} = 0" for c in covs])
+        xs = "".join(f", x{c.j}" for c in covs)
+        con.execute(f"CREATE VIEW kept AS SELECT rowid + 1 AS r, rowid AS id, {cell_sql} AS cell, d{xs} FROM obs WHERE {all_kept}")
 
         # Exclusions by reason, with the first row numbers.
         reasons = []
@@ -291,6 +316,7 @@ def load_out_of_core(plan, quiet: bool | None = None):
             reasons.append((2 * j + 2, f"level of '{f.name}' excluded by the plan", f"excluded: {listed}"))
         reasons.append((2 * nf + 1, f"missing outcome '{plan.data.outcome}'", ""))
         reasons.append((2 * nf + 2, f"non-numeric outcome '{plan.data.outcome}'", None))
+        reasons += cov_reasons
         count_by = dict(con.execute("SELECT reason, count(*) FROM rowinfo WHERE reason > 0 GROUP BY reason").fetchall())
         exclusions = []
         for code, text_reason, detail in reasons:
@@ -318,7 +344,13 @@ def load_out_of_core(plan, quiet: bool | None = None):
         pivot_exact = Fraction(pivot_text) if exact else Fraction(pivot)
         cells, d_lo, d_hi = cell_stats(con, k, pivot, pivot_exact)
         _check_spread(con, plan, pivot, source, rownum, cells, d_lo, d_hi)
-        rows = DuckRows(con, folder, k, rownum, files, cells.n, d_lo, d_hi)
+        covariates = None
+        if covs:
+            stats = cov_sql.stats(con, covs, k, plan, source, lambda r: f"{rownum.word} {rownum.number(r)}")
+            cells = replace(cells, covariates=stats)
+            covariates = CovariateColumns(names=stats.names, x=np.empty((0, len(covs))), pivot=tuple(stats.pivot.tolist()),
+                                          pivot_text=tuple(c.pivot_text for c in covs), exact=all(c.exact for c in covs))
+        rows = DuckRows(con, folder, k, rownum, files, cells.n, d_lo, d_hi, covariates=len(covs))
     except BaseException:
         _close(con, folder)
         raise
@@ -338,4 +370,5 @@ def load_out_of_core(plan, quiet: bool | None = None):
         cells=cells,
         row_access=rows,
         reader="out-of-core",
+        covariates=covariates,
     )

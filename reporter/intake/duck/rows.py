@@ -31,8 +31,10 @@ class DuckRows:
     kind = "duckdb"
 
     def __init__(self, con, folder: str, k: int, rownum: _RowNumbers, files: Sequence[Path],
-                 counts: np.ndarray | None = None, lo: np.ndarray | None = None, hi: np.ndarray | None = None):
+                 counts: np.ndarray | None = None, lo: np.ndarray | None = None, hi: np.ndarray | None = None,
+                 covariates: int = 0, owner: bool = True):
         self._con, self._folder, self.k, self._rownum = con, folder, k, rownum
+        self.covariates = int(covariates)  # covariate columns x0, x1, .. of the view kept
         self.files = tuple(files)
         if counts is None or lo is None or hi is None:
             [(counts, _, _)], (lo, hi) = _moments(con, ["d"], "kept", k, extremes=True)
@@ -40,7 +42,8 @@ class DuckRows:
         self._lo, self._hi = np.asarray(lo, dtype=np.float64), np.asarray(hi, dtype=np.float64)
         self.n = int(self._counts.sum())
         self._n_obs = int(con.execute("SELECT count(*) FROM obs").fetchall()[0][0])
-        self._finalizer = weakref.finalize(self, _close, con, folder)
+        # the rows of adjusted() share the owner's database through a connection of their own
+        self._finalizer = weakref.finalize(self, _close, con, folder) if owner else weakref.finalize(self, con.close)
         self._lock = threading.Lock()
         self._medians: np.ndarray | None = None
 
@@ -296,6 +299,21 @@ class DuckRows:
 
     def arrays(self) -> None:
         return None
+
+    def covariate_arrays(self) -> None:
+        return None
+
+    def adjusted(self, b: np.ndarray) -> "DuckRows":
+        """The rows with outcome z = y − Σ_j b[c, j]·x_j (see :mod:`.covariates`)."""
+        from reporter.intake.duck.covariates import adjusted_rows
+
+        return adjusted_rows(self, b)
+
+    def batches(self, size: int):
+        """(cells, y offsets, x offsets) of at most ``size`` rows, in file order (see :mod:`.covariates`)."""
+        from reporter.intake.duck.covariates import row_batches
+
+        return row_batches(self, size)
 
 
 _MAX_BUCKETS = 1 << 20  # histogram buckets per cell at most when locating order statistics
