@@ -140,3 +140,30 @@ def test_magnitudes_float64_cannot_hold(capsys, tmp_path, reader, values, where,
     plan = project(tmp_path, reader, data(values))
     message = refused(capsys, tmp_path, plan, "recall.csv", "the covariate 'pretest'", where, expected)
     assert "Rescale the covariate" in message
+
+
+def parquet_project(folder, reader, pretest) -> object:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    rows = [r.split(",") for r in data().splitlines()[1:]]
+    table = pa.table({"recall": [float(r[0]) for r in rows], "schedule": [r[1] for r in rows], "pretest": pretest})
+    pq.write_table(table, folder / "recall.parquet")
+    plan = folder / "plan.toml"
+    text = textwrap.dedent(PLAN).lstrip().format(reader=reader, covariates='[[covariates]]\nname = "pretest"')
+    plan.write_text(text.replace("recall.csv", "recall.parquet"), encoding="utf-8")
+    return plan
+
+
+@pytest.mark.parametrize("reader", READERS)
+@pytest.mark.parametrize("pretest, expected", [
+    ([[1.0]] * 12, "has the Parquet type"),
+    ([b"x"] * 12, "has the Parquet type"),
+    ([None] * 12, "has the Parquet type"),
+    ([str(v) for v in PRETEST[:5]] + ["abc"] + [str(v) for v in PRETEST[6:]], "row 6: the covariate 'pretest'"),
+    (PRETEST[:2] + [float("inf")] + PRETEST[3:], "row 3: the covariate 'pretest' is inf"),
+    ([float("nan")] * 12, "has no value in any of the 12 rows"),
+], ids=["list", "binary", "null-type", "text-not-a-number", "infinite", "all-nan"])
+def test_parquet_columns(capsys, tmp_path, reader, pretest, expected):
+    plan = parquet_project(tmp_path, reader, pretest)
+    refused(capsys, tmp_path, plan, "recall.parquet", expected)
