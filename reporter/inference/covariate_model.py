@@ -31,9 +31,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from reporter.errors import FitError
-
-__all__ = ["CovariateModel", "covariate_model_of", "describe_covariate_model", "slope_layout"]
+__all__ = ["CovariateModel", "covariate_model_of"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -119,57 +117,6 @@ class CovariateModel:
         """h_i = 1/n_c + d_i' Q_c d_i for rows in ``cell`` with centred covariates ``d``."""
         q = self.cell_blocks() if blocks is None else blocks
         return 1.0 / self.n[cell] + np.einsum("ij,ijl,il->i", d, q[cell], d)
-
-
-def slope_layout(n, modes) -> np.ndarray:
-    """(k, p) position of each b[c, j] in the slope vector: covariates in order, a common slope
-    taking one position and per-cell slopes one per observed cell (-1 for empty cells)."""
-    obs = np.flatnonzero(np.asarray(n) > 0)
-    index = np.full((np.asarray(n).size, len(modes)), -1, dtype=np.int64)
-    nxt = 0
-    for j, mode in enumerate(modes):
-        if mode == "common":
-            index[obs, j] = nxt
-            nxt += 1
-        elif mode == "per-cell":
-            index[obs, j] = np.arange(nxt, nxt + obs.size)
-            nxt += obs.size
-        else:
-            raise FitError(f"'slopes' must be 'common' or 'per-cell' for each covariate (got {mode!r}).")
-    return index
-
-
-def describe_covariate_model(n, xbar, sxx, sxy, modes, reference) -> CovariateModel:
-    """The covariance analysis fitted from per-cell statistics: cell counts ``n``, covariate means
-    ``xbar`` (k, p; offsets), within-cell cross-products ``sxx`` (k, p, p) and ``sxy`` (k, p) (as
-    :class:`reporter.intake.cells.CovariateStats` holds them), the slopes' mode of each covariate
-    and the reference values (offsets). The slopes solve N·beta = r (module docstring)."""
-    n = np.asarray(n)
-    obs = n > 0
-    xbar = np.asarray(xbar, dtype=float)
-    k, p = xbar.shape
-    modes = (modes,) * p if isinstance(modes, str) else tuple(modes)
-    index = slope_layout(n, modes)
-    m = int(index.max()) + 1
-    normal = np.zeros((m, m))
-    rhs = np.zeros(m)
-    for c in np.flatnonzero(obs):
-        normal[np.ix_(index[c], index[c])] += np.asarray(sxx[c], dtype=float)
-        rhs[index[c]] += np.asarray(sxy[c], dtype=float)
-    try:
-        slope_cov = np.linalg.inv(normal)
-    except np.linalg.LinAlgError:
-        raise FitError("the covariates' within-cell cross-product matrix is singular, so the slopes are not "
-                       "estimable") from None
-    if not np.all(np.isfinite(slope_cov)):
-        raise FitError("the covariates' within-cell cross-product matrix is singular, so the slopes are not "
-                       "estimable")
-    slope_cov = (slope_cov + slope_cov.T) / 2.0
-    beta = np.linalg.solve(normal, rhs)
-    slopes = np.where(obs[:, None], beta[np.maximum(index, 0)], 0.0)
-    return CovariateModel(n=n.astype(np.int64), xbar=np.where(obs[:, None], np.nan_to_num(xbar), 0.0),
-                          reference=np.asarray(reference, dtype=float).reshape(p), slopes=slopes, index=index,
-                          slope_cov=slope_cov)
 
 
 def covariate_model_of(fit) -> CovariateModel:

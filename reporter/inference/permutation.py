@@ -45,7 +45,6 @@ import numpy as np
 
 from reporter.errors import FitError
 from reporter.intake.defaults import ANALYSIS_DEFAULTS
-from reporter.inference.covariate_model import describe_covariate_model
 from reporter.inference.posthoc import _check_seed
 from reporter.inference.robust import _cell_stats_from_rows, _reduce_rows, _rows
 
@@ -279,47 +278,43 @@ def _contrast_rows(C, n: np.ndarray, k: int) -> np.ndarray:
 
 
 def _null_distribution_adjusted(
-    y, codes, x, k, C, slopes, reference, n_permutations: int, seed: int, block: int | None = None, *,
+    y, codes, x, k, C, model, cell_means, n_permutations: int, seed: int, block: int | None = None, *,
     stop_after: int | None = None, progress: bool = False, notify=None, label: str = ""
 ) -> _NullDistribution:
     """Freedman-Lane with covariates: the reduced model keeps the covariates (with the same
     slopes, common or per cell) and restricts the adjusted cell means by C·mu_adj = 0.
 
-    With the within-cell-centred parameters theta = (alpha, beta) of
-    :mod:`reporter.inference.covariate_model`, G = (X'X)^-1 and L = C·A (A maps theta to the
-    adjusted means), a residual vector r enters F only through z = X'r, that is its cell sums and
-    its sums of r_i d_i (d_i the row's centred covariates) laid out as the slopes: the hypothesis
-    SS is ||R^-1 L G z||^2 with R R' = L G L', and the residual SS is r'r - z'G z (Searle 1987,
-    section 8.5, the general linear hypothesis). Each permutation costs O(N p).
+    ``model`` is the fitted covariance analysis (:class:`reporter.inference.covariate_model.
+    CovariateModel`: its slopes, their covariance, the covariate cell means and reference values)
+    and ``cell_means`` (k,) the outcome's cell means (offsets), both as the fit computed them; the
+    rows give the residuals. With the within-cell-centred parameters theta = (alpha, beta),
+    G = (X'X)^-1 and L = C·A (A maps theta to the adjusted means), a residual vector r enters F
+    only through z = X'r, that is its cell sums and its sums of r_i d_i (d_i the row's centred
+    covariates) laid out as the slopes: the hypothesis SS is ||R^-1 L G z||^2 with R R' = L G L',
+    and the residual SS is r'r - z'G z (Searle 1987, section 8.5, the general linear hypothesis).
+    Each permutation costs O(N p).
     """
     y, codes, k = _rows(y, codes, k)
     xx = np.asarray(x, dtype=np.float64)
     if xx.ndim == 1:
         xx = xx[:, None]
-    if xx.ndim != 2 or xx.shape[0] != y.size or not np.all(np.isfinite(xx)):
-        raise FitError(f"'x' must be a finite (N, p) array of covariate values, one row per row of 'y' "
-                       f"(got shape {np.shape(x)}).")
-    p = xx.shape[1]
-    n, ybar, _ = _cell_stats_from_rows(y, codes, k)
+    if xx.ndim != 2 or xx.shape != (y.size, model.p) or not np.all(np.isfinite(xx)):
+        raise FitError(f"'x' must be a finite (N, p) array of covariate values, one row per row of 'y' and one "
+                       f"column per covariate of the model (got shape {np.shape(x)}).")
+    p = model.p
+    n = np.bincount(codes, minlength=k)
+    if n.size != model.n.size or np.any(n != model.n):
+        raise FitError("internal: the rows given to the permutation F are not the rows of the fitted model")
     obs = np.flatnonzero(n > 0)
-    xbar = np.column_stack([_cell_stats_from_rows(xx[:, j], codes, k)[1] for j in range(p)])
-    d = xx - xbar[codes]
-    ey = y - ybar[codes]
-    sxx = np.zeros((k, p, p))
-    sxy = np.zeros((k, p))
-    for j in range(p):
-        sxy[:, j] = np.bincount(codes, weights=d[:, j] * ey, minlength=k)
-        for l in range(p):
-            sxx[:, j, l] = np.bincount(codes, weights=d[:, j] * d[:, l], minlength=k)
-    ref = xx.mean(axis=0) if reference is None else np.asarray(reference, dtype=np.float64).reshape(p)
-    model = describe_covariate_model(n, xbar, sxx, sxy, slopes, ref)
+    means = np.where(n > 0, np.nan_to_num(np.asarray(cell_means, dtype=np.float64)), 0.0)
+    d = xx - model.xbar[codes]
     g, m, big_n = model.g, model.m, y.size
     df2 = big_n - g - m
     if df2 < 1:
         raise FitError(
             f"the F test needs residual degrees of freedom (N - cells - slopes = {df2}); collect more rows."
         )
-    e_full = ey - np.einsum("ij,ij->i", d, model.slopes[codes])
+    e_full = (y - means[codes]) - np.einsum("ij,ij->i", d, model.slopes[codes])
     sse = float(e_full @ e_full)
     if not sse > 0.0:
         raise FitError("the covariance analysis fits every row exactly (no residual variation), so F is undefined.")
@@ -336,7 +331,7 @@ def _null_distribution_adjusted(
     beta = np.zeros(m)
     for c in obs:
         beta[model.index[c]] = model.slopes[c]
-    theta = np.concatenate([ybar[obs], beta])
+    theta = np.concatenate([means[obs], beta])
     try:
         chol = np.linalg.cholesky(L @ gram @ L.T)
     except np.linalg.LinAlgError as exc:
@@ -405,8 +400,8 @@ def permutation_f_test(
     notify=None,
     label: str = "",
     x=None,
-    slopes="common",
-    reference=None,
+    covariate_model=None,
+    cell_means=None,
 ) -> PermutationResult:
     """Permutation p value of the F for C mu = 0 (default: all cell means equal).
 
@@ -429,9 +424,10 @@ def permutation_f_test(
     never happens within ``n_permutations`` the p above is reported. ``progress`` and ``notify``
     are described in the module docstring; ``label`` names the test in those messages.
 
-    With covariates ``x`` (N, p) the model is the analysis of covariance (``slopes`` "common" or
-    "per-cell", or one of them per covariate) and C is a hypothesis about the adjusted cell means at ``reference`` (p values on
-    the scale of ``x``; default the covariates' means). The Freedman-Lane reduced model then keeps
+    With covariates ``x`` (N, p; offsets) the model is the fitted analysis of covariance given as
+    ``covariate_model`` (:func:`reporter.inference.covariate_model.covariate_model_of`) with the
+    outcome's ``cell_means`` (offsets), and C is a hypothesis about the adjusted cell means at the
+    model's reference values. The Freedman-Lane reduced model then keeps
     the covariates: its residuals are permuted and F of C recomputed on the full covariance
     model each time (Freedman & Lane 1983, Journal of Business & Economic Statistics 1, 292-298;
     Anderson & Robinson 2001, Australian & New Zealand Journal of Statistics 43, 75-88, who show
@@ -445,8 +441,10 @@ def permutation_f_test(
         dist = _null_distribution(y, codes, k, C, m, seed, stop_after=stop_after, progress=progress,
                                   notify=notify, label=label)
     else:
-        dist = _null_distribution_adjusted(y, codes, x, k, C, slopes, reference, m, seed, stop_after=stop_after,
-                                           progress=progress, notify=notify, label=label)
+        if covariate_model is None or cell_means is None:
+            raise FitError("a permutation F with covariates needs the fitted covariance model and the cell means")
+        dist = _null_distribution_adjusted(y, codes, x, k, C, covariate_model, cell_means, m, seed,
+                                           stop_after=stop_after, progress=progress, notify=notify, label=label)
     b = dist.n_extreme
     used = int(dist.null.size)
     p = b / used if dist.stopped else (b + 1.0) / (m + 1.0)

@@ -10,7 +10,7 @@ from scipy.linalg import null_space
 from reporter.errors import FitError
 from reporter.inference.permutation import permutation_f_test
 
-from ancova_cases import adjusting_rows, design_matrix, simulate, statsmodels_fit
+from ancova_cases import adjusting_rows, design_matrix, fitted_model, simulate, statsmodels_fit
 
 
 def _rss(X, y):
@@ -69,7 +69,8 @@ def test_freedman_lane_with_covariates_matches_direct_implementation(name):
     C = np.hstack([np.eye(k - 1), -np.ones((k - 1, 1))]) if C is None else np.asarray(C)
     reference = np.array([55.0]) if "at 55" in name else x.mean(axis=0)
     m = 199
-    res = permutation_f_test(y, cell, k, C, n_permutations=m, seed=31, x=x, slopes=mode, reference=reference)
+    model, means = fitted_model(cell, y, x, k, mode, reference)
+    res = permutation_f_test(y, cell, k, C, n_permutations=m, seed=31, x=x, covariate_model=model, cell_means=means)
     observed, extreme = _direct(cell, y, x, k, C, mode, reference, m, 31)
     assert res.statistic == pytest.approx(observed, rel=1e-9)
     assert res.n_extreme == extreme
@@ -83,7 +84,8 @@ def test_observed_f_matches_statsmodels_f_test():
     cell, y, x = simulate([6, 9, 8, 12, 7, 10], p=2, seed=99)
     k = 6
     C = np.array([[1.0, 1, 1, -1, -1, -1]]) / 3
-    res = permutation_f_test(y, cell, k, C, n_permutations=10, seed=1, x=x)
+    model, means = fitted_model(cell, y, x, k, "common")
+    res = permutation_f_test(y, cell, k, C, n_permutations=10, seed=1, x=x, covariate_model=model, cell_means=means)
     ref = statsmodels_fit(cell, y, x, k, "common").f_test(C @ adjusting_rows(k, 2, "common", x.mean(axis=0)))
     assert res.statistic == pytest.approx(float(ref.fvalue), rel=1e-9)
     assert (res.df1, res.df2) == (int(ref.df_num), int(ref.df_denom))
@@ -94,8 +96,10 @@ def test_sequential_stopping_and_seed_reproduce():
     h-th exceedance with p = h / l for a null effect."""
     cell, y, x = simulate([10, 10, 10], p=1, seed=3, effects=[0.0, 0.0, 0.0])
     C = np.array([[1.0, -1, 0], [0, 1, -1]])
-    a = permutation_f_test(y, cell, 3, C, n_permutations=2000, seed=5, x=x, stop_after=20)
-    b = permutation_f_test(y, cell, 3, C, n_permutations=2000, seed=5, x=x, stop_after=20)
+    model, means = fitted_model(cell, y, x, 3, "common")
+    kw = dict(n_permutations=2000, seed=5, x=x, stop_after=20, covariate_model=model, cell_means=means)
+    a = permutation_f_test(y, cell, 3, C, **kw)
+    b = permutation_f_test(y, cell, 3, C, **kw)
     assert a == b
     if a.stopped_early:
         assert a.p == 20 / a.n_permutations
@@ -110,7 +114,9 @@ def test_null_rejection_rate_is_near_alpha():
     runs = 400
     for s in range(runs):
         cell, y, x = simulate([5, 8, 6], p=1, seed=1000 + s, effects=[0.0, 0.0, 0.0], slopes=[0.8], hetero=False)
-        res = permutation_f_test(y, cell, 3, None, n_permutations=99, seed=s, x=x)
+        model, means = fitted_model(cell, y, x, 3, "common")
+        res = permutation_f_test(y, cell, 3, None, n_permutations=99, seed=s, x=x, covariate_model=model,
+                                 cell_means=means)
         hits += res.p <= 0.10
     band = 3.29 * np.sqrt(0.1 * 0.9 / runs)
     assert abs(hits / runs - 0.10) < band
@@ -119,5 +125,7 @@ def test_null_rejection_rate_is_near_alpha():
 def test_bad_covariate_array_refused():
     """Covariates of the wrong length are refused with a message naming 'x'."""
     cell, y, x = simulate([5, 5], p=1, seed=1)
+    model, means = fitted_model(cell, y, x, 2, "common")
     with pytest.raises(FitError, match="'x' must be"):
-        permutation_f_test(y, cell, 2, None, n_permutations=9, seed=1, x=x[:-1])
+        permutation_f_test(y, cell, 2, None, n_permutations=9, seed=1, x=x[:-1], covariate_model=model,
+                           cell_means=means)
