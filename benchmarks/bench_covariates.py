@@ -75,13 +75,15 @@ def write_rows(folder: Path, rows: int, fmt: str, seed: int = 20261202) -> Path:
 
 
 CHILD = """
-import json, sys, time
-t0 = time.perf_counter()
+import json, resource, sys, time
 from reporter.api import prepare
+def cpu():
+    r = resource.getrusage(resource.RUSAGE_SELF)
+    return r.ru_utime + r.ru_stime
+t0, c0 = time.perf_counter(), cpu()
 prep = prepare(sys.argv[1])
-t1 = time.perf_counter()
-import resource
-print(json.dumps({"seconds": t1 - t0, "n": prep.cells.n_total,
+t1, c1 = time.perf_counter(), cpu()
+print(json.dumps({"seconds": t1 - t0, "cpu": c1 - c0, "n": prep.cells.n_total,
                   "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}))
 """
 
@@ -102,16 +104,24 @@ def main() -> None:
     data = write_rows(args.folder, args.rows, args.format)
     covs = {0: "", 1: '[[covariates]]\nname = "pre"\n',
             2: '[[covariates]]\nname = "pre"\n[[covariates]]\nname = "age"\n'}
-    base = None
-    print(f"{args.rows:,} rows, {args.format}, median of {args.repeat} runs (intake and cell table only)")
+    plans = {}
     for p, text in covs.items():
-        plan = args.folder / f"plan-{p}.toml"
-        plan.write_text(textwrap.dedent(PLAN).format(path=data.name, covariates=text), encoding="utf-8")
-        runs = [run_once(plan) for _ in range(args.repeat)]
-        sec = statistics.median(r["seconds"] for r in runs)
-        mib = statistics.median(r["peak_mib"] for r in runs)
-        base = base or sec
-        print(f"  {p} covariates: {sec:7.2f} s  ({sec / base:4.2f}x)  peak {mib:6.0f} MiB  n = {runs[0]['n']:,}")
+        plans[p] = args.folder / f"plan-{args.format}-{p}.toml"
+        plans[p].write_text(textwrap.dedent(PLAN).format(path=data.name, covariates=text), encoding="utf-8")
+    runs: dict[int, list[dict]] = {p: [] for p in covs}
+    for _ in range(args.repeat):  # interleaved, so that a change of the machine's load hits all alike
+        for p in covs:
+            runs[p].append(run_once(plans[p]))
+    print(f"{args.rows:,} rows, {args.format}, median of {args.repeat} interleaved runs (intake and cell table only; "
+          "CPU = user + system time of all threads)")
+    base = base_cpu = None
+    for p in covs:
+        sec = statistics.median(r["seconds"] for r in runs[p])
+        cpu = statistics.median(r["cpu"] for r in runs[p])
+        mib = statistics.median(r["peak_mib"] for r in runs[p])
+        base, base_cpu = base or sec, base_cpu or cpu
+        print(f"  {p} covariates: {sec:6.2f} s wall ({sec / base:4.2f}x), {cpu:6.2f} s CPU ({cpu / base_cpu:4.2f}x), "
+              f"peak {mib:5.0f} MiB, n = {runs[p][0]['n']:,}")
 
 
 if __name__ == "__main__":
