@@ -87,6 +87,8 @@ class _PlanBuilder:
                       f"({listed}).")
         blocks.append(Paragraph(_lead("Design", design)))
         blocks.append(Paragraph(_lead("Data", self.data_words())))
+        if plan.covariates:
+            blocks.append(Paragraph(_lead("Covariates", self.covariate_words())))
         blocks.append(Paragraph(_lead("Model",
             f"The outcome, {plan.data.outcome}, will be modelled by a linear model with one mean per cell (the full "
             f"model, including all interactions), fitted by ordinary least squares, with {PARAM_WORDS[d.parameterization]}. "
@@ -144,6 +146,20 @@ class _PlanBuilder:
             text += f" Rows at these levels will be left out: {'; '.join(excluded)}."
         text += " A level in the data that the plan does not list will stop the analysis with a message."
         return text
+
+    def covariate_words(self) -> str:
+        """The plan's covariates as the analysis-plan document states them."""
+        parts = []
+        for c in self.plan.covariates:
+            slope = "one slope common to all cells" if c.slopes == "common" else "a separate slope in each cell"
+            at = ("the mean of the rows analysed" if c.adjust_to is None
+                  else f"the value {c.adjust_to_exact if c.adjust_to_exact.denominator == 1 else repr(c.adjust_to)}")
+            parts.append(f"{c.name} ({slope}; adjusted means at {at})")
+        many = len(parts) > 1
+        return (f"The model will adjust for {'the covariates' if many else 'the covariate'} {'; '.join(parts)} "
+                "(analysis of covariance): hypotheses about means will concern the adjusted means. Rows with a "
+                "missing covariate value will be left out and counted by reason; a value that is not a number will "
+                "stop the analysis with a message.")
 
     def model_section(self) -> Section:
         d = self.design

@@ -165,3 +165,27 @@ def test_random_text_files_agree(tmp_path_factory, values):
     assert np.all(np.abs(b.sxx - a.sxx) <= tol)
     ssy = np.sqrt(np.where(ok, mem.cells.ss, 0.0))
     assert np.all(np.abs(b.sxy - a.sxy) <= 1e-12 * scale * ssy[:, None] + 1e-300)
+
+
+def test_decimal_commas_and_unicode_minus(tmp_path):
+    """A ';'-separated file with decimal commas and U+2212 minus signs: the covariate is read by the
+    outcome's rules in both readers, to the same exact offsets."""
+    frame = simulated(45, 9)
+    lines = ["recall;schedule;pretest;age"]
+    for r in frame.itertuples():
+        pre = f"{r.pretest - 50:.1f}".replace(".", ",").replace("-", "\u2212")
+        lines.append(f"{str(r.recall).replace('.', ',')};{r.schedule};{pre};{int(r.age)}")
+    out = []
+    for reader in ("in-memory", "out-of-core"):
+        folder = tmp_path / reader
+        folder.mkdir()
+        plan = project(folder, "\n".join(lines) + "\n", COVS, reader=reader)
+        plan.write_text(plan.read_text(encoding="utf-8").replace(
+            'outcome = "recall"', 'outcome = "recall"\ndelimiter = ";"\ndecimal = ","'), encoding="utf-8")
+        out.append(prepare(plan))
+    mem, duck = out
+    expected = np.round(frame.pretest.to_numpy() - 50, 1)
+    np.testing.assert_allclose(mem.rows.covariate_arrays()[:, 0] + mem.data.covariates.pivot[0], expected, rtol=1e-12)
+    assert mem.data.covariates.pivot_text == duck.data.covariates.pivot_text
+    got = np.concatenate([x for _, _, x in duck.rows.batches(16)])
+    np.testing.assert_array_equal(got, mem.rows.covariate_arrays())

@@ -51,7 +51,6 @@ def test_canonical_mapping_and_round_trip(tmp_path):
 
 
 def test_lock_canonical_plan_carries_the_covariates(project):
-    from reporter.trail.lock import build_lock  # noqa: F401  (the lock writes plan_mapping as its canonical plan)
     from reporter.trail.lock import canonical_json, sha256_hex
 
     text = ONEWAY_PLAN.replace("[[hypotheses]]", '[[covariates]]\nname = "pre"\nadjust_to = 3\n\n[[hypotheses]]', 1)

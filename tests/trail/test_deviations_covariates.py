@@ -83,3 +83,13 @@ def test_plan_locked_without_covariates_then_given_one(tmp_path):
     assert "covariates" not in json.loads(lock_path(plan).read_text(encoding="utf-8"))["canonical_plan"]
     got = [(d.kind, d.subject) for d in _deviations(tmp_path, lock_path(plan), LOCKED)]
     assert got == [("covariate-added", "seed_mg")]
+
+
+def test_analysis_plan_document_states_the_covariates(tmp_path):
+    """The analysis-plan document of the lock names each covariate, its slopes and its reference value."""
+    text = LOCKED + '[[covariates]]\nname = "age_d"\nadjust_to = 21\nslopes = "per-cell"\n'
+    plan = write(tmp_path, text)
+    lock_plan(plan)
+    html = next(tmp_path.glob("*.analysis-plan.html")).read_text(encoding="utf-8")
+    assert ("The model will adjust for the covariates seed_mg (one slope common to all cells; adjusted means at the "
+            "mean of the rows analysed); age_d (a separate slope in each cell; adjusted means at the value 21)") in html
