@@ -525,6 +525,40 @@ def test_number_rule_in_sql_equals_the_plain_decimal_rule(tmp_path):
             assert float(val) == float(want), x
 
 
+@pytest.mark.parametrize("comma", [False, True], ids=["point", "comma"])
+def test_quick_decimal_read_only_takes_valid_numbers(tmp_path, comma):
+    """The one-cast read of common rows (``_quick_sql``) takes a text only when the Python rule
+    takes it too, and then gives exactly its value minus the pivot (Python's decimal module as
+    the reference); texts it leaves go through the full tests of ``_status_sql``."""
+    import decimal
+
+    import duckdb
+
+    text = TWO_WAY.replace('[data]', '[data]\ndecimal = ","\ndelimiter = ";"\nmissing = ["NA", "-99"]' if comma else '[data]')
+    plan = load_plan(write_plan(tmp_path, "d.csv", "out-of-core", text=text))
+    rnd = random.Random(7)
+    alphabet = "0123456789.,eE+-_ \t\n\u00a0\u2212xnfia\uff11"
+    texts = sorted({"".join(rnd.choice(alphabet) for _ in range(rnd.randint(0, 8))) for _ in range(30000)})
+    texts += ["+ 1", "- 1", "1 .5", "1. 5", " +.5 ", "-.", "+.", "-99", " -99 ", "1_000", "1e2", "1.2345",
+              "0" * 120 + "1", "1" * 17, "1" * 18 + ".5", "12345678901234567890", "\u22121.5", "1.5\n", "\t-2"]
+    pivot = decimal.Decimal("462.553")
+    q, offset = duck_outcome._quick_sql("y", plan, pivot, ["1.5", "2.25", "3.125"])
+    con = duckdb.connect()
+    con.execute("CREATE TABLE s (i INTEGER, y VARCHAR)")
+    con.executemany("INSERT INTO s VALUES (?, ?)", [[i, x] for i, x in enumerate(texts)])
+    got = con.execute(f"SELECT i, q, {offset} FROM (SELECT *, {q} AS q FROM s) ORDER BY i").fetchall()
+    taken = 0
+    for (i, value, off), x in zip(got, texts):
+        if value is None:
+            continue
+        taken += 1
+        want = duck_outcome._clean_number(x, plan)
+        assert want is not None, x
+        assert decimal.Decimal(want) == value, x
+        assert off == float(decimal.Decimal(want) - pivot), x
+    assert taken > 100
+
+
 # ---------------------------------------------------------------------------------------------
 # Whole reports from both readers
 

@@ -32,7 +32,7 @@ from reporter.intake.duck import covariates as cov_sql
 from reporter.intake.duck.connection import _close, _connect, _ident, _lit, _Progress, _quiet, _run, _short_error
 from reporter.intake.duck.files import _file_digest, _glob_digest, _read_header, _RowNumbers, matched_files
 from reporter.intake.duck.levels import _LEVEL_CAP, _factor_text_sql, _known_case, _level_codes
-from reporter.intake.duck.outcome import _check_spread, _clean_number, _is_numeric_type, _offset_sql, _refuse, _status_sql
+from reporter.intake.duck.outcome import _check_spread, _clean_number, _is_numeric_type, _offset_sql, _quick_sql, _refuse, _status_sql
 from reporter.intake.duck.rows import DuckRows
 
 
@@ -190,12 +190,14 @@ def load_out_of_core(plan, quiet: bool | None = None):
             pivot_raw = got[0][0] if got else None
 
         exact = ytext
+        quick = None
         if pivot_raw is None:
             pivot, pivot_text, value_sql = 0.0, "0", "NULL::DOUBLE"
         elif ytext:
             pv = decimal.Decimal(pivot_raw)
             pivot, pivot_text = float(pv), str(pv)
             value_sql, exact = _offset_sql(pv, head_texts)
+            quick = _quick_sql("y", plan, pv, head_texts)
         else:
             pivot = float(pivot_raw)
             pivot_text = repr(pivot)
@@ -211,18 +213,28 @@ def load_out_of_core(plan, quiet: bool | None = None):
         # One scan: the compact table (factor codes, outcome status, offset from the pivot).
         keep = [f"c{j}" for j in range(nf)] + [f"v{j}" for j in range(nf)]
         bad_sql = "t" if ytext else "CAST(y AS VARCHAR)"
+        codes = [f"{_known_case(plan, f, f'v{j}', source)} AS c{j}" for j, f in enumerate(plan.factors)]
+        if quick is None:
+            q_col, d_sql = [], f"CASE WHEN st = 0 THEN {value_sql} END"
+            layers = [", ".join(codes + [f"v{j}" for j in range(nf)] + ["y", f"{fast_sql} AS fast"] + cl1)]
+        else:  # the common row read by one DECIMAL cast first; the others tested as before
+            q_sql, q_value = quick
+            q_col, d_sql = ["q"], f"CASE WHEN q IS NOT NULL THEN {q_value} WHEN st = 0 THEN {value_sql} END"
+            carried = [c.rsplit(" AS ", 1)[-1] for c in cl1]  # the covariates' columns, passed on
+            layers = [", ".join(codes + [f"v{j}" for j in range(nf)] + ["y", f"{q_sql} AS q"] + cl1),
+                      ", ".join(keep + ["y", "q", f"(CASE WHEN q IS NOT NULL THEN true ELSE {fast_sql} END) AS fast"]
+                                + carried)]
         layers = [
             ", ".join([f"{fexprs[j]} AS v{j}" for j in range(nf)] + [layer0] + cl0),
-            ", ".join([f"{_known_case(plan, f, f'v{j}', source)} AS c{j}" for j, f in enumerate(plan.factors)]
-                      + [f"v{j}" for j in range(nf)] + ["y", f"{fast_sql} AS fast"] + cl1),
-            ", ".join(keep + ["y", "fast", f"{t_sql} AS t"] + cl2),
-            ", ".join(keep + ["y", "t", f"{st_sql} AS st", f"{yv_sql} AS yv"] + cl3),
+            *layers,
+            ", ".join(keep + ["y", *q_col, "fast", f"{t_sql} AS t"] + cl2),
+            ", ".join(keep + ["y", *q_col, "t", f"{st_sql} AS st", f"{yv_sql} AS yv"] + cl3),
         ]
         query = f"SELECT {layers[0]} FROM {scan}"
         for layer in layers[1:]:
             query = f"SELECT {layer} FROM ({query})"
         final = ", ".join([f"CAST(c{j} AS SMALLINT) AS c{j}" for j in range(nf)]
-                          + ["CAST(st AS TINYINT) AS st", f"CASE WHEN st = 0 THEN {value_sql} END AS d"] + cfinal)
+                          + ["CAST(st AS TINYINT) AS st", f"{d_sql} AS d"] + cfinal)
         with _Progress(con, "Reading the data", quiet):
             _run(con, f"CREATE TABLE obs AS SELECT {final} FROM ({query})", source)
         hasher.join()
