@@ -208,8 +208,10 @@ def test_nist_certified_values_out_of_core(name, tmp_path):
 # Row access against the in-memory answers and numpy / scipy
 
 
-@pytest.fixture
-def rows_pair(tmp_path):
+@pytest.fixture(params=["scans", "distinct"])
+def rows_pair(tmp_path, request, monkeypatch):
+    """Rows with many ties, answered by scans of the rows or from the distinct values."""
+    monkeypatch.setattr(duck_rows, "_DISTINCT_SHARE", 0.0 if request.param == "scans" else 1.0)
     rng = np.random.default_rng(7)
     n = 3000
     dose = rng.choice(["1", "2", "5"], n)
@@ -220,6 +222,7 @@ def rows_pair(tmp_path):
     (tmp_path / "d.csv").write_text(text, encoding="utf-8")
     mem, duck = both(tmp_path, "d.csv")
     cells, cell = memory_cells(load_plan(tmp_path / "m.toml"), mem)
+    assert (duck.row_access._distinct() is not None) == (request.param == "distinct")
     return mem.y, cell, cells, duck.row_access, mem.rows
 
 
@@ -300,6 +303,7 @@ def test_order_statistics_when_buckets_must_be_refined(rows_pair, monkeypatch):
 
     monkeypatch.setattr(duck_rows.DuckRows, "_refine", counted)
     rows._medians = None
+    rows._distinct_state = False  # the bucket search, whichever route the fixture chose
     assert_close(rows.medians(), np.array([np.median(y[cell == c]) for c in range(6)]))
     scale = np.array([2.0, 3.0, 1.0, 4.0, 2.5, 5.0])
     probs = np.linspace(0.0, 1.0, 41)

@@ -1,6 +1,13 @@
 """The row-access questions (:mod:`reporter.intake.rows`) answered by SQL over the compact table
 of :mod:`.reader`: medians, deviations, rank sums, order statistics and quantiles, the outlier
-screen and the Shapiro-Wilk sample."""
+screen and the Shapiro-Wilk sample.
+
+**Tied values.** When the analysed values take few distinct values (at most
+:data:`_DISTINCT_SHARE` of the rows by DuckDB's HyperLogLog estimate, as data written with a few
+decimals do), one hash aggregate gives each distinct value with its number of rows in each cell
+(:class:`_Distinct`), fetched into numpy; medians, order statistics, quantiles, deviations and
+rank sums are then exact answers from those counts instead of further scans of the rows. The
+outlier screen and the sample need the rows themselves and always scan them."""
 
 from __future__ import annotations
 
@@ -46,6 +53,7 @@ class DuckRows:
         self._finalizer = weakref.finalize(self, _close, con, folder) if owner else weakref.finalize(self, con.close)
         self._lock = threading.Lock()
         self._medians: np.ndarray | None = None
+        self._distinct_state: _Distinct | bool | None = None  # None: not yet decided; False: not used
 
     def close(self) -> None:
         self._finalizer()
@@ -61,6 +69,29 @@ class DuckRows:
     def _observed(self) -> dict[int, int]:
         return {c: int(m) for c, m in enumerate(self._counts.tolist()) if m > 0}
 
+    def _distinct(self) -> _Distinct | None:
+        """The distinct values with their counts per cell, when they are few (see the module
+        docstring); decided and fetched once."""
+        if self._distinct_state is None:
+            self._distinct_state = False
+            if 0 < self.n < (1 << 30) and self.k <= _WIDE_CELLS:
+                est = self._q("SELECT approx_count_distinct(d) FROM kept")[0][0]
+                if est is not None and est <= _DISTINCT_SHARE * self.n and est * (self.k + 1) <= _DISTINCT_CELLS:
+                    counts = ", ".join(f"count(*) FILTER (WHERE cell = {j}) AS c{j}" for j in range(self.k))
+                    got = self._np(f"SELECT d, {counts} FROM kept GROUP BY d ORDER BY d")
+                    self._distinct_state = _Distinct(
+                        np.asarray(got["d"], dtype=np.float64),
+                        np.column_stack([np.asarray(got[f"c{j}"], dtype=np.int64) for j in range(self.k)]))
+        return self._distinct_state or None
+
+    def _value_stats(self, source: str, bounds: dict[int, tuple[float, float]], counts: dict[int, int]):
+        """Order statistics of the values: from the distinct values when fetched, else by the
+        bucket search of :meth:`_order_stats` over ``source``."""
+        dist = self._distinct()
+        if dist is not None:
+            return dist.order_stats
+        return lambda positions: self._order_stats(source, positions, bounds, counts)
+
     def medians(self) -> np.ndarray:
         """Per-cell medians from exact order statistics (DuckDB's median aggregate would hold
         every value of a cell in memory); computed once."""
@@ -68,7 +99,8 @@ class DuckRows:
             out = np.full(self.k, np.nan)
             counts = self._observed()
             bounds = {c: (self._lo[c], self._hi[c]) for c in counts}
-            for c, q in self._quantiles(counts, "SELECT cell, d AS v FROM kept", [0.5], bounds).items():
+            stats = self._value_stats("SELECT cell, d AS v FROM kept", bounds, counts)
+            for c, q in self._quantiles(counts, [0.5], stats).items():
                 out[c] = q[0]
             self._medians = out
         return self._medians.copy()
@@ -77,7 +109,12 @@ class DuckRows:
         return self.deviation_stats_many([centre])[0]
 
     def deviation_stats_many(self, centres: Sequence[np.ndarray]) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
-        """:meth:`deviation_stats` about each centre, all from the same two scans."""
+        """:meth:`deviation_stats` about each centre, all from the same two scans (or from the
+        distinct values, see :meth:`_Distinct.deviation_stats`)."""
+        dist = self._distinct()
+        centres = [np.asarray(c, dtype=np.float64) for c in centres]
+        if dist is not None and all(np.all(np.isfinite(c[self._counts > 0])) for c in centres):
+            return [dist.deviation_stats(c) for c in centres]
         with self._lock:
             return _moments(self._con, [f"abs(d - {_doubles(c)}[cell + 1])" for c in centres], "kept", self.k)[0]
 
@@ -85,7 +122,11 @@ class DuckRows:
         """Rank sums with mid-ranks for ties, in exact integers (twice each sum): a value shared
         by t rows that has ``below`` rows under it gets rank (2·below + t + 1)/2; the tie term
         is Σ(t³ − t). Up to :data:`_WIDE_CELLS` cells this is one hash aggregate of the rows by
-        value (with a count per cell) and one running sum over the distinct values."""
+        value (with a count per cell) and one running sum over the distinct values; with the
+        distinct values fetched, that sum in numpy."""
+        dist = self._distinct()
+        if dist is not None:
+            return dist.rank_sums()
         if self.k <= _WIDE_CELLS:
             counts = ", ".join(f"count(*) FILTER (WHERE cell = {j}) AS c{j}" for j in range(self.k))
             sums = ", ".join(f"sum(CAST(c{j} AS HUGEINT) * (2 * CAST(below AS HUGEINT) + t + 1))" for j in range(self.k))
@@ -195,10 +236,10 @@ class DuckRows:
                 for q, w in targets[(c, b)]:
                     result[(c, q)] = float(vals[start + w])
 
-    def _quantiles(self, counts: dict[int, int], source: str, probs: Sequence[float],
-                   bounds: dict[int, tuple[float, float]]) -> dict[int, np.ndarray]:
+    def _quantiles(self, counts: dict[int, int], probs: Sequence[float], order_stats) -> dict[int, np.ndarray]:
         """Type 7 quantiles per cell (numpy's default: h = (n − 1)p, linear interpolation written
-        as numpy writes it), from the order statistics of one sort."""
+        as numpy writes it), from the order statistics ``order_stats`` gives: a function of
+        {cell: [0-based ranks]} returning {(cell, rank): value}."""
         p = np.asarray(probs, dtype=np.float64)
         plan = {}
         for c, n in counts.items():
@@ -206,7 +247,7 @@ class DuckRows:
             lo = np.floor(h).astype(np.int64)
             hi = np.minimum(lo + 1, n - 1)
             plan[c] = (lo, hi, h - lo)
-        stats = self._order_stats(source, {c: [*lo.tolist(), *hi.tolist()] for c, (lo, hi, _) in plan.items()}, bounds, counts)
+        stats = order_stats({c: [*lo.tolist(), *hi.tolist()] for c, (lo, hi, _) in plan.items()})
         out = {}
         for c, (lo, hi, t) in plan.items():
             a = np.array([stats[(c, int(i))] for i in lo])
@@ -230,13 +271,16 @@ class DuckRows:
         n = int(self._counts[usable].sum())
         if n == 0:
             return np.full(len(probs), np.nan)
+        dist = self._distinct()
+        if dist is not None:
+            return self._quantiles({0: n}, probs, dist.pooled_stats(means, scale, np.flatnonzero(usable)))[0]
         m, s = _doubles(means), _doubles(scale)
         source = (f"SELECT 0 AS cell, (d - {m}[cell + 1]) / {s}[cell + 1] AS v FROM kept "
                   f"WHERE isfinite({s}[cell + 1]) AND {s}[cell + 1] > 0")
         with np.errstate(invalid="ignore", divide="ignore"):
             lo = float(np.min(((self._lo - means) / scale)[usable]))
             hi = float(np.max(((self._hi - means) / scale)[usable]))
-        return self._quantiles({0: n}, source, probs, {0: (lo, hi)})[0]
+        return self._quantiles({0: n}, probs, lambda positions: self._order_stats(source, positions, {0: (lo, hi)}, {0: n}))[0]
 
     def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
         """Small cells: every value in increasing order; large cells: ``max_points`` quantiles."""
@@ -244,16 +288,19 @@ class DuckRows:
         small = [c for c, n in counts.items() if n <= max_points]
         large = {c: n for c, n in counts.items() if n > max_points}
         values: dict[int, Sequence[float]] = {}
-        if small:
+        dist = self._distinct()
+        if small and dist is not None:
+            values.update({c: dist.cell_values(c) for c in small})
+        elif small:
             for c, vals in self._q(
                 f"SELECT cell, list(d ORDER BY d) FROM kept WHERE cell IN ({', '.join(map(str, small))}) GROUP BY cell"
             ):
                 values[c] = vals
         if large:
             listed = ", ".join(map(str, large))
-            values.update(self._quantiles(large, f"SELECT cell, d AS v FROM kept WHERE cell IN ({listed})",
-                                          np.linspace(0.0, 1.0, max_points),
-                                          {c: (self._lo[c], self._hi[c]) for c in large}))
+            stats = self._value_stats(f"SELECT cell, d AS v FROM kept WHERE cell IN ({listed})",
+                                      {c: (self._lo[c], self._hi[c]) for c in large}, large)
+            values.update(self._quantiles(large, np.linspace(0.0, 1.0, max_points), stats))
         return tuple(
             CellPoints(n=int(counts.get(c, 0)), values=tuple(float(v) for v in values.get(c, ())), summarized=c in large)
             for c in range(self.k)
@@ -319,3 +366,82 @@ class DuckRows:
 _MAX_BUCKETS = 1 << 20  # histogram buckets per cell at most when locating order statistics
 _FETCH = 1_000_000  # values fetched into Python at most per refinement step
 _WIDE_CELLS = 64  # at most this many cells: rank sums from one aggregate with a count column per cell
+_DISTINCT_SHARE = 0.125  # distinct values at most this share of the rows: answers from _Distinct
+_DISTINCT_CELLS = 4_000_000  # and distinct values x (cells + 1) at most this (about 32 MB fetched)
+
+
+class _Distinct:
+    """The analysed values as distinct values in increasing order (``values``), with the number
+    of rows of each value in each cell (``counts``, shape (D, k)); every answer exact."""
+
+    def __init__(self, values: np.ndarray, counts: np.ndarray):
+        self.values, self.counts = values, counts
+        self.cum = np.cumsum(counts, axis=0)  # rows of each cell at or below each value
+
+    def order_stats(self, positions: dict[int, list[int]]) -> dict[tuple[int, int], float]:
+        """The values at 0-based ranks within each cell: the first value whose running count
+        exceeds the rank."""
+        out = {}
+        for c, ranks in positions.items():
+            r = np.asarray(ranks, dtype=np.int64)
+            got = self.values[np.searchsorted(self.cum[:, c], r, side="right")]
+            out.update({(c, q): v for q, v in zip(r.tolist(), got.tolist())})
+        return out
+
+    def pooled_stats(self, means: np.ndarray, scale: np.ndarray, cells: np.ndarray):
+        """Order statistics (key 0) of (value − means_c)/scale_c pooled over ``cells``, each
+        value weighted by its rows in the cell (the same floating-point operations as the SQL
+        of :meth:`DuckRows.residual_quantiles`)."""
+        parts, weights = [], []
+        for c in cells.tolist():
+            m = self.counts[:, c] > 0
+            parts.append((self.values[m] - means[c]) / scale[c])
+            weights.append(self.counts[m, c])
+        v = np.concatenate(parts)
+        order = np.argsort(v, kind="stable")
+        v, cum = v[order], np.cumsum(np.concatenate(weights)[order])
+
+        def stats(positions: dict[int, list[int]]) -> dict[tuple[int, int], float]:
+            r = np.asarray(positions[0], dtype=np.int64)
+            return {(0, q): x for q, x in zip(r.tolist(), v[np.searchsorted(cum, r, side="right")].tolist())}
+
+        return stats
+
+    def cell_values(self, c: int) -> list[float]:
+        """Every value of cell ``c`` in increasing order."""
+        m = self.counts[:, c] > 0
+        return np.repeat(self.values[m], self.counts[m, c]).tolist()
+
+    def deviation_stats(self, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Per cell (n, mean, centred SS) of |x − centre_c| by the corrected two-pass algorithm of
+        :func:`~reporter.intake.duck.cell_table._moments` (Chan, Golub & LeVeque 1983, eq. 1.7),
+        each distinct value weighted by its rows: exactly rounded sums (``math.fsum``) of
+        count × term."""
+        k = self.counts.shape[1]
+        n = self.counts.sum(axis=0)
+        mean, ss = np.full(k, np.nan), np.full(k, np.nan)
+        for c in np.flatnonzero(n).tolist():
+            m = self.counts[:, c] > 0
+            w = self.counts[m, c].astype(np.float64)
+            v = np.abs(self.values[m] - centre[c])
+            nc = int(n[c])
+            m0 = math.fsum((w * v).tolist()) / nc
+            e = v - m0
+            s1, s2 = math.fsum((w * e).tolist()), math.fsum((w * (e * e)).tolist())
+            mean[c] = m0 + s1 / nc
+            ss[c] = max(s2 - s1 * s1 / nc, 0.0)
+        return n.astype(np.int64), mean, ss
+
+    def rank_sums(self) -> RankSums:
+        """Mid-rank sums as in :meth:`DuckRows.rank_sums`, in exact integers (int64 holds them:
+        the rows number under 2^30)."""
+        t = self.counts.sum(axis=1)
+        below = np.cumsum(t) - t
+        twice = (self.counts * (2 * below + t + 1)[:, None]).sum(axis=0)
+        tied = t[t > 1]
+        if tied.size and int(tied.max()) >= 1 << 21:  # t^3 beyond int64
+            tie = sum(x * x * x - x for x in tied.tolist())
+        else:
+            tie = sum(((tied - 1) * tied * (tied + 1)).tolist())
+        rank_sum = np.array([float(Fraction(int(x), 2)) for x in twice.tolist()])
+        return RankSums(rank_sum=rank_sum, tie_term=float(tie), n=int(t.sum()))
