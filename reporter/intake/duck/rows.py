@@ -6,7 +6,8 @@ screen and the Shapiro-Wilk sample.
 :data:`_DISTINCT_SHARE` of the rows by DuckDB's HyperLogLog estimate, as data written with a few
 decimals do), one hash aggregate gives each distinct value with its number of rows in each cell
 (:class:`_Distinct`), fetched into numpy; medians, order statistics, quantiles, deviations and
-rank sums are then exact answers from those counts instead of further scans of the rows. The
+rank sums are then exact answers from those counts instead of further scans of the rows (the
+deviations by compensated sums over the distinct values, weighted by their counts). The
 outlier screen and the sample need the rows themselves and always scan them."""
 
 from __future__ import annotations
@@ -78,7 +79,9 @@ class DuckRows:
                 est = self._q("SELECT approx_count_distinct(d) FROM kept")[0][0]
                 if est is not None and est <= _DISTINCT_SHARE * self.n and est * (self.k + 1) <= _DISTINCT_CELLS:
                     counts = ", ".join(f"count(*) FILTER (WHERE cell = {j}) AS c{j}" for j in range(self.k))
-                    got = self._np(f"SELECT d, {counts} FROM kept GROUP BY d ORDER BY d")
+                    with self._lock:
+                        self._con.execute(f"CREATE TEMP TABLE distinct_values AS SELECT d, {counts} FROM kept GROUP BY d")
+                    got = self._np("SELECT * FROM distinct_values ORDER BY d")
                     self._distinct_state = _Distinct(
                         np.asarray(got["d"], dtype=np.float64),
                         np.column_stack([np.asarray(got[f"c{j}"], dtype=np.int64) for j in range(self.k)]))
@@ -110,13 +113,35 @@ class DuckRows:
 
     def deviation_stats_many(self, centres: Sequence[np.ndarray]) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
         """:meth:`deviation_stats` about each centre, all from the same two scans (or from the
-        distinct values, see :meth:`_Distinct.deviation_stats`)."""
-        dist = self._distinct()
+        distinct values, see :meth:`_weighted_deviation_stats`)."""
         centres = [np.asarray(c, dtype=np.float64) for c in centres]
-        if dist is not None and all(np.all(np.isfinite(c[self._counts > 0])) for c in centres):
-            return [dist.deviation_stats(c) for c in centres]
+        if self._distinct() is not None:
+            return self._weighted_deviation_stats(centres)
         with self._lock:
             return _moments(self._con, [f"abs(d - {_doubles(c)}[cell + 1])" for c in centres], "kept", self.k)[0]
+
+    def _weighted_deviation_stats(self, centres: Sequence[np.ndarray]) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+        """Per cell (n, mean, centred SS) of |x − centre_c| by the corrected two-pass algorithm of
+        :func:`~reporter.intake.duck.cell_table._moments` (Chan, Golub & LeVeque 1983, eq. 1.7),
+        over the distinct values, each weighted by its rows in the cell: n_c = Σ w, m0 =
+        Σ w·|x − centre_c| / n_c, then Σ w·e and Σ w·e² with e = |x − centre_c| − m0, all
+        compensated sums (``fsum``) in two scans of the distinct values."""
+        cells = [c for c in range(self.k) if self._counts[c] > 0]
+        n = self._counts.copy()
+        terms = [(i, c, f"abs(d - CAST('{float(centre[c])!r}' AS DOUBLE))") for i, centre in enumerate(centres) for c in cells]
+        out = [(n.copy(), np.full(self.k, np.nan), np.full(self.k, np.nan)) for _ in centres]
+        if not terms:
+            return out
+        first = self._q("SELECT " + ", ".join(f"fsum(c{c} * {v})" for _, c, v in terms) + " FROM distinct_values")[0]
+        m0 = [float(s) / int(n[c]) for s, (_, c, _) in zip(first, terms)]
+        es = [f"({v} - CAST('{m!r}' AS DOUBLE))" for m, (_, _, v) in zip(m0, terms)]
+        second = self._q("SELECT " + ", ".join(f"fsum(c{c} * {e}), fsum(c{c} * {e} * {e})"
+                                               for e, (_, c, _) in zip(es, terms)) + " FROM distinct_values")[0]
+        for j, (i, c, _) in enumerate(terms):
+            s1, s2 = second[2 * j], second[2 * j + 1]
+            out[i][1][c] = m0[j] + s1 / n[c]
+            out[i][2][c] = max(s2 - s1 * s1 / n[c], 0.0)
+        return out
 
     def rank_sums(self) -> RankSums:
         """Rank sums with mid-ranks for ties, in exact integers (twice each sum): a value shared
@@ -411,26 +436,6 @@ class _Distinct:
         """Every value of cell ``c`` in increasing order."""
         m = self.counts[:, c] > 0
         return np.repeat(self.values[m], self.counts[m, c]).tolist()
-
-    def deviation_stats(self, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Per cell (n, mean, centred SS) of |x − centre_c| by the corrected two-pass algorithm of
-        :func:`~reporter.intake.duck.cell_table._moments` (Chan, Golub & LeVeque 1983, eq. 1.7),
-        each distinct value weighted by its rows: exactly rounded sums (``math.fsum``) of
-        count × term."""
-        k = self.counts.shape[1]
-        n = self.counts.sum(axis=0)
-        mean, ss = np.full(k, np.nan), np.full(k, np.nan)
-        for c in np.flatnonzero(n).tolist():
-            m = self.counts[:, c] > 0
-            w = self.counts[m, c].astype(np.float64)
-            v = np.abs(self.values[m] - centre[c])
-            nc = int(n[c])
-            m0 = math.fsum((w * v).tolist()) / nc
-            e = v - m0
-            s1, s2 = math.fsum((w * e).tolist()), math.fsum((w * (e * e)).tolist())
-            mean[c] = m0 + s1 / nc
-            ss[c] = max(s2 - s1 * s1 / nc, 0.0)
-        return n.astype(np.int64), mean, ss
 
     def rank_sums(self) -> RankSums:
         """Mid-rank sums as in :meth:`DuckRows.rank_sums`, in exact integers (int64 holds them:
