@@ -72,13 +72,13 @@ def main() -> None:
                 else:
                     cmd = ours(p, folder / f"out-{fmt}-{n}-{reader}", "json")
                 runs[reader] = median_measure(cmd, args.repeat)
-            (t_mem, m_mem), (t_ooc, m_ooc) = runs["in-memory"], runs["out-of-core"]
+            (t_mem, m_mem, _), (t_ooc, m_ooc, _) = runs["in-memory"], runs["out-of-core"]
             print(f"| {fmt} | {n:,} | {mb:.1f} | {t_mem:.2f} | {m_mem:.0f} | {t_ooc:.2f} | {m_ooc:.0f} | "
                   f"{t_ooc / t_mem:.2f} |", flush=True)
             if t_ooc < t_mem and crossover[fmt] is None:
                 crossover[fmt] = mb
             if args.reader_only and n == sizes[-1]:
-                t_bare, m_bare = median_measure([sys.executable, "-c", BARE_DUCKDB, str(data)], args.repeat)
+                t_bare, m_bare, _ = median_measure([sys.executable, "-c", BARE_DUCKDB, str(data)], args.repeat)
                 print(f"| {fmt} bare DuckDB GROUP BY | {n:,} | {mb:.1f} | | | {t_bare:.2f} | {m_bare:.0f} | "
                       f"reader ÷ bare {t_ooc / t_bare:.2f} |", flush=True)
     for fmt, mb in crossover.items():

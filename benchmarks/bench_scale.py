@@ -1,9 +1,11 @@
 """How the whole run scales with the number of rows, against bare pipelines on the same files.
 
 One table, measured in one run. Every figure comes from its own child process, started as a user
-starts it (imports included) and measured from outside: wall time around the process, peak
-resident memory from ``os.wait4`` (the child's own ``ru_maxrss``), and the sizes of the files it
-wrote.
+starts it (imports included) and measured from outside: wall time around the process, CPU time
+(user + system, all threads) and peak resident memory from ``os.wait4`` (the child's own
+``ru_utime``, ``ru_stime`` and ``ru_maxrss``), and the sizes of the files it wrote. The package
+is byte-compiled first (``compileall``), as an installed package is, so that no run pays for
+compiling its sources (``PYTHONDONTWRITEBYTECODE`` would otherwise make every run do it).
 
 Rows of the table:
 
@@ -64,8 +66,8 @@ assert table.shape[0] == 2
 """
 
 
-def measure(cmd: list[str]) -> tuple[float, float]:
-    """Wall seconds and peak RSS (MB) of one child process."""
+def measure(cmd: list[str]) -> tuple[float, float, float]:
+    """Wall seconds, peak RSS (MB) and CPU seconds (user + system) of one child process."""
     t0 = time.perf_counter()
     proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     _, status, usage = os.wait4(proc.pid, 0)
@@ -73,7 +75,7 @@ def measure(cmd: list[str]) -> tuple[float, float]:
     err = proc.stderr.read().decode(errors="replace") if proc.stderr else ""
     if status != 0:
         raise SystemExit(f"failed ({status}): {' '.join(cmd)}\n{err}")
-    return elapsed, usage.ru_maxrss / 1024
+    return elapsed, usage.ru_maxrss / 1024, usage.ru_utime + usage.ru_stime
 
 
 def ours(plan: Path, out: Path, formats: str) -> list[str]:
@@ -84,17 +86,22 @@ def size_mb(path: Path) -> str:
     return f"{path.stat().st_size / 1e6:.2f}" if path.exists() else "-"
 
 
-def row(label: str, n: int, t: float, rss: float, out: Path | None = None, ref: float | None = None) -> None:
+def row(label: str, n: int, t: float, rss: float, out: Path | None = None, ref: float | None = None,
+        cpu: float | None = None) -> None:
     sizes = ["-", "-", "-"]
     if out is not None:
         sizes = [size_mb(out / name) for name in ("report.html", "results.json", "report.pdf")]
     ratio = f"{t / ref:6.2f}" if ref else "     -"
-    print(f"| {label:<42} | {n:>11,} | {t:8.2f} | {ratio} | {rss:8.0f} | {sizes[0]:>7} | {sizes[1]:>7} |", flush=True)
+    cpu_s = f"{cpu:6.2f}" if cpu is not None else "     -"
+    print(f"| {label:<42} | {n:>11,} | {t:8.2f} | {ratio} | {cpu_s} | {rss:8.0f} | {sizes[0]:>7} | {sizes[1]:>7} |",
+          flush=True)
 
 
-def median_measure(cmd: list[str], repeat: int) -> tuple[float, float]:
+def median_measure(cmd: list[str], repeat: int) -> tuple[float, float, float]:
+    """Median wall time, largest peak RSS and median CPU time over ``repeat`` runs."""
     runs = [measure(cmd) for _ in range(repeat)]
-    return statistics.median(t for t, _ in runs), max(m for _, m in runs)
+    return (statistics.median(t for t, _, _ in runs), max(m for _, m, _ in runs),
+            statistics.median(c for _, _, c in runs))
 
 
 def main() -> None:
@@ -110,36 +117,38 @@ def main() -> None:
     folder.mkdir(parents=True, exist_ok=True)
     print(f"data in {folder}; python {sys.version.split()[0]}; {os.cpu_count()} cores; "
           f"load average before: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
-    print("| what | rows | wall s | ratio | peak MB | html MB | json MB |")
-    print("|---|---|---|---|---|---|---|")
+    subprocess.run([sys.executable, "-m", "compileall", "-q", str(HERE.parent / "reporter")], check=True,
+                   stdout=subprocess.DEVNULL)
+    print("| what | rows | wall s | ratio | CPU s | peak MB | html MB | json MB |")
+    print("|---|---|---|---|---|---|---|---|")
     sizes = [n for n in (10**3, 10**4, 10**5, 10**6, 10**7) if n <= args.max_rows]
     base = None
     for n in [] if args.ratios else sizes:
         data = write_rows(folder, n, "parquet")
         plan = write_plan(folder, data)
         out = folder / f"out-{n}"
-        t, m = median_measure(ours(plan, out, "html,json"), args.repeat)
+        t, m, c = median_measure(ours(plan, out, "html,json"), args.repeat)
         base = base or t
-        row("default plan, Parquet, html,json (÷ 10^3 run)", n, t, m, out, base)
+        row("default plan, Parquet, html,json (÷ 10^3 run)", n, t, m, out, base, c)
     big = sizes[-1]
     for fmt in ("parquet", "csv"):
         data = write_rows(folder, big, fmt)
         plan = write_plan(folder, data)
         out = folder / f"out-json-{fmt}"
-        t_bare, m_bare = median_measure([sys.executable, "-c", BARE_DUCKDB, str(data)], args.repeat)
-        t_ours, m_ours = median_measure(ours(plan, out, "json"), args.repeat)
-        row(f"bare DuckDB GROUP BY, {fmt}", big, t_bare, m_bare, None, t_bare)
-        row(f"default plan, {fmt}, json (÷ DuckDB)", big, t_ours, m_ours, out, t_bare)
+        t_bare, m_bare, c_bare = median_measure([sys.executable, "-c", BARE_DUCKDB, str(data)], args.repeat)
+        t_ours, m_ours, c_ours = median_measure(ours(plan, out, "json"), args.repeat)
+        row(f"bare DuckDB GROUP BY, {fmt}", big, t_bare, m_bare, None, t_bare, c_bare)
+        row(f"default plan, {fmt}, json (÷ DuckDB)", big, t_ours, m_ours, out, t_bare, c_ours)
         if not args.ratios:
-            t_sm, m_sm = median_measure([sys.executable, "-c", PANDAS_STATSMODELS, str(data)], args.repeat)
-            row(f"pandas + statsmodels, {fmt} (÷ DuckDB)", big, t_sm, m_sm, None, t_bare)
+            t_sm, m_sm, c_sm = median_measure([sys.executable, "-c", PANDAS_STATSMODELS, str(data)], args.repeat)
+            row(f"pandas + statsmodels, {fmt} (÷ DuckDB)", big, t_sm, m_sm, None, t_bare, c_sm)
     if args.huge:
         n = 10**8
         data = write_rows(folder, n, "parquet")
         plan = write_plan(folder, data)
         out = folder / "out-huge"
-        t, m = measure(ours(plan, out, "json"))
-        row("default plan, Parquet, json (10^8)", n, t, m, out)
+        t, m, c = measure(ours(plan, out, "json"))
+        row("default plan, Parquet, json (10^8)", n, t, m, out, cpu=c)
     print(f"load average after: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     if args.folder is None:
         shutil.rmtree(folder, ignore_errors=True)

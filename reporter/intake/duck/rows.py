@@ -12,6 +12,7 @@ outlier screen and the sample need the rows themselves and always scan them."""
 
 from __future__ import annotations
 
+import itertools
 import math
 import threading
 import weakref
@@ -55,6 +56,7 @@ class DuckRows:
         self._lock = threading.Lock()
         self._medians: np.ndarray | None = None
         self._distinct_state: _Distinct | bool | None = None  # None: not yet decided; False: not used
+        self._distinct_name = f"distinct_values_{next(_TABLES)}"
 
     def close(self) -> None:
         self._finalizer()
@@ -80,8 +82,8 @@ class DuckRows:
                 if est is not None and est <= _DISTINCT_SHARE * self.n and est * (self.k + 1) <= _DISTINCT_CELLS:
                     counts = ", ".join(f"count(*) FILTER (WHERE cell = {j}) AS c{j}" for j in range(self.k))
                     with self._lock:
-                        self._con.execute(f"CREATE TEMP TABLE distinct_values AS SELECT d, {counts} FROM kept GROUP BY d")
-                    got = self._np("SELECT * FROM distinct_values ORDER BY d")
+                        self._con.execute(f"CREATE TEMP TABLE {self._distinct_name} AS SELECT d, {counts} FROM kept GROUP BY d")
+                    got = self._np(f"SELECT * FROM {self._distinct_name} ORDER BY d")
                     self._distinct_state = _Distinct(
                         np.asarray(got["d"], dtype=np.float64),
                         np.column_stack([np.asarray(got[f"c{j}"], dtype=np.int64) for j in range(self.k)]))
@@ -132,11 +134,11 @@ class DuckRows:
         out = [(n.copy(), np.full(self.k, np.nan), np.full(self.k, np.nan)) for _ in centres]
         if not terms:
             return out
-        first = self._q("SELECT " + ", ".join(f"fsum(c{c} * {v})" for _, c, v in terms) + " FROM distinct_values")[0]
+        first = self._q("SELECT " + ", ".join(f"fsum(c{c} * {v})" for _, c, v in terms) + f" FROM {self._distinct_name}")[0]
         m0 = [float(s) / int(n[c]) for s, (_, c, _) in zip(first, terms)]
         es = [f"({v} - CAST('{m!r}' AS DOUBLE))" for m, (_, _, v) in zip(m0, terms)]
         second = self._q("SELECT " + ", ".join(f"fsum(c{c} * {e}), fsum(c{c} * {e} * {e})"
-                                               for e, (_, c, _) in zip(es, terms)) + " FROM distinct_values")[0]
+                                               for e, (_, c, _) in zip(es, terms)) + f" FROM {self._distinct_name}")[0]
         for j, (i, c, _) in enumerate(terms):
             s1, s2 = second[2 * j], second[2 * j + 1]
             out[i][1][c] = m0[j] + s1 / n[c]
@@ -391,6 +393,7 @@ class DuckRows:
 _MAX_BUCKETS = 1 << 20  # histogram buckets per cell at most when locating order statistics
 _FETCH = 1_000_000  # values fetched into Python at most per refinement step
 _WIDE_CELLS = 64  # at most this many cells: rank sums from one aggregate with a count column per cell
+_TABLES = itertools.count()  # names of the temporary tables of distinct values
 _DISTINCT_SHARE = 0.125  # distinct values at most this share of the rows: answers from _Distinct
 _DISTINCT_CELLS = 4_000_000  # and distinct values x (cells + 1) at most this (about 32 MB fetched)
 
