@@ -15,6 +15,20 @@
 Types I and II compare nested models fitted to the cell means by least squares with weights n_c;
 the within-cell SS is common to every model, so the cell statistics suffice
 (Searle 1987, section 4.2).
+
+With covariates (the analysis of covariance; Searle 1987, section 9.2; Maxwell, Delaney & Kelley
+(2018), *Designing Experiments and Analyzing Data*, 3rd ed., chapter 9) each covariate has a row:
+
+* Type I enters the covariates first (in plan order), then the factor terms, each adjusted for
+  everything before it;
+* Type II adjusts each factor term for the covariates and the terms that do not contain it, and
+  each covariate for every factor term and the other covariates;
+* Type III tests the factor terms as contrasts of the adjusted cell means (their covariance is
+  ``ModelFit.unscaled_cov``), and a covariate by the test that its slope (all its slopes, with
+  per-cell slopes) is zero.
+
+The nested models with covariates are fitted on compressed pseudo-rows
+(:func:`reporter.fitting.ancova.covariate_rss`), never on the rows.
 """
 
 from __future__ import annotations
@@ -27,6 +41,7 @@ from fractions import Fraction
 import numpy as np
 
 from reporter.numerics.distributions import f_sf
+from reporter.fitting.ancova import covariate_rss, covariate_wald
 from reporter.fitting.linear import ModelFit, fit_contrast
 from reporter.model.design import Design, build_design
 from reporter.model.hypotheses import effect_weights
@@ -58,6 +73,8 @@ class AnovaRow:
     # was tested (over cell means), when only part of it (or none) is estimable.
     df_hypothesis: int | None = None
     tested: tuple[tuple[Fraction, ...], ...] | None = None
+    # The covariate's name on a covariate row (its slope, or its per-cell slopes); None on a factor term.
+    covariate: str | None = None
 
     @property
     def testable(self) -> bool:
@@ -129,6 +146,8 @@ def _model_columns(effects: Design, terms: list[tuple[str, ...]]) -> np.ndarray:
 def _nested_rows(design: Design, fit: ModelFit, ss_type: str) -> list[AnovaRow]:
     effects = build_design(design.factors, "effects")
     terms = _terms(design)
+    if fit.has_covariates:
+        return _nested_rows_covariates(effects, terms, fit, ss_type)
     rows = []
     for i, term in enumerate(terms):
         if ss_type == "I":
@@ -144,6 +163,57 @@ def _nested_rows(design: Design, fit: ModelFit, ss_type: str) -> list[AnovaRow]:
             continue
         ss = max(rss0 - rss1, 0.0)
         rows.append(_row(term, df, ss, fit))
+    return rows
+
+
+def _nested_rows_covariates(effects: Design, terms, fit: ModelFit, ss_type: str) -> list[AnovaRow]:
+    """Types I and II with covariates, as differences of residual SS of nested models."""
+    cf = fit.covariate_fit
+    cells = fit.cells
+    names = cells.covariates.names
+    every = list(range(len(names)))
+
+    def rss(term_list, chosen):
+        return covariate_rss(cells, _model_columns(effects, term_list), chosen, cf.modes, cf.reference_offset)
+
+    def compare(smaller, larger):
+        rss0, rank0 = rss(*smaller)
+        rss1, rank1 = rss(*larger)
+        return rank1 - rank0, max(rss0 - rss1, 0.0)
+
+    rows = []
+    for j, name in enumerate(names):
+        if ss_type == "I":
+            df, ss = compare(([], every[:j]), ([], every[: j + 1]))
+        else:
+            df, ss = compare((terms, [i for i in every if i != j]), (terms, every))
+        rows.append(_covariate_row(name, df, ss, fit))
+    for i, term in enumerate(terms):
+        base = terms[:i] if ss_type == "I" else [t for t in terms if t != term and not set(term) <= set(t)]
+        df, ss = compare((base, every), (base + [term], every))
+        if df == 0:
+            rows.append(AnovaRow(_source(term), term, 0, None, None, None, None,
+                                 "not testable: the empty cells leave this effect no degrees of freedom"))
+            continue
+        rows.append(_row(term, df, ss, fit))
+    return rows
+
+
+def _covariate_row(name: str, df: int, ss: float, fit: ModelFit) -> AnovaRow:
+    if df == 0:
+        return AnovaRow(name, (), 0, None, None, None, None,
+                        "not testable: the covariate adds no degrees of freedom here", covariate=name)
+    ms = ss / df
+    F = ms / fit.mse
+    return AnovaRow(name, (), df, ss, ms, F, float(f_sf(F, df, fit.df_error)), covariate=name)
+
+
+def _covariate_rows_type3(fit: ModelFit) -> list[AnovaRow]:
+    """Each covariate's slope test (all its slopes when they are per cell)."""
+    rows = []
+    for j, name in enumerate(fit.cells.covariates.names):
+        ss, df = covariate_wald(fit.covariate_fit, j, fit.mse)
+        rows.append(_covariate_row(name, df, ss, fit))
     return rows
 
 
@@ -236,7 +306,7 @@ def _describe_row(row, design: Design) -> str:
 
 
 def _type3_rows(design: Design, fit: ModelFit) -> list[AnovaRow]:
-    rows = []
+    rows = _covariate_rows_type3(fit) if fit.has_covariates else []
     empty = [int(c) for c in np.flatnonzero(~fit.cells.observed)]
     for term in _terms(design):
         C = effect_weights(design, term)
@@ -270,7 +340,14 @@ def fit_anova(design: Design, fit: ModelFit, ss_type: str = "III") -> AnovaTable
     balanced = bool(np.all(n == n[0]) and n[0] > 0)
     agree = _agree(tables)
     notes = []
-    if len(design.factors) == 1:
+    if fit.has_covariates:
+        notes.append("With covariates, the factor rows are about the adjusted means; Type I enters the covariates "
+                     "first, then the factor terms.")
+        if not agree:
+            notes.append(f"Types I, II and III differ here; the table uses Type {ss_type} ({SS_LABELS[ss_type]}).")
+        if fit.slopes_note:
+            notes.append(fit.slopes_note)
+    elif len(design.factors) == 1:
         notes.append("With one factor, Types I, II and III are the same test.")
     elif balanced:
         notes.append("The design is balanced (equal n in every cell), so Types I, II and III agree.")
@@ -281,11 +358,11 @@ def fit_anova(design: Design, fit: ModelFit, ss_type: str = "III") -> AnovaTable
             "The design is unbalanced, so Types I, II and III differ; the table uses Type "
             f"{ss_type} ({SS_LABELS[ss_type]})."
         )
-        if ss_type != "III":
-            notes.append(
-                "Hypotheses written as effect = \"...\" always test unweighted means (Type III), "
-                "so their F can differ from this table's row for the same effect."
-            )
+    if not agree and ss_type != "III":
+        notes.append(
+            "Hypotheses written as effect = \"...\" always test unweighted means (Type III), "
+            "so their F can differ from this table's row for the same effect."
+        )
     if any(not r.testable for r in rows):
         notes.append("Some effects are not testable because cells are empty; see the row notes.")
     if any(r.testable and r.df_hypothesis is not None for r in rows):

@@ -14,6 +14,12 @@ identical, so it does not depend on the coding.
 
 The constant part of C·ȳ − h (the pivot that intake subtracted, times the row sums of C, minus h)
 is computed in exact rational arithmetic.
+
+With covariates (:mod:`reporter.fitting.ancova`) the same tests apply to the adjusted cell means
+μ̂ (at the covariates' reference values) with their covariance σ²·V in place of ȳ and
+σ²·diag(1/n_c): F = (C·μ̂ − h)' [C·V·C']⁻¹ (C·μ̂ − h) / (q · MSE) on the model's error df
+(Searle 1987, sections 8.5 and 9.2). Every test reads ``ModelFit.adjusted_offset_mean`` and
+``ModelFit.unscaled_cov``, which are ȳ − pivot and diag(1/n_c) without covariates.
 """
 
 from __future__ import annotations
@@ -26,6 +32,7 @@ from typing import Sequence
 import numpy as np
 
 from reporter.errors import FitError
+from reporter.fitting.ancova import CovariateFit, Slope, describe_slopes, fit_covariates
 from reporter.intake.cells import CellStats
 from reporter.numerics.distributions import f_sf, t_cdf, t_ppf, t_sf
 from reporter.model.design import in_row_space
@@ -33,7 +40,15 @@ from reporter.model.design import in_row_space
 
 @dataclass(frozen=True)
 class ModelFit:
-    """The full model fitted through the cell statistics."""
+    """The full model fitted through the cell statistics.
+
+    ``adjusted_offset_mean`` (k,) are the cell means at the covariates' reference values minus
+    the outcome pivot (the cell means without covariates; NaN for empty cells); ``unscaled_cov``
+    (k, k) their covariance divided by σ² (diag(1/n_c) without covariates; zero rows and columns
+    for empty cells). ``slopes`` are the covariates' slopes (empty without covariates),
+    ``covariate_reference`` the values the means are adjusted to, ``covariate_slopes_mode``
+    "common", "per-cell" or "mixed" (None without covariates). ``df_error`` counts the slopes.
+    """
 
     cells: CellStats
     df_error: int
@@ -44,6 +59,23 @@ class ModelFit:
     coefficients: tuple[float | None, ...]
     coefficient_se: tuple[float | None, ...]
     estimable: tuple[bool, ...]
+    adjusted_offset_mean: np.ndarray | None = None
+    unscaled_cov: np.ndarray | None = None
+    slopes: tuple[Slope, ...] = ()
+    covariate_reference: tuple[float, ...] = ()
+    covariate_slopes_mode: str | None = None
+    covariate_fit: CovariateFit | None = None
+    slopes_note: str | None = None
+
+    def __post_init__(self) -> None:
+        if self.adjusted_offset_mean is None:
+            object.__setattr__(self, "adjusted_offset_mean", self.cells.offset_mean)
+        if self.unscaled_cov is None:
+            object.__setattr__(self, "unscaled_cov", _diagonal_cov(self.cells))
+
+    @property
+    def has_covariates(self) -> bool:
+        return self.covariate_fit is not None
 
     @property
     def r_squared(self) -> float:
@@ -81,8 +113,13 @@ class ContrastTest:
         return self.ci
 
 
-def fit_model(cells: CellStats, design_matrix: np.ndarray) -> ModelFit:
+def fit_model(cells: CellStats, design_matrix: np.ndarray, covariates=None) -> ModelFit:
     """Residual SS and df, R², and the coefficients of a parameterization (β = D⁻¹·μ).
+
+    When ``cells.covariates`` is set, the model has the covariates' columns too
+    (:func:`reporter.fitting.ancova.fit_covariates`); ``covariates`` are the plan's specs (each
+    with ``adjust_to``, ``adjust_to_exact`` and ``slopes``; None: common slopes at the means), and
+    μ are the adjusted cell means.
 
     Raises :class:`FitError` when the data cannot support any test: a single observed cell,
     no residual degrees of freedom, or zero variance within every cell.
@@ -103,17 +140,28 @@ def fit_model(cells: CellStats, design_matrix: np.ndarray) -> ModelFit:
         )
     ss_error = cells.ss_within
     ss_total = cells.ss_total
+    cf = None
+    if cells.covariates is not None:
+        cf = fit_covariates(cells, covariates)
+        ss_error, df_error = cf.ss_error, cf.df_error
     if ss_error <= 0.0:
         raise FitError(
             "all values within every cell are equal (zero residual variance), so F and t are "
             "undefined. Check that the outcome column is the measured value and not a group label."
         )
     mse = ss_error / df_error
+    if cf is None:
+        adjusted = cells.offset_mean
+        V = _diagonal_cov(cells)
+        ss_model = cells.ss_between
+    else:
+        adjusted, V = cf.adjusted_offset_mean, cf.unscaled_cov
+        ss_model = ss_total - ss_error
     D = np.asarray(design_matrix, dtype=float)
     D_obs = D[observed]
     pinv = np.linalg.pinv(D_obs)  # rows: each beta as a combination of observed cell means
     estimable = tuple(bool(v) for v in in_row_space(D_obs, np.eye(D.shape[1])))
-    inv_n = 1.0 / cells.n[observed]
+    V_obs = V[np.ix_(observed, observed)]
     coefs, ses = [], []
     for j in range(D.shape[1]):
         if not estimable[j]:
@@ -121,19 +169,49 @@ def fit_model(cells: CellStats, design_matrix: np.ndarray) -> ModelFit:
             ses.append(None)
             continue
         w = pinv[j]
-        coefs.append(_weighted_mean_sum(w, cells.offset_mean[observed], cells.pivot_exact))
-        ses.append(math.sqrt(mse * math.fsum((w * w * inv_n).tolist())))
+        coefs.append(_weighted_mean_sum(w, adjusted[observed], cells.pivot_exact))
+        ses.append(math.sqrt(mse * contrast_variance(w, V_obs)))
     return ModelFit(
         cells=cells,
         df_error=df_error,
         ss_error=ss_error,
         mse=mse,
         ss_total=ss_total,
-        ss_model=cells.ss_between,
+        ss_model=ss_model,
         coefficients=tuple(coefs),
         coefficient_se=tuple(ses),
         estimable=estimable,
+        adjusted_offset_mean=adjusted,
+        unscaled_cov=V,
+        slopes=() if cf is None else describe_slopes(cells, cf, mse),
+        covariate_reference=() if cf is None else cf.reference,
+        covariate_slopes_mode=None if cf is None else cf.mode,
+        covariate_fit=cf,
+        slopes_note=None if cf is None or cf.mode == "common" else _per_cell_note(cells, cf),
     )
+
+
+def _diagonal_cov(cells: CellStats) -> np.ndarray:
+    """diag(1/n_c), zero for empty cells: the cell means' covariance over σ² without covariates."""
+    o = cells.observed
+    V = np.zeros((cells.k, cells.k))
+    V[o, o] = 1.0 / cells.n[o]
+    V.setflags(write=False)
+    return V
+
+
+def _per_cell_note(cells: CellStats, cf: CovariateFit) -> str:
+    names = [n for n, m in zip(cells.covariates.names, cf.modes) if m == "per-cell"]
+    at = ", ".join(f"{n} = {v:.6g}" for n, v, m in zip(cells.covariates.names, cf.reference, cf.modes) if m == "per-cell")
+    return (f"Each cell has its own slope for {', '.join(names)}, so differences between adjusted means depend on "
+            f"the covariate value; every effect is evaluated at {at} (the reference value).")
+
+
+def contrast_variance(w: np.ndarray, V: np.ndarray) -> float:
+    """w'·V·w as one exactly rounded sum over the non-zero weights (V: unscaled covariance)."""
+    nz = np.flatnonzero(w)
+    ww = w[nz]
+    return math.fsum((np.outer(ww, ww) * V[np.ix_(nz, nz)]).ravel().tolist())
 
 
 def _weighted_mean_sum(w: np.ndarray, offset_means: np.ndarray, pivot: Fraction) -> float:
@@ -170,14 +248,14 @@ def fit_contrast(
     if np.any(C[:, ~observed] != 0):
         raise FitError("internal: a contrast with weight on an empty cell reached the fitting layer")
     Co = C[:, observed]
-    m = cells.offset_mean[observed]
-    inv_n = 1.0 / cells.n[observed]
+    m = fit.adjusted_offset_mean[observed]
+    Vo = fit.unscaled_cov[np.ix_(observed, observed)]
     const = constant_part(weights, rhs, cells.pivot_exact)
     d = np.array([math.fsum([*(row * m).tolist(), c]) for row, c in zip(Co, const)])
-    V = (Co * inv_n) @ Co.T
+    V = Co @ Vo @ Co.T
     dfe = fit.df_error
     if q == 1 and test != "F":
-        var = math.fsum((Co[0] ** 2 * inv_n).tolist())
+        var = contrast_variance(Co[0], Vo)
         se = math.sqrt(fit.mse * var)
         t = d[0] / se
         h = float(rhs[0])
