@@ -155,13 +155,25 @@ def _scales(cells: CellStats, cov: CovariateStats, chosen: Sequence[int]) -> tup
 
 
 def _square_root(S: np.ndarray) -> np.ndarray:
-    """U with U'U = S for a symmetric positive semi-definite S (rows with zero weight dropped)."""
+    """U with U'U = S for a symmetric positive semi-definite S.
+
+    Cholesky when every pivot is clearly positive; otherwise (a cell whose covariates are
+    constant, collinear, or with no more rows than covariates) the symmetric square root from
+    the eigen-decomposition, with the directions of eigenvalues below 1e-12 of the largest
+    dropped, so a rank-deficient cell adds only the directions its rows really span.
+    """
+    top = float(np.max(np.diag(S))) if S.size else 0.0
+    if top <= 0.0:
+        return np.zeros((0, S.shape[0]))
     try:
-        return np.linalg.cholesky(S).T
+        U = np.linalg.cholesky(S).T
+        if float(np.min(np.diag(U))) ** 2 > 1e-12 * top:
+            return U
     except np.linalg.LinAlgError:
-        lam, E = np.linalg.eigh(S)
-        keep = lam > 1e-13 * max(float(lam.max()), 0.0)
-        return np.sqrt(lam[keep])[:, None] * E[:, keep].T
+        pass
+    lam, E = np.linalg.eigh(S)
+    keep = lam > 1e-12 * max(float(lam.max()), top)
+    return np.sqrt(lam[keep])[:, None] * E[:, keep].T
 
 
 def _within_rows(cells: CellStats, chosen: Sequence[int], cols: np.ndarray, width: int,

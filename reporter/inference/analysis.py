@@ -11,14 +11,14 @@ import numpy as np
 
 from reporter.errors import FitError
 from reporter.fitting.anova import AnovaTable, fit_anova
-from reporter.intake.cells import CellStats, describe_cells
+from reporter.intake.cells import CellStats, describe_cells, describe_covariates
 from reporter.intake.numtext import spread_limits
 from reporter.numerics.distributions import t_ppf
 from reporter.inference.collect import ROWS_UNAVAILABLE, HypothesisExtras, Inference, describe_inference
 from reporter.inference.permutation import PERMUTATION_MAX_ROWS
 from reporter.intake.memory_rows import MemoryRows
 from reporter.intake.rows import CellPoints, PointsOnDemand, RowAccess
-from reporter.fitting.linear import ContrastTest, ModelFit, fit_contrast, fit_model
+from reporter.fitting.linear import ContrastTest, ModelFit, contrast_variance, fit_contrast, fit_model
 from reporter.inference.multiplicity import adjust_p
 from reporter.fitting.rounding import RoundingBounds, bound_rounding
 from reporter.model.design import Design
@@ -40,12 +40,19 @@ class CellSummary:
     se: float | None
     ci: tuple[float, float] | None
     ci_pooled: tuple[float, float] | None
+    # With covariates: the adjusted mean (the cell mean at the covariates' reference values), its
+    # model-based SE √(MSE·V_cc) and 1 − α interval on the error df; None without covariates.
+    adjusted_mean: float | None = None
+    adjusted_se: float | None = None
+    adjusted_ci: tuple[float, float] | None = None
 
 
 @dataclass(frozen=True)
 class MarginalMean:
     """The unweighted mean of the cell means at one level of one factor, with a model-based CI
-    (SE² = MSE · Σ w_c²/n_c for the averaging weights w; Searle 1987, section 4.9)."""
+    (SE² = MSE · Σ w_c²/n_c for the averaging weights w; Searle 1987, section 4.9). With
+    covariates it is the unweighted mean of the adjusted cell means, SE² = MSE · w'Vw with V the
+    adjusted means' covariance over σ² (Searle 1987, section 9.2)."""
 
     factor: str
     level: str
@@ -101,6 +108,10 @@ def describe_cell_summaries(cells: CellStats, fit: ModelFit, alpha: float) -> tu
     last field is the model-based interval mean ± t(1 − α/2, df_error)·√(MSE/n), which pools the
     variance over cells as the ANOVA does (Maxwell, Delaney & Kelley 2018, *Designing
     Experiments and Analyzing Data*, 3rd ed., Routledge).
+
+    With covariates the model-based interval keeps its meaning for the unadjusted mean (MSE of the
+    covariance model), and the adjusted mean comes with its own SE √(MSE·V_cc) and interval
+    (Maxwell, Delaney & Kelley 2018, chapter 9, the standard error of an adjusted mean).
     """
     out = []
     q_pooled = float(t_ppf(1 - alpha / 2, fit.df_error))
@@ -119,7 +130,12 @@ def describe_cell_summaries(cells: CellStats, fit: ModelFit, alpha: float) -> tu
         else:
             sd = se = None
             ci = None
-        out.append(CellSummary(c, n, mean, sd, se, ci, (mean - half_pooled, mean + half_pooled)))
+        adjusted = {}
+        if fit.has_covariates:
+            a = float(fit.adjusted_offset_mean[c]) + cells.pivot
+            a_se = math.sqrt(fit.mse * float(fit.unscaled_cov[c, c]))
+            adjusted = dict(adjusted_mean=a, adjusted_se=a_se, adjusted_ci=(a - q_pooled * a_se, a + q_pooled * a_se))
+        out.append(CellSummary(c, n, mean, sd, se, ci, (mean - half_pooled, mean + half_pooled), **adjusted))
     return tuple(out)
 
 
@@ -136,8 +152,11 @@ def describe_marginal_means(design: Design, cells: CellStats, fit: ModelFit, alp
                                         "not estimable as an unweighted mean: a cell at this level is empty"))
                 continue
             w = 1.0 / len(idx)
-            mean = math.fsum(cells.offset_mean[idx].tolist()) * w + cells.pivot
-            se = math.sqrt(fit.mse * math.fsum((w * w / n).tolist()))
+            mean = math.fsum(fit.adjusted_offset_mean[idx].tolist()) * w + cells.pivot
+            if fit.has_covariates:
+                se = math.sqrt(fit.mse * contrast_variance(np.full(len(idx), w), fit.unscaled_cov[np.ix_(idx, idx)]))
+            else:
+                se = math.sqrt(fit.mse * math.fsum((w * w / n).tolist()))
             out.append(MarginalMean(f.name, level, mean, se, (mean - q * se, mean + q * se), len(idx)))
     return tuple(out)
 
@@ -162,6 +181,7 @@ def fit_analysis(
     progress: bool = False,
     notify: Callable[[str], None] | None = None,
     rows_unavailable: str = ROWS_UNAVAILABLE,
+    covariates: Sequence | None = None,
 ) -> Analysis:
     """The full-model fit from the cell table, the ANOVA table and a test of every hypothesis,
     with (unless ``inference=False``) effect sizes, checks, robust tests and post-hoc families.
@@ -174,9 +194,14 @@ def fit_analysis(
     p-values are adjusted within two families: the planned hypotheses (the confirmatory family)
     and, separately, the exploratory ones, each with ``correction``. The p that enters the
     adjustment is that of the confirmatory test chosen by ``unequal_variances``.
+
+    ``covariates`` are the plan's covariate specs (``Plan.covariates``) when ``cells.covariates``
+    holds their statistics: the fit is then the analysis of covariance
+    (:mod:`reporter.fitting.ancova`) and every mean, test and interval is about adjusted means.
+    None with covariate statistics means common slopes at the covariates' means.
     """
     _check_float_range(cells)
-    fit = fit_model(cells, design.matrix)
+    fit = fit_model(cells, design.matrix, covariates)
     table = fit_anova(design, fit, ss_type)
     tests = [fit_contrast(fit, c.weights, c.rhs, c.alternative, alpha, c.test) for c in contrasts]
     inf = None
@@ -262,12 +287,19 @@ def _check_float_range(cells: CellStats) -> None:
 
 
 def fit_analysis_on_rows(design: Design, y, cell, contrasts: Sequence[Contrast], *, pivot: float = 0.0,
-                         pivot_exact: Fraction | None = None, row_numbers=None, **options) -> Analysis:
+                         pivot_exact: Fraction | None = None, row_numbers=None, x=None, covariate_pivot=None,
+                         covariate_pivot_exact=None, **options) -> Analysis:
     """:func:`fit_analysis` on row arrays (offsets ``y`` from ``pivot``, the cell of each row),
-    held in memory; rows are numbered 0..N-1 unless ``row_numbers`` are given."""
+    held in memory; rows are numbered 0..N-1 unless ``row_numbers`` are given. ``x`` (N, p) are
+    covariate offsets from ``covariate_pivot`` in the order of ``options["covariates"]``."""
     y = np.asarray(y, dtype=np.float64)
     cell = np.asarray(cell)
     with np.errstate(over="ignore", invalid="ignore"):  # overflow is refused by fit_analysis, in words
         cells = describe_cells(y, cell, design.k, pivot, pivot_exact)
+        if x is not None:
+            specs = options.get("covariates")
+            names = None if specs is None else tuple(s.name for s in specs)
+            cells = replace(cells, covariates=describe_covariates(y, x, cell, design.k, covariate_pivot,
+                                                                  covariate_pivot_exact, names))
     numbers = np.arange(y.size, dtype=np.int64) if row_numbers is None else np.asarray(row_numbers)
     return fit_analysis(design, cells, MemoryRows(y, cell, design.k, numbers), contrasts, **options)

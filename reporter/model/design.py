@@ -15,12 +15,21 @@ sections 16.7 and 19.8, "factor effects" model):
 * ``reference``: indicator coding with the first listed level as the reference.
 
 Interaction columns are products of the factors' columns (Kronecker products at cell level).
+
+Covariates (the analysis of covariance; Searle 1987, section 9.2; Maxwell, Delaney & Kelley
+(2018), *Designing Experiments and Analyzing Data*, 3rd ed., Routledge, chapter 9) add columns
+after the factor columns: x − x* for a covariate with one slope common to all cells, or
+(x − x*)·[row in cell c] for each cell when the slopes are per cell (Milliken & Johnson (2002),
+*Analysis of Messy Data*, vol. 3, chapters 2-3). Centring at the reference value x* keeps the
+meaning of every factor coefficient: the same combination of cell means, now the adjusted cell
+means (the cell means at x = x*). A hypothesis about means is C·μ = h over the adjusted means,
+and over all coefficients it reads L = [C·D, 0] (no weight on a slope).
 """
 
 from __future__ import annotations
 
 import itertools
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from fractions import Fraction
 from typing import Sequence
 
@@ -148,6 +157,35 @@ def _combination_words(parts) -> str:
 
 
 @dataclass(frozen=True)
+class CovariateColumn:
+    """One covariate column of the design: the slope of ``covariate`` common to all cells
+    (``cell`` None) or in one cell. ``reference`` is x*, the covariate value the adjusted means are
+    taken at (None: the mean of the rows used, known once the data are read)."""
+
+    index: int
+    symbol: str
+    covariate: str
+    cell: int | None
+    reference: float | None
+    label: str
+
+    def meaning_words(self, design: "Design") -> str:
+        """What the slope estimates, in plain words."""
+        where = ("within a cell (common to all cells)" if self.cell is None
+                 else f"within the cell ({design.cells[self.cell].label})")
+        return f"change in the mean outcome per unit of {self.covariate}, {where}"
+
+    def meaning_text(self, design: "Design") -> str:
+        """The slope as a symbol-like text, e.g. ``slope of pretest`` or ``slope of pretest in (a)``."""
+        return f"slope of {self.covariate}" + ("" if self.cell is None else f" in ({design.cells[self.cell].label})")
+
+    def reference_words(self) -> str:
+        """Where the adjusted means are taken for this covariate."""
+        at = "its mean over the rows used" if self.reference is None else f"{self.reference:g}"
+        return f"{self.covariate} = {at}"
+
+
+@dataclass(frozen=True)
 class IndicatorCheck:
     """Whether the design columns are plain group indicators (each beta a group mean)."""
 
@@ -164,6 +202,9 @@ class Design:
     cells: tuple[Cell, ...]
     matrix: np.ndarray  # k x p, integer valued
     coefficients: tuple[Coefficient, ...]
+    # Covariate columns after the factor columns (empty without covariates); ``matrix`` and
+    # ``coefficients`` stay the factor part D, over the (adjusted) cell means.
+    covariates: tuple[CovariateColumn, ...] = ()
 
     @property
     def shape(self) -> tuple[int, ...]:
@@ -185,6 +226,17 @@ class Design:
         if codes.ndim == 1:
             codes = codes[:, None]
         return np.ravel_multi_index(tuple(codes.T), self.shape)
+
+    @property
+    def n_coefficients(self) -> int:
+        """Factor coefficients plus covariate slopes."""
+        return len(self.coefficients) + len(self.covariates)
+
+    def over_all_coefficients(self, L: np.ndarray) -> np.ndarray:
+        """L = C·D extended by zeros over the slopes: [C·D, 0] (a hypothesis about adjusted means
+        puts no weight on a slope)."""
+        L = np.atleast_2d(np.asarray(L, dtype=float))
+        return np.hstack([L, np.zeros((L.shape[0], len(self.covariates)))])
 
     def inverse(self) -> np.ndarray:
         """D^-1 as floats (rows: meaning of each coefficient over cell means)."""
@@ -357,7 +409,24 @@ def _verified(design: Design) -> Design:
     return design
 
 
+def with_covariates(design: Design, specs) -> Design:
+    """The design with covariate columns for ``specs`` (each with ``name``, ``adjust_to`` and
+    ``slopes``, "common" or "per-cell"), in plan order after the factor columns."""
+    cols: list[CovariateColumn] = []
+    start = len(design.coefficients)
+    for spec in specs:
+        ref = getattr(spec, "adjust_to", None)
+        cells = [None] if getattr(spec, "slopes", "common") == "common" else list(range(design.k))
+        for c in cells:
+            i = start + len(cols)
+            label = spec.name if c is None else f"{spec.name} in ({design.cells[c].label})"
+            cols.append(CovariateColumn(i, f"β{i}", spec.name, c, None if ref is None else float(ref), label))
+    return replace(design, covariates=tuple(cols))
+
+
 def design_from_plan(plan) -> Design:
-    """The design of a validated plan."""
+    """The design of a validated plan (with its covariates' columns, if any)."""
     factors = tuple(Factor(f.name, f.levels) for f in plan.factors)
-    return build_design(factors, plan.analysis.parameterization)
+    design = build_design(factors, plan.analysis.parameterization)
+    specs = getattr(plan, "covariates", ())
+    return with_covariates(design, specs) if specs else design

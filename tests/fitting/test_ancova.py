@@ -363,3 +363,82 @@ def test_no_covariates_unchanged():
     assert fit.adjusted_offset_mean is cells.offset_mean
     assert np.array_equal(np.diag(fit.unscaled_cov), 1.0 / cells.n)
     assert fit.slopes == () and fit.covariate_slopes_mode is None
+
+
+@pytest.mark.parametrize("param", ["effects", "reference", "cell-means"])
+def test_coefficients_over_the_full_design(param):
+    """β of the factor columns with covariates: the least-squares coefficients of the row-level
+    design X = [Z·D, x − x*] (statsmodels OLS) equal D⁻¹ applied to the adjusted means (the meaning
+    of each β stays the same combination of means, now adjusted means), and their SEs agree."""
+    from reporter.model.design import with_covariates
+
+    df, factors, covs = random_frame(41, 2, 2)
+    design, cells, fit, cell = ours(df, factors, "y", covs, param=param)
+    x = df[covs].to_numpy()
+    X = np.hstack([design.matrix[cell].astype(float), x - x.mean(axis=0)])
+    ref = sm.OLS(df.y.to_numpy(), X).fit()
+    q = design.matrix.shape[1]
+    np.testing.assert_allclose(np.array(fit.coefficients, float), ref.params[:q], rtol=REL, atol=1e-10)
+    np.testing.assert_allclose(np.array(fit.coefficient_se, float), ref.bse[:q], rtol=REL)
+    # the design lists the slopes after the factor columns; L = [C·D, 0]
+    full = with_covariates(design, [Spec(c) for c in covs])
+    assert [c.symbol for c in full.covariates] == [f"β{q}", f"β{q + 1}"]
+    assert full.covariates[0].meaning_words(full) == ("change in the mean outcome per unit of x1, within a cell "
+                                                      "(common to all cells)")
+    e = compile_effect(design, "A")
+    L = full.over_all_coefficients(e.L)
+    assert L.shape == (e.q, q + 2) and not L[:, q:].any()
+    C = e.C
+    ft = ref.f_test(np.hstack([C @ design.matrix, np.zeros((e.q, 2))]))
+    res = fit_contrast(fit, e.weights, e.rhs, test="F")
+    assert close(res.statistic, num(ft.fvalue))
+
+
+def test_adjusted_cell_and_marginal_means_in_the_analysis():
+    """fit_analysis with covariates: each cell's adjusted mean, SE and 95% interval, and the
+    unweighted marginal means of the adjusted means with their SE and interval, equal statsmodels
+    OLS on [cell indicators, x − x̄] (t_test of the averaging rows)."""
+    from reporter.inference.analysis import fit_analysis_on_rows
+
+    df, factors, covs = random_frame(77, 2, 2)
+    design = build_design([Factor(n, tuple(lv)) for n, lv in factors], "effects")
+    codes = np.column_stack([pd.Categorical(df[n], categories=lv).codes for n, lv in factors])
+    cell = design.cell_index(codes)
+    y = df.y.to_numpy()
+    x = df[covs].to_numpy()
+    a = fit_analysis_on_rows(design, y, cell, [compile_effect(design, "A")], x=x, covariates=[Spec(c) for c in covs],
+                             inference=False)
+    exp = explicit_fit(y, cell, design.k, x, x.mean(axis=0), ["common", "common"])
+    for s in a.summaries:
+        assert close(s.adjusted_mean, exp.params[s.index]) and close(s.adjusted_se, exp.bse[s.index])
+        lo, hi = np.asarray(exp.conf_int(0.05))[s.index]
+        assert close(s.adjusted_ci[0], lo) and close(s.adjusted_ci[1], hi)
+        assert close(s.mean, y[cell == s.index].mean())
+    for m in a.marginal_means:
+        L = np.zeros(exp.params.size)
+        idx = [c.index for c in design.cells if c.as_dict()[m.factor] == m.level]
+        L[idx] = 1.0 / len(idx)
+        tt = exp.t_test(L)
+        assert close(m.mean, num(tt.effect)) and close(m.se, num(tt.sd))
+        lo, hi = np.asarray(tt.conf_int(alpha=0.05))[0]
+        assert close(m.ci[0], lo) and close(m.ci[1], hi)
+    assert a.fit.df_error == exp.df_resid
+    assert close(a.hypotheses[0].test.statistic, anova_lm(sm_ols("y ~ x1 + x2 + C(A, Sum) * C(B, Sum)", df).fit(),
+                                                            typ=3).loc["C(A, Sum)", "F"])
+
+
+@pytest.mark.filterwarnings("ignore:The design matrix is rank-deficient")
+def test_slopes_check_with_a_cell_too_small_for_its_own_slopes():
+    """A cell with 2 rows and 2 covariates cannot have its own slopes: the check's df come from
+    the ranks of the two models, as in statsmodels' anova_lm comparison (which fits by pinv)."""
+    df, factors, covs = random_frame(13, 1, 2)
+    last = factors[0][1][-1]
+    keep = (df.A != last) | (df.groupby("A").cumcount() < 2)
+    df = df[keep].reset_index(drop=True)
+    _, cells, _, _ = ours(df, factors, "y", covs)
+    common = sm_ols("y ~ x1 + x2 + C(A, Sum)", df).fit()
+    separate = sm_ols("y ~ (x1 + x2) * C(A, Sum)", df).fit()
+    cmp = anova_lm(common, separate)
+    chk = slopes_homogeneity(cells)
+    assert chk.df1 == cmp["df_diff"].iloc[1] and chk.df2 == separate.df_resid
+    assert close(chk.F, cmp["F"].iloc[1])
