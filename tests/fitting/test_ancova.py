@@ -442,3 +442,34 @@ def test_slopes_check_with_a_cell_too_small_for_its_own_slopes():
     chk = slopes_homogeneity(cells)
     assert chk.df1 == cmp["df_diff"].iloc[1] and chk.df2 == separate.df_resid
     assert close(chk.F, cmp["F"].iloc[1])
+
+
+def test_mixed_slopes_match_statsmodels():
+    """One covariate with a common slope and one with per-cell slopes: residual SS and df, the
+    adjusted means at the stated values and their covariance, the slopes and the Type III rows
+    equal statsmodels OLS on the explicit design (cell indicators, x1 − x1*, cell × (x2 − x2*))."""
+    df, factors, covs = random_frame(55, 2, 2)
+    specs = [Spec("x1", None, None, "common"), Spec("x2", 19.5, Fraction("19.5"), "per-cell")]
+    design, cells, fit, cell = ours(df, factors, "y", covs, specs)
+    assert fit.covariate_slopes_mode == "mixed"
+    x = df[covs].to_numpy()
+    y = df.y.to_numpy()
+    ref = np.array([x[:, 0].mean(), 19.5])
+    exp = explicit_fit(y, cell, design.k, x, ref, ["common", "per-cell"])
+    assert fit.df_error == exp.df_resid and close(fit.ss_error, exp.ssr)
+    np.testing.assert_allclose(fit.adjusted_offset_mean + cells.pivot, exp.params[: design.k], rtol=REL)
+    cov = np.asarray(exp.cov_params())[: design.k, : design.k]
+    np.testing.assert_allclose(fit.mse * fit.unscaled_cov, cov, rtol=REL, atol=1e-12 * np.abs(cov).max())
+    common = [s for s in fit.slopes if s.cell is None]
+    assert len(common) == 1 and close(common[0].estimate, exp.params[design.k]) and close(common[0].se, exp.bse[design.k])
+    for s in fit.slopes:
+        if s.cell is not None:
+            assert close(s.estimate, exp.params[design.k + 1 + s.cell])
+    t3 = fit_anova(design, fit, "III")
+    x1 = [r for r in t3.rows if r.covariate == "x1"][0]
+    assert close(x1.F, num(exp.tvalues[design.k]) ** 2)
+    e = compile_effect(design, "A x B")
+    C = np.array([[float(w) for w in row] for row in e.weights])
+    ft = exp.f_test(np.hstack([C, np.zeros((C.shape[0], 1 + design.k))]))
+    row = [r for r in t3.rows if r.factors == ("A", "B")][0]
+    assert close(row.F, num(ft.fvalue)) and close(row.p, num(ft.pvalue))
