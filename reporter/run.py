@@ -61,6 +61,7 @@ def analyse(prep, *, quiet: bool = False) -> Analysis:
         permutation_max_rows=a.permutation_max_rows,
         progress=not quiet,
         notify=None if quiet else _notify,
+        covariates=prep.plan.covariates or None,
     )
     return with_rounding_bounds(analysis, prep.data.summary)
 
