@@ -240,10 +240,59 @@ def _basis(X: np.ndarray) -> tuple[np.ndarray, int]:
     return Q, rank
 
 
-def covariate_rss(cells: CellStats, columns: np.ndarray, chosen: Sequence[int], modes: Sequence[str],
+@dataclass(frozen=True)
+class WithinBlock:
+    """The within-cell pseudo-rows of every covariate, reduced once by QR to a triangle.
+
+    ``cols[c, j]`` is the slope column of covariate j in cell c (from 0; -1 for empty cells),
+    ``m`` the number of slope columns, ``T`` the triangle R of QR([U | u_y]) over all cells
+    (``m + 1`` columns, the last one the outcome), ``sx`` and ``sy`` the power-of-two scales.
+    A model with only some covariates drops the other columns of ``T``: setting a slope to zero
+    is dropping its column, and an orthogonal transformation of rows keeps every least-squares
+    residual (Golub & Van Loan 2013, section 5.3), so the rows never need building again.
+    """
+
+    modes: tuple[str, ...]
+    cols: np.ndarray
+    m: int
+    T: np.ndarray
+    colnorm: np.ndarray
+    sx: np.ndarray
+    sy: float
+
+
+def within_block(cells: CellStats, modes: Sequence[str]) -> WithinBlock:
+    """The reduced within-cell rows of all covariates with the given slope modes."""
+    cov = cells.covariates
+    every = list(range(cov.p))
+    cols, m = _slot_columns(cells, modes, every, 0)
+    sx, sy = _scales(cells, cov, every)
+    rows, target = _within_rows(cells, every, cols, m, sx, sy)
+    W = np.column_stack([np.vstack(rows), np.array(target)]) if rows else np.zeros((0, m + 1))
+    colnorm = np.sqrt((W[:, :m] * W[:, :m]).sum(axis=0))
+    T = np.linalg.qr(W, mode="r") if W.shape[0] else W
+    return WithinBlock(tuple(modes), cols, m, T, colnorm, sx, sy)
+
+
+def _rss(A: np.ndarray, t: np.ndarray) -> tuple[float, int]:
+    """Residual SS of t on the columns of A and the rank of A: QR of [A | t] (the last diagonal
+    entry of R is the residual norm), through an orthonormal basis when A is rank deficient."""
+    n = A.shape[1]
+    R = np.linalg.qr(np.column_stack([A, t]), mode="r")
+    if R.shape[0] > n and n:
+        diag = np.abs(np.diag(R[:n, :n]))
+        if bool((diag > 1e-10 * max(diag.max(), 1e-300)).all()):
+            return float(R[n, n]) ** 2, n
+    Q, rank = _basis(R[:, :n])
+    res = R[:, n] - Q @ (Q.T @ R[:, n])
+    return math.fsum((res * res).tolist()), rank
+
+
+def covariate_rss(cells: CellStats, columns: np.ndarray, chosen: Sequence[int], block: WithinBlock,
                   reference_offset: np.ndarray) -> tuple[float, int]:
     """Residual SS (between plus within cells) and rank of the model with cell-level ``columns``
-    (k x r, an intercept among them) and the ``chosen`` covariates, each with its slope mode.
+    (k x r, an intercept among them) and the ``chosen`` covariates, each with its slope mode in
+    ``block`` (:func:`within_block`).
 
     Solved by QR on the pseudo-rows described in the module docstring (Searle 1987, section 9.2).
     """
@@ -252,49 +301,42 @@ def covariate_rss(cells: CellStats, columns: np.ndarray, chosen: Sequence[int], 
     obs = np.flatnonzero(o)
     chosen = list(chosen)
     r = columns.shape[1]
-    cols, width = _slot_columns(cells, modes, chosen, r)
-    sx, sy = _scales(cells, cov, chosen)
+    keep = [int(c) for j in chosen for c in np.unique(block.cols[obs, j])]
+    where = {c: r + i for i, c in enumerate(keep)}
+    width = r + len(keep)
     w = np.sqrt(cells.n[o].astype(float))
-    grand = cells.grand_offset_mean
     between = np.zeros((obs.size, width))
     between[:, :r] = columns[o] * w[:, None]
-    for i, j in enumerate(chosen):
-        d = (cov.offset_mean[obs, j] - reference_offset[j]) / sx[i]
-        between[np.arange(obs.size), cols[obs, i]] = d * w
-    tb = (cells.offset_mean[o] - grand) / sy * w
-    wrows, wt = _within_rows(cells, chosen, cols, width, sx, sy)
-    A = np.vstack([between, *wrows]) if wrows else between
-    t = np.concatenate([tb, np.array(wt)])
-    Q, rank = _basis(A)
-    res = t - Q @ (Q.T @ t)
-    return math.fsum((res * res).tolist()) * sy * sy, rank
+    for j in chosen:
+        d = (cov.offset_mean[obs, j] - reference_offset[j]) / block.sx[j]
+        between[np.arange(obs.size), [where[int(c)] for c in block.cols[obs, j]]] = d * w
+    tb = (cells.offset_mean[o] - cells.grand_offset_mean) / block.sy * w
+    within = np.zeros((block.T.shape[0], width))
+    within[:, r:] = block.T[:, keep]
+    A = np.vstack([between, within])
+    t = np.concatenate([tb, block.T[:, block.m]])
+    rss, rank = _rss(A, t)
+    return rss * block.sy * block.sy, rank
 
 
-def _slope_system(cells: CellStats, modes: Sequence[str], chosen: Sequence[int]):
-    """The within-cell least squares problem of the full model: slopes, their unscaled covariance,
-    the residual SS, and the slope columns of each cell."""
-    cov = cells.covariates
-    cols, m = _slot_columns(cells, modes, chosen, 0)
-    sx, sy = _scales(cells, cov, chosen)
-    rows, target = _within_rows(cells, chosen, cols, m, sx, sy)
-    A = np.vstack(rows) if rows else np.zeros((0, m))
-    t = np.array(target)
-    if A.shape[0] < m + 1:
+def _slope_system(cells: CellStats, block: WithinBlock):
+    """The within-cell least squares problem of the full model: slopes, their unscaled covariance
+    and the residual SS."""
+    m, T = block.m, block.T
+    if T.shape[0] < m + 1:
         raise FitError("there are fewer rows than slopes to estimate; use common slopes or fewer covariates")
-    Raug = np.linalg.qr(np.column_stack([A, t]), mode="r")
-    R = Raug[:m, :m]
+    R = T[:m, :m]
     diag = np.abs(np.diag(R))
-    colnorm = np.sqrt((A * A).sum(axis=0))
-    bad = np.flatnonzero(~(diag > 1e-9 * np.maximum(colnorm, 1e-300)) | (colnorm == 0))
+    bad = np.flatnonzero(~(diag > 1e-9 * np.maximum(block.colnorm, 1e-300)) | (block.colnorm == 0))
     if bad.size:
-        raise FitError(_not_estimable(cells, modes, chosen, cols, int(bad[0])))
-    b = np.linalg.solve(R, Raug[:m, m])
+        raise FitError(_not_estimable(cells, block.modes, list(range(cells.covariates.p)), block.cols, int(bad[0])))
+    b = np.linalg.solve(R, T[:m, m])
     Rinv = np.linalg.solve(R, np.eye(m))
-    scale = _column_scales(cols, sx, m)
-    b = b * sy / scale
+    scale = _column_scales(block.cols, block.sx, m)
+    b = b * block.sy / scale
     slope_cov = (Rinv @ Rinv.T) / np.outer(scale, scale)
-    sse = float(Raug[m, m]) ** 2 * sy * sy
-    return b, slope_cov, sse, cols
+    sse = float(T[m, m]) ** 2 * block.sy * block.sy
+    return b, slope_cov, sse
 
 
 def _column_scales(cols: np.ndarray, sx: np.ndarray, m: int) -> np.ndarray:
@@ -329,8 +371,9 @@ def fit_covariates(cells: CellStats, specs=None) -> CovariateFit:
     p = cov.p
     modes = _modes(specs, p)
     ref_off, ref = reference_point(cells, specs)
-    chosen = list(range(p))
-    b, slope_cov, sse, cols = _slope_system(cells, modes, chosen)
+    block = within_block(cells, modes)
+    cols = block.cols
+    b, slope_cov, sse = _slope_system(cells, block)
     k = cells.k
     o = cells.observed
     obs = np.flatnonzero(o)
@@ -397,8 +440,8 @@ def slopes_homogeneity(cells: CellStats) -> SlopesCheck:
     chosen = list(range(p))
     ref = np.zeros(p)
     ident = np.eye(cells.k)[:, cells.observed]
-    sse0, rank0 = covariate_rss(cells, ident, chosen, ("common",) * p, ref)
-    sse1, rank1 = covariate_rss(cells, ident, chosen, ("per-cell",) * p, ref)
+    sse0, rank0 = covariate_rss(cells, ident, chosen, within_block(cells, ("common",) * p), ref)
+    sse1, rank1 = covariate_rss(cells, ident, chosen, within_block(cells, ("per-cell",) * p), ref)
     df1 = rank1 - rank0
     df2 = cells.n_total - rank1
     if df1 <= 0 or df2 <= 0 or sse1 <= 0:

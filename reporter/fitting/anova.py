@@ -41,7 +41,7 @@ from fractions import Fraction
 import numpy as np
 
 from reporter.numerics.distributions import f_sf
-from reporter.fitting.ancova import covariate_rss, covariate_wald
+from reporter.fitting.ancova import covariate_rss, covariate_wald, within_block
 from reporter.fitting.linear import ModelFit, fit_contrast
 from reporter.model.design import Design, build_design
 from reporter.model.hypotheses import effect_weights
@@ -172,9 +172,10 @@ def _nested_rows_covariates(effects: Design, terms, fit: ModelFit, ss_type: str)
     cells = fit.cells
     names = cells.covariates.names
     every = list(range(len(names)))
+    block = within_block(cells, cf.modes)
 
     def rss(term_list, chosen):
-        return covariate_rss(cells, _model_columns(effects, term_list), chosen, cf.modes, cf.reference_offset)
+        return covariate_rss(cells, _model_columns(effects, term_list), chosen, block, cf.reference_offset)
 
     def compare(smaller, larger):
         rss0, rank0 = rss(*smaller)

@@ -208,10 +208,15 @@ def _per_cell_note(cells: CellStats, cf: CovariateFit) -> str:
 
 
 def contrast_variance(w: np.ndarray, V: np.ndarray) -> float:
-    """w'·V·w as one exactly rounded sum over the non-zero weights (V: unscaled covariance)."""
+    """w'·V·w over the non-zero weights (V: unscaled covariance); an exactly rounded sum when V is
+    diagonal there (no covariates: Σ w_c²/n_c, as always), a matrix product otherwise."""
     nz = np.flatnonzero(w)
     ww = w[nz]
-    return math.fsum((np.outer(ww, ww) * V[np.ix_(nz, nz)]).ravel().tolist())
+    sub = V[np.ix_(nz, nz)]
+    d = np.diag(sub)
+    if not np.count_nonzero(sub - np.diag(d)):
+        return math.fsum((ww * ww * d).tolist())
+    return float(ww @ sub @ ww)
 
 
 def _weighted_mean_sum(w: np.ndarray, offset_means: np.ndarray, pivot: Fraction) -> float:
