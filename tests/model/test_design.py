@@ -121,3 +121,29 @@ def test_design_is_square_and_full_rank(param):
     """The full model has one coefficient per cell under every parameterization."""
     d = build_design([A, B, Factor("C", ("c1", "c2"))], param)
     assert d.matrix.shape == (12, 12) and np.linalg.matrix_rank(d.matrix) == 12
+
+
+def test_design_from_plan_lists_covariate_slopes(tmp_path):
+    """A plan's [[covariates]] become slope columns after the factor columns: one per covariate
+    with common slopes, one per cell with per-cell slopes, each with its meaning in words and its
+    reference value (definition of the analysis-of-covariance model, Searle 1987, section 9.2);
+    the factor part D and its closed-form meanings are unchanged."""
+    from reporter.intake.plan import load_plan
+    from reporter.model.design import design_from_plan
+
+    (tmp_path / "d.csv").write_text("g,y,pre,age\na,1,2,3\nb,2,3,4\n")
+    (tmp_path / "plan.toml").write_text(
+        'title = "t"\n[data]\npath = "d.csv"\noutcome = "y"\n[[factors]]\nname = "g"\nlevels = ["a", "b"]\n'
+        '[[covariates]]\nname = "pre"\n[[covariates]]\nname = "age"\nadjust_to = 40\nslopes = "per-cell"\n'
+        '[[hypotheses]]\nname = "h"\nmeans = "a = b"\n')
+    plan = load_plan(tmp_path / "plan.toml")
+    design = design_from_plan(plan)
+    plain = build_design(design.factors, design.parameterization)
+    assert np.array_equal(design.matrix, plain.matrix) and design.coefficients == plain.coefficients
+    cols = design.covariates
+    assert [(c.symbol, c.covariate, c.cell, c.reference) for c in cols] == [
+        ("β2", "pre", None, None), ("β3", "age", 0, 40.0), ("β4", "age", 1, 40.0)]
+    assert cols[0].meaning_words(design).endswith("within a cell (common to all cells)")
+    assert cols[2].meaning_words(design) == "change in the mean outcome per unit of age, within the cell (b)"
+    assert cols[0].reference_words() == "pre = its mean over the rows used" and cols[1].reference_words() == "age = 40"
+    assert design.n_coefficients == 5
