@@ -335,7 +335,13 @@ class DuckRows:
 
     def flagged(self, centre: np.ndarray, bound: np.ndarray, limit: int) -> FlaggedRows:
         """One scan writes the flagged rows (usually few) to a temporary table; their per-cell
-        sums and the largest deviations are read from it."""
+        sums and the largest deviations are read from it. With the distinct values fetched, the
+        sums come from them, and one scan fetches only the rows of the values that hold the
+        largest deviations (none when nothing is flagged)."""
+        dist = self._distinct()
+        if dist is not None:
+            return self._flagged_distinct(dist, np.asarray(centre, dtype=np.float64),
+                                          np.asarray(bound, dtype=np.float64), int(max(limit, 0)))
         c, b = _doubles(centre), _doubles(bound)
         with self._lock:
             self._con.execute(
@@ -352,6 +358,48 @@ class DuckRows:
         for c, m, s1, s2 in agg:
             count[c], sum_dev[c], sum_dev2[c] = m, s1, s2
         rows = tuple((self._rownum.number(r), int(c), float(d)) for r, c, d in top)
+        return FlaggedRows(total=int(count.sum()), rows=rows, count=count, sum_dev=sum_dev, sum_dev2=sum_dev2)
+
+    def _flagged_distinct(self, dist: "_Distinct", centre: np.ndarray, bound: np.ndarray, limit: int) -> FlaggedRows:
+        """:meth:`flagged` from the distinct values: per cell, the values v with |v − centre_c| >
+        bound_c (the same floating-point operations as the SQL), their rows counted and their
+        deviations summed exactly rounded (``math.fsum`` of count × deviation); then the rows of
+        the values with the largest |deviation|, enough to fill ``limit`` with every tie of the
+        last one, ordered as :meth:`flagged` orders them."""
+        count = np.zeros(self.k, dtype=np.int64)
+        sum_dev, sum_dev2 = np.zeros(self.k), np.zeros(self.k)
+        cand: list[tuple[float, int, float, int]] = []  # (|e|, cell, value, rows)
+        for c in range(self.k):
+            if not (math.isfinite(bound[c]) and self._counts[c] > 0):
+                continue
+            m = dist.counts[:, c] > 0
+            v, w = dist.values[m], dist.counts[m, c]
+            e = v - centre[c]
+            sel = np.abs(e) > bound[c]
+            if not sel.any():
+                continue
+            v, w, e = v[sel], w[sel], e[sel]
+            count[c] = int(w.sum())
+            wf = w.astype(np.float64)
+            sum_dev[c] = math.fsum((wf * e).tolist())
+            sum_dev2[c] = math.fsum((wf * (e * e)).tolist())
+            cand += zip(np.abs(e).tolist(), [c] * len(v), v.tolist(), w.tolist())
+        rows: tuple[tuple[int, int, float], ...] = ()
+        if cand and limit:
+            cand.sort(key=lambda x: -x[0])
+            got, cut = 0, len(cand)
+            for i, (a, _, _, w) in enumerate(cand):
+                got += w
+                if got >= limit:
+                    cut = i + 1
+                    while cut < len(cand) and cand[cut][0] == a:
+                        cut += 1
+                    break
+            least = cand[cut - 1][0]  # every row with |e| at least this is a candidate
+            cs, bs = _doubles(centre), _doubles(np.where(np.isfinite(bound), bound, np.inf))
+            top = self._q(f"SELECT r, cell, d FROM (SELECT r, cell, d, abs(d - {cs}[cell + 1]) AS a, {bs}[cell + 1] AS b "
+                          f"FROM kept) WHERE a >= CAST('{least!r}' AS DOUBLE) AND a > b ORDER BY a DESC, r LIMIT {limit}")
+            rows = tuple((self._rownum.number(r), int(c), float(d)) for r, c, d in top)
         return FlaggedRows(total=int(count.sum()), rows=rows, count=count, sum_dev=sum_dev, sum_dev2=sum_dev2)
 
     def sample(self, size: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
