@@ -22,7 +22,8 @@ from reporter.fitting.linear import ContrastTest, ModelFit, contrast_variance, f
 from reporter.inference.multiplicity import adjust_p
 from reporter.fitting.rounding import RoundingBounds, bound_rounding
 from reporter.model.design import Design
-from reporter.model.hypotheses import Contrast
+from reporter.model.hypotheses import Contrast, in_outcome_units
+from reporter.fitting.equivalence import test_contrast
 
 
 CELL_POINTS = 200
@@ -203,7 +204,9 @@ def fit_analysis(
     _check_float_range(cells)
     fit = fit_model(cells, design.matrix, covariates)
     table = fit_anova(design, fit, ss_type)
-    tests = [fit_contrast(fit, c.weights, c.rhs, c.alternative, alpha, c.test) for c in contrasts]
+    # Constants written in residual SDs become outcome units with the fitted residual SD.
+    contrasts = [in_outcome_units(c, fit.residual_sd) for c in contrasts]
+    tests = [test_contrast(fit, c, alpha) for c in contrasts]
     inf = None
     if inference:
         inf = describe_inference(design, cells, rows, fit, table, contrasts, tests, alpha=alpha,

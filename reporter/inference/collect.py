@@ -33,6 +33,7 @@ from reporter.fitting.linear import ContrastTest, ModelFit, constant_part, fit_c
 from reporter.inference.permutation import (PERMUTATION_MAX_ROWS, SEQUENTIAL_EXCEEDANCES, PermutationResult,
                                          permutation_f_test)
 from reporter.inference.power import Sensitivity, describe_sensitivity
+from reporter.fitting.equivalence import EquivalenceTest, test_contrast
 from reporter.intake.plan import level_key
 from reporter.errors import PlanError
 from reporter.model.hypotheses import compile_effect
@@ -50,6 +51,9 @@ class RobustTest:
     estimate: float | None = None
     ci: tuple[float | None, float | None] | None = None
     note: str | None = None
+    # An equivalence claim's Welch-type two one-sided tests (p is the larger one-sided p, ci the
+    # 1 − 2α interval); None otherwise.
+    equivalence: EquivalenceTest | None = None
 
 
 @dataclass(frozen=True)
@@ -173,6 +177,14 @@ def _robust_for(contrast, cells: CellStats, one_way_effect: bool, alpha: float, 
     h_off = -constant_part(contrast.weights, contrast.rhs, cells.pivot_exact)
     lab = None if labels is None else tuple(np.asarray(labels, dtype=object)[o])
     try:
+        if contrast.is_equivalence:
+            # bound − pivot·Σc, exact then rounded once: the bounds on the offset scale
+            off = -constant_part(contrast.weights * 2, contrast.bounds, cells.pivot_exact)
+            shift = float(cells.pivot_exact * sum(contrast.weights[0], Fraction(0)))
+            e = R.welch_tost(C[0], n, m, ss, (float(off[0]), float(off[1])), alpha=alpha, labels=lab, shift=shift,
+                             bounds_shown=tuple(float(b) for b in contrast.bounds))
+            return RobustTest("Welch–Satterthwaite TOST", "t", e.statistic, e.df, e.p, e.estimate, e.ci,
+                              equivalence=e)
         if contrast.test == "t" and contrast.q == 1:
             r = R.welch_contrast(C[0], n, m, ss, h=float(h_off[0]), alternative=contrast.alternative, alpha=alpha,
                                  labels=lab)
@@ -260,7 +272,8 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
                 try:
                     # C·ȳ − h as fitted (exact pivot part), not the estimate minus h again.
                     sc = standardized_contrast([float(w) for w in c.weights[0]], 0.0, t.row_estimates[0], cells.n,
-                                               fit.mse, fit.df_error, level=1 - alpha, alternative=c.alternative)
+                                               fit.mse, fit.df_error, level=1 - alpha,
+                                               alternative="two-sided" if c.is_equivalence else c.alternative)
                     primary, sizes = sc.d, (sc.d, sc.g)
                 except FitError as exc:
                     es_note = f"no standardized contrast: {exc}"
@@ -432,5 +445,5 @@ def _outlier_sensitivity(design, cells, flagged, contrasts, alpha) -> OutlierSen
         if touched:
             out.append((c.name, None, "removing the flagged rows empties a cell this hypothesis needs"))
             continue
-        out.append((c.name, fit_contrast(fit2, c.weights, c.rhs, c.alternative, alpha, c.test), None))
+        out.append((c.name, test_contrast(fit2, c, alpha), None))
     return OutlierSensitivity(removed, tuple(out), flagged.total)

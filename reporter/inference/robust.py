@@ -663,3 +663,45 @@ def hc3_contrast_adjusted(c, d: float, h: float, hc: AdjustedCovariance, *, alte
         raise FitError("the HC3 t is undefined: the contrast has no HC3 variance (the cells it uses "
                        "have too little spread)")
     return _t_result(float(d) + float(h), float(h), float(d), math.sqrt(var), float(hc.df), alternative, alpha)
+
+
+def welch_tost(c, n, mean, ss, bounds, *, alpha: float = 0.05, labels=None, shift: float = 0.0,
+               bounds_shown: tuple[float, float] | None = None):
+    """Welch-type two one-sided tests of ``LOW < c'mu < HIGH``: each side is the
+    Welch–Satterthwaite t of :func:`welch_contrast` (separate cell variances, Satterthwaite df)
+    against its bound, the p is the larger one-sided p and the interval the 1 − 2α Welch interval
+    (Schuirmann 1987, Journal of Pharmacokinetics and Biopharmaceutics 15, 657-680, with the
+    unequal-variance t of Welch 1947, Biometrika 34, 28-35).
+
+    ``mean`` and ``bounds`` may be offsets from a pivot; ``shift`` (pivot times the sum of c) is
+    then added back to the estimate, the interval and the bounds reported (the decision is made on
+    the offsets). Returns a :class:`reporter.fitting.equivalence.EquivalenceTest`.
+    """
+    from reporter.fitting.equivalence import EquivalenceTest, OneSided, decide
+
+    low, high = (float(b) for b in bounds)
+    lower = welch_contrast(c, n, mean, ss, h=low, alternative="greater", alpha=alpha, labels=labels)
+    upper = welch_contrast(c, n, mean, ss, h=high, alternative="less", alpha=alpha, labels=labels)
+    middle = welch_contrast(c, n, mean, ss, h=0.0, alternative="two-sided", alpha=2 * alpha, labels=labels)
+    deciding = lower if lower.p >= upper.p else upper
+    shown = (low + shift, high + shift) if bounds_shown is None else tuple(bounds_shown)
+    return EquivalenceTest(
+        test="t",
+        alternative="equivalence",
+        df=(middle.df,),
+        statistic=deciding.statistic,
+        p=max(lower.p, upper.p),
+        ss=float("nan"),
+        q=1,
+        row_estimates=(middle.estimate + shift,),
+        estimate=middle.estimate + shift,
+        se=middle.se,
+        ci=(middle.ci_low + shift, middle.ci_high + shift),
+        ci_sides=2,
+        ci_level=1.0 - 2 * alpha,
+        rhs=0.0,
+        lower=OneSided(shown[0], lower.statistic, lower.p),
+        upper=OneSided(shown[1], upper.statistic, upper.p),
+        bounds=shown,
+        decision=decide((middle.ci_low, middle.ci_high), (low, high)),
+    )

@@ -35,7 +35,7 @@ from __future__ import annotations
 import difflib
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from fractions import Fraction
 from typing import Sequence
 
@@ -64,6 +64,10 @@ _NUMBER_MAX = Fraction(10) ** D.STATEMENT_NUMBER_EXPONENT
 _NUMBER_MIN = 1 / _NUMBER_MAX
 _NAME = re.compile(r"[^\W\d]\w*(?:[.]\w+)*", re.UNICODE)
 _PLAIN_NAME = re.compile(r"^[^\W\d]\w*(?:[.]\w+)*$", re.UNICODE)
+_SD_SUFFIX = re.compile(r"sd(?![\w.])", re.UNICODE)
+
+#: The word after a number that puts it in residual standard deviations (``0.3 sd``).
+SD_UNIT = "sd"
 
 
 def _caret(source: str, pos: int, width: int = 1) -> str:
@@ -109,6 +113,13 @@ def tokenize(source: str, context: str = "") -> list[Token]:
         m = _NUMBER.match(source, i)
         if m:
             after = m.end()
+            unit = _SD_SUFFIX.match(source, after)
+            if unit:  # "0.3sd": the number, then the unit word
+                _check_number(source, i, m.group(), context)
+                tokens.append(Token("NUMBER", m.group(), i))
+                tokens.append(Token("NAME", "sd", after))
+                i = unit.end()
+                continue
             if after < len(source) and (source[after].isalpha() or source[after] == "_"):
                 j = after
                 while j < len(source) and (source[j].isalnum() or source[j] in "_.-"):
@@ -196,9 +207,12 @@ def _short(text: str) -> str:
 
 @dataclass(frozen=True)
 class Num:
+    """A number; ``unit`` is "sd" for a constant in residual standard deviations (``0.3 sd``)."""
+
     value: Fraction
     pos: int = 0
     width: int = 1
+    unit: str | None = None
 
 
 @dataclass(frozen=True)
@@ -288,6 +302,12 @@ class _Parser:
             rels.append(self.tok.text)
             self.i += 1
             sides.append(self.expr())
+        if self.tok.kind == "NAME" and self.tok.text == SD_UNIT:
+            raise self.fail(
+                self.tok,
+                "'sd' follows a number only: 0.3 sd is a constant in residual standard deviations. It cannot "
+                "follow a mean or a parenthesis; write the constant on its own, as in a - b > 0.3 sd.",
+            )
         if self.tok.kind != "END":
             raise self.fail(self.tok, f"unexpected '{self.tok.text}'; expected an operator (+ - * /), a relation (> < =) or the end.")
         return Statement(tuple(sides), tuple(rels), self.source)
@@ -322,6 +342,10 @@ class _Parser:
         t = self.tok
         if t.kind == "NUMBER":
             self.i += 1
+            nxt = self.tok
+            if nxt.kind == "NAME" and nxt.text == SD_UNIT:
+                self.i += 1
+                return Num(Fraction(t.text), t.pos, nxt.pos + len(nxt.text) - t.pos, SD_UNIT)
             return Num(Fraction(t.text), t.pos, len(t.text))
         if t.kind == "LPAREN":
             self.i += 1
@@ -420,7 +444,13 @@ def unparse(node: Expr | Statement) -> str:
 
 def _unparse(node: Expr, outer: int) -> str:
     if isinstance(node, Num):
-        return _number_text(node.value, outer)
+        text = _number_text(node.value, outer)
+        if node.unit is None:
+            return text
+        if text.startswith("("):  # not a terminating decimal: p sd / q reads back as the same constant
+            text = f"{node.value.numerator} {node.unit} / {node.value.denominator}"
+            return f"({text})" if outer >= 2 else text
+        return f"{text} {node.unit}"
     if isinstance(node, Mean):
         if len(node.pairs) == 1 and node.pairs[0][0] is None:
             return _name_text(node.pairs[0][1])
@@ -440,18 +470,28 @@ def _unparse(node: Expr, outer: int) -> str:
 
 @dataclass(frozen=True)
 class _Linear:
+    """weights·mu + const + const_sd·sigma: a linear form over the cell means, with a constant in the
+    outcome's units and one in residual standard deviations."""
+
     weights: tuple[Fraction, ...]
     const: Fraction
+    const_sd: Fraction = Fraction(0)
 
     @property
     def is_constant(self) -> bool:
         return all(w == 0 for w in self.weights)
 
+    @property
+    def is_number(self) -> bool:
+        """A plain number: no mean and no part in sd units (the only thing that may multiply)."""
+        return self.is_constant and self.const_sd == 0
+
     def __add__(self, other: "_Linear") -> "_Linear":
-        return _Linear(tuple(a + b for a, b in zip(self.weights, other.weights)), self.const + other.const)
+        return _Linear(tuple(a + b for a, b in zip(self.weights, other.weights)), self.const + other.const,
+                       self.const_sd + other.const_sd)
 
     def scale(self, s: Fraction) -> "_Linear":
-        return _Linear(tuple(w * s for w in self.weights), self.const * s)
+        return _Linear(tuple(w * s for w in self.weights), self.const * s, self.const_sd * s)
 
 
 class _Evaluator:
@@ -466,6 +506,8 @@ class _Evaluator:
 
     def eval(self, node: Expr) -> _Linear:
         if isinstance(node, Num):
+            if node.unit == SD_UNIT:
+                return _Linear((Fraction(0),) * self.k, Fraction(0), node.value)
             return _Linear((Fraction(0),) * self.k, node.value)
         if isinstance(node, Mean):
             return _Linear(self.mean_weights(node), Fraction(0))
@@ -479,11 +521,20 @@ class _Evaluator:
         if node.op == "*":
             if not left.is_constant and not right.is_constant:
                 raise self.fail(node, "multiplies two means; numbers are coefficients only, so write e.g. 2*a, not a*b.")
-            if left.is_constant:
+            if left.is_number:
                 return right.scale(left.const)
-            return left.scale(right.const)
+            if right.is_number:
+                return left.scale(right.const)
+            if left.is_constant and right.is_constant:
+                raise self.fail(node, "multiplies two constants in sd units (that would be in squared SDs); a "
+                                      "coefficient is a plain number, as in 2 * 0.3 sd.")
+            raise self.fail(node, "multiplies a mean by a constant in sd units; 'sd' marks a constant in residual "
+                                  "standard deviations, not a coefficient. Write the constant on its own, as in "
+                                  "a - b > 0.3 sd.")
         if not right.is_constant:
             raise self.fail(node, "divides by a mean; only division by a number is linear, as in (a + b)/2.")
+        if right.const_sd != 0:
+            raise self.fail(node, "divides by a constant in sd units; divide only by a plain number, as in 0.6 sd / 2.")
         if right.const == 0:
             raise self.fail(node, "divides by zero.")
         return left.scale(1 / right.const)
@@ -527,6 +578,12 @@ class _Evaluator:
         if len(found) > 1:
             forms = " or ".join(f"mean({_name_text(f)}={_level_text(lv)})" for f, lv in found)
             raise self.fail(node, f"'{name}' is a level of more than one factor; write {forms}.")
+        if key == level_key(SD_UNIT) and not found:
+            raise self.fail(
+                node,
+                "'sd' is not a level of any factor. A constant in residual standard deviations is a number "
+                "followed by sd, as in a - b > 0.3 sd.",
+            )
         if any(f.name == name for f in d.factors):
             raise self.fail(
                 node,
@@ -572,6 +629,18 @@ class Contrast:
     notes: tuple[str, ...] = ()
     role: str = "planned"
     factors: tuple[str, ...] = ()  # for effect hypotheses: the factors of the effect
+    # An equivalence claim (alternative "equivalence", ``LOW < c'mu < HIGH``): the bounds, exact, in
+    # ``unit``; rhs is then 0 (C·mu itself is estimated).
+    bounds: tuple[Fraction, Fraction] | None = None
+    # The unit of rhs and bounds: "raw" (the outcome's units) or "sd" (residual standard deviations,
+    # as written with ``0.3 sd``; converted with the fitted residual SD by :func:`in_outcome_units`).
+    unit: str = "raw"
+    # After :func:`in_outcome_units` converted sd units: the residual SD used and the constants as written.
+    from_sd: "SdConversion | None" = None
+
+    @property
+    def is_equivalence(self) -> bool:
+        return self.alternative == EQUIVALENCE
 
     @property
     def C(self) -> np.ndarray:
@@ -589,8 +658,17 @@ class Contrast:
     def q(self) -> int:
         return len(self.weights)
 
+    def equivalence_parts(self) -> tuple[str, str, str]:
+        """The expression and the LOW and HIGH sides of an equivalence claim, as written."""
+        stmt = parse(self.statement)
+        low, high = (stmt.sides[0], stmt.sides[2]) if stmt.relations[0] == "<" else (stmt.sides[2], stmt.sides[0])
+        return unparse(stmt.sides[1]), unparse(low), unparse(high)
+
     def null_text(self) -> str:
         """H0 in symbols."""
+        if self.is_equivalence:
+            mid, low, high = self.equivalence_parts()
+            return f"{mid} ≤ {low} or {mid} ≥ {high}"
         if self.kind == "effect":
             if len(self.factors) == 1:
                 return f"the unweighted marginal means of {self.factors[0]} are all equal"
@@ -603,6 +681,9 @@ class Contrast:
 
     def alternative_text(self) -> str:
         """H1 in symbols."""
+        if self.is_equivalence:
+            mid, low, high = self.equivalence_parts()
+            return f"{low} < {mid} < {high}"
         if self.kind == "effect":
             if len(self.factors) == 1:
                 return f"at least two unweighted marginal means of {self.factors[0]} differ"
@@ -623,6 +704,42 @@ class Contrast:
                 last = t.pos + 1
         out.append(self.statement[last:])
         return "".join(out)
+
+
+EQUIVALENCE = "equivalence"
+
+
+@dataclass(frozen=True)
+class SdConversion:
+    """Constants written in residual SDs, and the fitted residual SD that put them in the outcome's
+    units (the bounds are then estimated from the data; Lakens 2017, "Equivalence tests: a practical
+    primer for t tests, correlations, and meta-analyses", Social Psychological and Personality
+    Science 8, 355-362)."""
+
+    residual_sd: float
+    rhs: tuple[Fraction, ...]
+    bounds: tuple[Fraction, Fraction] | None
+
+
+def in_outcome_units(contrast: Contrast, residual_sd: float) -> Contrast:
+    """The contrast with constants in sd units multiplied by the fitted residual SD (exactly, as
+    fractions; rounded once when used); a contrast in the outcome's units is returned unchanged."""
+    if contrast.unit != SD_UNIT:
+        return contrast
+    s = Fraction(residual_sd)
+    return replace(
+        contrast,
+        rhs=tuple(h * s for h in contrast.rhs),
+        bounds=None if contrast.bounds is None else (contrast.bounds[0] * s, contrast.bounds[1] * s),
+        unit="raw",
+        from_sd=SdConversion(float(residual_sd), contrast.rhs, contrast.bounds),
+    )
+
+
+def constant_text(value: Fraction, unit: str) -> str:
+    """A constant as a statement writes it (``-0.3 sd``, ``2``)."""
+    return unparse(Num(value, unit=None if unit != SD_UNIT else SD_UNIT)) if value >= 0 else \
+        "-" + constant_text(-value, unit)
 
 
 def _fr(row) -> tuple[Fraction, ...]:
@@ -712,13 +829,16 @@ def compile_statement(
     if all(s.is_constant for s in sides):
         raise _error(source, 0, len(source), "has no mean in it; name at least one level or mean(...).", context)
     directional = [r for r in rels if r in "<>"]
+    if len(rels) == 2 and len(directional) == 2 and (sides[0].is_constant or sides[2].is_constant):
+        return _compile_equivalence(design, stmt, sides, name, role, context)
     if directional and len(rels) > 1:
         tok = next(t for t in tokenize(source) if t.kind == "REL" and t.text in "<>")
         if all(r in "<>" for r in rels):
             raise _error(
                 source, tok.pos, 1,
                 "chains more than one > or <. A directional hypothesis compares two sides; split the "
-                "chain into separate [[hypotheses]] (e.g. a > b and b > c).",
+                "chain into separate [[hypotheses]] (e.g. a > b and b > c). An equivalence claim has "
+                "constants at both ends: LOW < a - b < HIGH.",
                 context,
             )
         raise _error(
@@ -736,16 +856,17 @@ def compile_statement(
                     "equality twice. Name each mean once, e.g. a = b = c.",
                     context,
                 )
+    unit = _statement_unit(stmt, sides, context)
     rows, rhs, labels = [], [], []
     for i in range(len(sides) - 1):
         diff = sides[i] + sides[i + 1].scale(Fraction(-1))
         rows.append(diff.weights)
-        rhs.append(-diff.const)
+        rhs.append(-(diff.const_sd if unit == SD_UNIT else diff.const))
         left_src, right_src = unparse(stmt.sides[i]), unparse(stmt.sides[i + 1])
         labels.append(f"'{left_src} {rels[i]} {right_src}'")
         if all(w == 0 for w in diff.weights):
             start, end = _span(stmt.sides[i + 1])
-            if diff.const == 0:
+            if diff.const == 0 and diff.const_sd == 0:
                 raise _error(
                     source, start, end - start,
                     f"compares a mean with itself ({left_src} {rels[i]} {right_src} holds whatever the data); "
@@ -775,6 +896,105 @@ def compile_statement(
         beta_weights=_beta_weights(design, rows),
         notes=tuple(notes),
         role=role,
+        unit=unit,
+    )
+
+
+def _sd_nodes(node: Expr) -> list[Num]:
+    """Every constant written in sd units in an expression, left to right."""
+    if isinstance(node, Num):
+        return [node] if node.unit == SD_UNIT else []
+    if isinstance(node, Neg):
+        return _sd_nodes(node.operand)
+    if isinstance(node, BinOp):
+        return _sd_nodes(node.left) + _sd_nodes(node.right)
+    return []
+
+
+_MIXED_UNITS = (
+    "mixes constants in the outcome's units with constants in sd units; state every constant of the "
+    "statement in one unit (all plain numbers, or all followed by sd, as in a - b > 0.3 sd)."
+)
+
+
+def _statement_unit(stmt: Statement, sides: Sequence[_Linear], context: str) -> str:
+    """The unit of the statement's constants ("raw" or "sd"); a statement of several equalities
+    (an F test) and a statement mixing the two units are refused."""
+    source = stmt.source
+    sd_nodes = [n for side in stmt.sides for n in _sd_nodes(side)]
+    if not sd_nodes:
+        return "raw"
+    if len(stmt.relations) > 1:
+        first = sd_nodes[0]
+        raise _error(
+            source, first.pos, first.width,
+            "uses a constant in sd units in a chain of equalities, which is tested by F; a bound in residual "
+            "SDs belongs to a statement of one relation (a - b > 0.3 sd) or to an equivalence claim "
+            "(-0.3 sd < a - b < 0.3 sd).",
+            context,
+        )
+    diff = sides[0] + sides[1].scale(Fraction(-1))
+    if diff.const != 0 and diff.const_sd != 0:
+        raise _error(source, 0, len(source), _MIXED_UNITS, context)
+    return SD_UNIT if diff.const_sd != 0 else "raw"
+
+
+def _compile_equivalence(design: Design, stmt: Statement, sides: Sequence[_Linear], name: str, role: str,
+                         context: str) -> Contrast:
+    """``LOW < expr < HIGH`` (or ``HIGH > expr > LOW``) with constant ends: an equivalence claim,
+    tested by two one-sided tests (Schuirmann 1987, Journal of Pharmacokinetics and
+    Biopharmaceutics 15, 657-680)."""
+    source, rels = stmt.source, stmt.relations
+    rel_tokens = [t for t in tokenize(source) if t.kind == "REL"]
+    if rels[0] != rels[1]:
+        raise _error(
+            source, rel_tokens[1].pos, 1,
+            "mixes the directions < and > in one chain. An equivalence claim reads LOW < a - b < HIGH "
+            "(or HIGH > a - b > LOW); two directional claims go in separate [[hypotheses]].",
+            context,
+        )
+    for j in (0, 2):
+        if not sides[j].is_constant:
+            start, end = _span(stmt.sides[j])
+            raise _error(
+                source, start, end - start,
+                f"an equivalence claim LOW < expr < HIGH needs constants at both ends, but "
+                f"'{unparse(stmt.sides[j])}' contains a mean. Write the bounds as numbers (2, -0.3 sd).",
+                context,
+            )
+    mid = sides[1]
+    low_at, high_at = (0, 2) if rels[0] == "<" else (2, 0)
+    low = sides[low_at] + mid.scale(Fraction(-1))
+    high = sides[high_at] + mid.scale(Fraction(-1))
+    low, high = _Linear(mid.weights, low.const, low.const_sd), _Linear(mid.weights, high.const, high.const_sd)
+    if any(b.const != 0 and b.const_sd != 0 for b in (low, high)) or (
+        (low.const != 0 or high.const != 0) and (low.const_sd != 0 or high.const_sd != 0)
+    ):
+        raise _error(source, 0, len(source), _MIXED_UNITS, context)
+    unit = SD_UNIT if (low.const_sd != 0 or high.const_sd != 0) else "raw"
+    lo = low.const_sd if unit == SD_UNIT else low.const
+    hi = high.const_sd if unit == SD_UNIT else high.const
+    if lo >= hi:
+        start, end = _span(stmt.sides[low_at])
+        raise _error(
+            source, start, end - start,
+            f"the lower bound ({constant_text(lo, unit)}) is not below the upper bound "
+            f"({constant_text(hi, unit)}); an equivalence claim reads LOW < expr < HIGH with LOW below HIGH.",
+            context,
+        )
+    rows = [mid.weights]
+    return Contrast(
+        name=name,
+        statement=source.strip(),
+        kind="means",
+        test="t",
+        alternative=EQUIVALENCE,
+        weights=tuple(rows),
+        rhs=(Fraction(0),),
+        beta_weights=_beta_weights(design, rows),
+        role=role,
+        bounds=(lo, hi),
+        unit=unit,
     )
 
 

@@ -83,7 +83,9 @@ def render_check(prep, checks=()) -> str:
 
     out.append(f"Hypotheses ({len(prep.contrasts)})")
     for i, h in enumerate(prep.contrasts, start=1):
-        test = "one-sided t" if h.alternative in ("greater", "less") else ("two-sided t" if h.test == "t" else f"F with {h.q} numerator df")
+        test = ("one-sided t" if h.alternative in ("greater", "less") else
+                "two one-sided t tests (equivalence)" if h.is_equivalence else
+                ("two-sided t" if h.test == "t" else f"F with {h.q} numerator df"))
         out.append(f"  [{i}] {h.name}  ({h.role}; {test})")
         if h.kind == "means":
             out.append(f"      statement  {h.statement}")
@@ -93,10 +95,13 @@ def render_check(prep, checks=()) -> str:
         out.append(f"      H1: {h.alternative_text()}")
         for n in h.notes:
             out.append(f"      note: {n}")
-        cell_rows = [[_fr(w) for w in row] + ["=", _fr(r)] for row, r in zip(h.weights, h.rhs)]
+        unit = " sd" if h.unit == "sd" else ""
+        rel, rhs = ("=", [_fr(r) + unit for r in h.rhs]) if not h.is_equivalence else \
+            ("in", [f"({_fr(h.bounds[0])}{unit}, {_fr(h.bounds[1])}{unit})"])
+        cell_rows = [[_fr(w) for w in row] + [rel, r] for row, r in zip(h.weights, rhs)]
         out.append("      over cell means (C·μ = h)" + (f", cells named {'/'.join(names)}:" if len(names) > 1 else ":"))
         out += ["        " + line for line in _table([c.short for c in design.cells] + ["", "h"], cell_rows, right=set(range(design.k + 2)))]
-        beta_rows = [[_fr(w) for w in row] + ["=", _fr(r)] for row, r in zip(h.beta_weights, h.rhs)]
+        beta_rows = [[_fr(w) for w in row] + [rel, r] for row, r in zip(h.beta_weights, rhs)]
         out.append("      over coefficients (L·β = h, L = C·D):")
         out += ["        " + line for line in _table([c.symbol for c in coefs] + ["", "h"], beta_rows, right=set(range(len(coefs) + 2)))]
     out.append("")

@@ -122,20 +122,28 @@ def _rref(rows: list[list[Fraction]]) -> tuple[tuple[Fraction, ...], ...]:
     return tuple(tuple(row) for row in m[:r])
 
 
-def canonical_contrast(weights, rhs, alternative: str, cells, columns) -> tuple:
+def canonical_contrast(weights, rhs, alternative: str, cells, columns, bounds=None, unit: str = "raw") -> tuple:
     """The canonical form of C·μ = h over ``columns`` (cell level tuples); ``cells`` names the
-    columns of ``weights``. Weights on cells outside ``columns`` make the form differ."""
+    columns of ``weights``. Weights on cells outside ``columns`` make the form differ. The unit of
+    the constants ("raw" or "sd") is part of the form, and so are an equivalence claim's bounds
+    (``LOW < c'μ < HIGH`` is the same claim as ``-HIGH < -c'μ < -LOW``)."""
     index = {c: j for j, c in enumerate(cells)}
     rows = []
     for row, h in zip(weights, rhs):
         rows.append([Fraction(row[index[c]]) if c in index else Fraction(0) for c in columns] + [Fraction(h)])
     if alternative == "two-sided":
-        return ("two-sided", _rref(rows))
+        return ("two-sided", unit, _rref(rows))
     row = rows[0]
+    if alternative == "equivalence":
+        low, high = (Fraction(b) for b in bounds)
+        first = next((x for x in row[:-1] if x != 0), Fraction(1))
+        scaled = tuple(x / first for x in row[:-1])
+        ends = sorted((low / first, high / first))
+        return ("equivalence", unit, scaled, tuple(ends))
     if alternative == "less":
         row = [-x for x in row]
     first = next((x for x in row[:-1] if x != 0), Fraction(1))
-    return ("greater", (tuple(x / abs(first) for x in row),))
+    return ("greater", unit, (tuple(x / abs(first) for x in row),))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -162,8 +170,10 @@ def check_against_lock(lock: Lock, prep) -> LockCheck:
 
 def _hypotheses(lock: Lock, contrasts, cells_now) -> list[Deviation]:
     columns = sorted(set(lock.cells) | set(cells_now))
-    old = {h.name: (h, canonical_contrast(h.weights, h.rhs, h.alternative, lock.cells, columns)) for h in lock.hypotheses}
-    new = {c.name: (c, canonical_contrast(c.weights, c.rhs, c.alternative, cells_now, columns)) for c in contrasts}
+    old = {h.name: (h, canonical_contrast(h.weights, h.rhs, h.alternative, lock.cells, columns, h.bounds, h.unit))
+           for h in lock.hypotheses}
+    new = {c.name: (c, canonical_contrast(c.weights, c.rhs, c.alternative, cells_now, columns, c.bounds, c.unit))
+           for c in contrasts}
     out: list[Deviation] = []
     unmatched_old = [n for n in old if n not in new]
     for name, (c, form) in new.items():

@@ -81,6 +81,8 @@ def compiled_hypotheses(contrasts) -> list[dict[str, Any]]:
             "alternative": c.alternative,
             "cells": [[fraction_text(w) for w in row] for row in c.weights],
             "rhs": [fraction_text(x) for x in c.rhs],
+            **({"unit": c.unit} if c.unit != "raw" else {}),
+            **({"bounds": [fraction_text(x) for x in c.bounds]} if c.bounds is not None else {}),
         }
         for c in contrasts
     ]
@@ -204,6 +206,8 @@ class LockedHypothesis:
     alternative: str
     weights: tuple[tuple[Fraction, ...], ...]
     rhs: tuple[Fraction, ...]
+    bounds: tuple[Fraction, Fraction] | None = None  # an equivalence claim's bounds, in ``unit``
+    unit: str = "raw"  # "raw" or "sd": the unit of rhs and bounds as written
 
 
 @dataclass(frozen=True)
@@ -244,6 +248,8 @@ def read_lock(path: str | os.PathLike) -> Lock:
                 test=str(h["test"]), alternative=str(h["alternative"]),
                 weights=tuple(tuple(Fraction(str(w)) for w in row) for row in h["cells"]),
                 rhs=tuple(Fraction(str(x)) for x in h["rhs"]),
+                bounds=None if h.get("bounds") is None else tuple(Fraction(str(x)) for x in h["bounds"]),
+                unit=str(h.get("unit", "raw")),
             )
             for h in doc["hypotheses"]
         )

@@ -147,6 +147,7 @@ leaf = st.one_of(
     st.sampled_from(LEVELS).map(lambda s: Mean(((None, s),))),
     st.sampled_from(LEVELS).map(lambda s: Mean((("medium", s),))),
     st.fractions(min_value=-20, max_value=20, max_denominator=8).map(lambda f: Num(abs(f))),
+    st.decimals(min_value=0, max_value=5, places=2).map(lambda d: Num(Fr(d), unit="sd")),
 )
 
 
