@@ -464,7 +464,10 @@ def _results_projects(folder: Path) -> list[Path]:
         '[[factors]]\nname = "B"\nlevels = ["b1", "b2", "b3"]\n'
         '[analysis]\ncoding = "sum-to-zero"\npermutations = 0\n'
         '[[hypotheses]]\nname = "above three"\nmeans = "mean(A=a1, B=b1) > 3"\n'
-        '[[hypotheses]]\nname = "a differs at b1"\nmeans = "mean(A=a1, B=b1) = mean(A=a2, B=b1)"\n', encoding="utf-8")
+        '[[hypotheses]]\nname = "a differs at b1"\nmeans = "mean(A=a1, B=b1) = mean(A=a2, B=b1)"\n'
+        '[[hypotheses]]\nname = "a equivalent at b2"\nmeans = "-0.5 sd < mean(A=a1, B=b2) - mean(A=a2, B=b2) < 0.5 sd"\n'
+        '[[hypotheses]]\nname = "a not worse at b1"\nmeans = "mean(A=a1, B=b1) - mean(A=a2, B=b1) > -0.3 sd"\n',
+        encoding="utf-8")
     plans.append(special / "plan.toml")
     # 4. rounded cell summaries
     summ = folder / "summary"
@@ -474,7 +477,8 @@ def _results_projects(folder: Path) -> list[Path]:
     (summ / "plan.toml").write_text(
         'title = "Cell summaries (simulated)"\n[data]\npath = "cells.csv"\noutcome = "y"\nlayout = "cell-summaries"\n'
         '[[factors]]\nname = "g"\nlevels = ["a", "b", "c"]\n'
-        '[[hypotheses]]\nname = "c above a"\nmeans = "c > a"\n[[hypotheses]]\nname = "groups differ"\neffect = "g"\n',
+        '[[hypotheses]]\nname = "c above a"\nmeans = "c > a"\n[[hypotheses]]\nname = "groups differ"\neffect = "g"\n'
+        '[[hypotheses]]\nname = "b within 2 of a"\nmeans = "-2 < b - a < 2"\n',
         encoding="utf-8")
     plans.append(summ / "plan.toml")
     # 5. many rows: a sampled Shapiro–Wilk test, summarized Q–Q points, a skipped permutation F

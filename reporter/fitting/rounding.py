@@ -138,6 +138,10 @@ def bound_rounding(
     hyps = []
     for c, t in zip(contrasts, tests):
         C = c.C[:, o]
+        if getattr(c, "is_equivalence", False):
+            if c.from_sd is None:  # bounds in SDs move with the SD as well; those claims are not bounded
+                hyps.append(_tost_bounds(c, t, C[0], cells, n, mu, u, dfe, sse))
+            continue
         const = constant_part(c.weights, c.rhs, cells.pivot_exact)
         if t.test == "t":
             hyps.append(_t_bounds(c.name, C[0], float(const[0]), n, mu, u, dfe, sse, c.alternative, t))
@@ -240,6 +244,21 @@ def _f_bounds(name, B, b, mu, u, q, dfe, sse, F, p) -> StatisticBounds:
     p_hi = float(f_sf(f_lo, q, dfe))
     p_lo = float(f_sf(f_hi, q, dfe)) if math.isfinite(f_hi) else 0.0
     return StatisticBounds(name, "F", float(F), f_lo, f_hi, float(p), p_lo, p_hi, lo_exact and hi_exact)
+
+
+def _tost_bounds(contrast, test, c, cells, n, mu, u, dfe, sse) -> StatisticBounds:
+    """An equivalence claim: each one-sided t bounded as a one-sided test against its bound; the
+    decision p (the larger one) lies between the larger of the low ends and the larger of the high
+    ends. The statistic's range is that of the side deciding at the reported values."""
+    ends = []
+    for bound, side, alternative in ((contrast.bounds[0], test.lower, "greater"),
+                                     (contrast.bounds[1], test.upper, "less")):
+        const = float(constant_part(contrast.weights, (bound,), cells.pivot_exact)[0])
+        ends.append(_t_bounds(contrast.name, c, const, n, mu, u, dfe, sse, alternative, side))
+    low, high = ends
+    deciding = low if test.lower.p >= test.upper.p else high
+    return StatisticBounds(contrast.name, "t", float(test.statistic), deciding.low, deciding.high, float(test.p),
+                           max(low.p_low, high.p_low), max(low.p_high, high.p_high), True)
 
 
 def _t_bounds(name, c, const, n, mu, u, dfe, sse, alternative, test) -> StatisticBounds:

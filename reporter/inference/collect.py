@@ -32,7 +32,7 @@ from reporter.inference.effectsizes import AnovaEffectSizes, EffectSize, describ
 from reporter.fitting.linear import ContrastTest, ModelFit, constant_part, fit_contrast, fit_model
 from reporter.inference.permutation import (PERMUTATION_MAX_ROWS, SEQUENTIAL_EXCEEDANCES, PermutationResult,
                                          permutation_f_test)
-from reporter.inference.power import Sensitivity, describe_sensitivity
+from reporter.inference.power import EquivalencePower, Sensitivity, describe_equivalence_power, describe_sensitivity
 from reporter.fitting.equivalence import EquivalenceTest, test_contrast
 from reporter.intake.plan import level_key
 from reporter.errors import PlanError
@@ -68,6 +68,8 @@ class HypothesisExtras:
     confirmatory_p: float
     reason: str
     effect_size_note: str | None = None  # why no effect size is given, when none is
+    # An equivalence claim: the power of its two one-sided tests and the n per cell for each power.
+    equivalence_power: EquivalencePower | None = None
 
 
 @dataclass(frozen=True)
@@ -311,7 +313,11 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
         else:
             choice, reason = "classical", "the plan makes the classical test confirmatory"
         p = rob.p if choice == "robust" else t.p
-        extras.append(HypothesisExtras(primary, sizes, rob, perm, choice, p, reason, es_note))
+        eq_power = None
+        if c.is_equivalence:
+            eq_power = attempt(f"power of the equivalence test '{c.name}'", describe_equivalence_power, c.weights[0],
+                               cells.n, c.bounds, fit.residual_sd, fit.df_error, alpha=alpha)
+        extras.append(HypothesisExtras(primary, sizes, rob, perm, choice, p, reason, es_note, eq_power))
 
     kw, kw_note = None, None
     if rows is None:

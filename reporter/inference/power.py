@@ -19,6 +19,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numpy as np
+
 from reporter.errors import FitError, PlanError
 from reporter.numerics.distributions import f_isf
 from reporter.inference.effectsizes import noncentral_f_sf
@@ -261,3 +263,116 @@ def solve_cell_size(
         n_total_exact=n_total_exact,
         convention=NONCENTRALITY_CONVENTION,
     )
+
+
+# ---------------------------------------------------------------------------------------------
+# Equivalence: the power of two one-sided tests
+
+#: The largest equal cell size searched for an equivalence claim.
+TOST_MAX_CELL_SIZE = 10**9
+_TOST_TOL = 1e-12
+
+
+def tost_power(low: float, high: float, se_factor: float, df: float, alpha: float = 0.05,
+               true_difference: float = 0.0) -> float:
+    """Exact power of the two one-sided t tests of ``low < c'mu < high`` (bounds and the true
+    difference in residual SDs; ``se_factor`` = SE of the estimate / sigma, i.e. sqrt(sum c_i^2/n_i)).
+
+    Both tests reject when low + q·S·v < D < high − q·S·v, with D ~ N(delta, v^2) (sigma = 1),
+    S the residual SD estimate (df·S^2 ~ chi^2 on df) independent of D, and q = t(1 − alpha; df).
+    Given S = u the probability is Phi((high − delta)/v − q·u) − Phi((low − delta)/v + q·u), positive
+    only for u < (high − low)/(2·q·v); the power is its integral against the density of u
+    (Owen 1965, "A special case of a bivariate non-central t-distribution", Biometrika 52, 437-446;
+    Phillips 1990, "Power of the two one-sided tests procedure in bioequivalence", Journal of
+    Pharmacokinetics and Biopharmaceutics 18, 137-144), by adaptive Gauss–Kronrod quadrature.
+    """
+    from scipy import special
+
+    from reporter.numerics.distributions import norm_cdf, t_isf
+    from reporter.numerics.quadrature import integrate
+
+    low, high, v, df = float(low), float(high), float(se_factor), float(df)
+    if not (low < high) or not (v > 0) or not (df > 0):
+        raise FitError(f"the power of an equivalence test needs low < high, a positive SE and df (got {low:g}, "
+                       f"{high:g}, {v:g}, {df:g})")
+    q = float(t_isf(alpha, df))
+    top = (high - low) / (2.0 * q * v)
+    a0, b0 = (high - true_difference) / v, (low - true_difference) / v
+    log_norm = math.log(2.0 * df) - (df / 2.0) * math.log(2.0) - special.gammaln(df / 2.0)
+
+    def f(u):
+        u = np.asarray(u, dtype=float)
+        a, b = a0 - q * u, b0 + q * u
+        # Phi(a) - Phi(b), from the side that keeps the digits
+        inside = np.where(a + b > 0, norm_cdf(-b) - norm_cdf(-a), norm_cdf(a) - norm_cdf(b))
+        with np.errstate(divide="ignore"):
+            x = df * u * u
+            log_density = log_norm + np.log(u) + (df / 2.0 - 1.0) * np.log(x) - x / 2.0
+        dens = np.where(u > 0, np.exp(log_density), 0.0)
+        return (np.maximum(inside, 0.0) * dens)[:, None]
+
+    width = 1.0 / math.sqrt(2.0 * df)
+    marks = {0.0, top}
+    for j in range(-10, 11):
+        marks.add(min(top, max(0.0, 1.0 + j * width)))
+    edges = sorted(marks)
+    value = float(integrate(f, edges, _TOST_TOL)[0][0])
+    return min(1.0, max(0.0, value))
+
+
+def tost_cell_size(low: float, high: float, sum_sq: float, k: int, alpha: float, power: float,
+                   true_difference: float = 0.0) -> int | None:
+    """The smallest equal cell size n >= 2 at which the two one-sided tests of a contrast (weights
+    with sum of squares ``sum_sq``, k cells, df = k(n − 1)) reach ``power``; None when the true
+    difference is not inside the bounds (the power never exceeds alpha) or beyond
+    :data:`TOST_MAX_CELL_SIZE`."""
+    if not (low < true_difference < high):
+        return None
+
+    def enough(n: int) -> bool:
+        return tost_power(low, high, math.sqrt(sum_sq / n), k * (n - 1), alpha, true_difference) >= power
+
+    lo, hi = 1, 2
+    while not enough(hi):
+        lo, hi = hi, hi * 2
+        if hi > TOST_MAX_CELL_SIZE:
+            return None
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        if enough(mid):
+            hi = mid
+        else:
+            lo = mid
+    return hi
+
+
+@dataclass(frozen=True)
+class EquivalencePower:
+    """The power of an equivalence claim's two one-sided tests at the study's cell sizes, and the
+    equal cell size each of ``powers`` needs, for a true difference ``true_difference`` (residual
+    SDs). ``bounds_sd`` are the bounds in residual SDs (raw bounds divided by ``sd``, the fitted
+    residual SD, which the sensitivity then takes as known)."""
+
+    bounds_sd: tuple[float, float]
+    sd: float
+    true_difference: float
+    alpha: float
+    power_now: float
+    powers: tuple[float, ...]
+    n_per_cell: tuple[int | None, ...]
+
+
+def describe_equivalence_power(weights, n_cells, bounds, sd: float, df_error: float, alpha: float = 0.05,
+                               powers: tuple[float, ...] = (0.80, 0.90),
+                               true_difference: float = 0.0) -> EquivalencePower:
+    """Power of the TOST of a fitted equivalence claim (cell sizes ``n_cells``, error df) and the
+    equal n per cell for each power; ``bounds`` in the outcome's units, divided by ``sd``."""
+    c = np.asarray([float(w) for w in weights], dtype=float)
+    n = np.asarray(n_cells, dtype=float)
+    used = c != 0
+    v = math.sqrt(math.fsum((c[used] ** 2 / n[used]).tolist()))
+    low, high = float(bounds[0]) / sd, float(bounds[1]) / sd
+    now = tost_power(low, high, v, df_error, alpha, true_difference)
+    sum_sq = math.fsum((c * c).tolist())
+    sizes = tuple(tost_cell_size(low, high, sum_sq, int(n.size), alpha, p, true_difference) for p in powers)
+    return EquivalencePower((low, high), float(sd), float(true_difference), float(alpha), now, tuple(powers), sizes)

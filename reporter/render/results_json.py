@@ -60,6 +60,46 @@ def _robust(r) -> dict[str, Any] | None:
     return out
 
 
+def _tost(t) -> dict[str, Any]:
+    """Two one-sided tests of an equivalence claim (classical or Welch-type)."""
+    return {
+        "bounds": _pair(t.bounds),
+        "lower": {"bound": _num(t.lower.bound), "statistic": _num(t.lower.statistic), "p": _num(t.lower.p)},
+        "upper": {"bound": _num(t.upper.bound), "statistic": _num(t.upper.statistic), "p": _num(t.upper.p)},
+        "p": _num(t.p),
+        "estimate": _num(t.estimate),
+        "se": _num(t.se),
+        "df": _num(t.df[0]),
+        "ci": _pair(t.ci),
+        "ci_level": t.ci_level,
+        "decision": t.decision,
+    }
+
+
+def _equivalence_fields(h) -> dict[str, Any]:
+    """``equivalence`` for an equivalence claim; ``sd_units`` when constants were written in SDs."""
+    c, out = h.contrast, {}
+    if c.is_equivalence:
+        eq = _tost(h.test)
+        rob = None if h.extras is None or h.extras.robust is None else h.extras.robust.equivalence
+        eq["welch"] = None if rob is None else _tost(rob)
+        eq["confirmatory_decision"] = (rob.decision if rob is not None and h.extras.confirmatory == "robust"
+                                       else h.test.decision)
+        pw = None if h.extras is None else h.extras.equivalence_power
+        eq["power"] = None if pw is None else {
+            "bounds_sd": _pair(pw.bounds_sd), "residual_sd": _num(pw.sd), "true_difference_sd": _num(pw.true_difference),
+            "alpha": pw.alpha, "power": _num(pw.power_now), "powers": list(pw.powers), "n_per_cell": list(pw.n_per_cell),
+        }
+        out["equivalence"] = eq
+    if c.from_sd is not None:
+        out["sd_units"] = {
+            "residual_sd": _num(c.from_sd.residual_sd),
+            "rhs": [_frac(x) for x in c.from_sd.rhs],
+            "bounds": None if c.from_sd.bounds is None else [_frac(x) for x in c.from_sd.bounds],
+        }
+    return out
+
+
 def _perm(r) -> dict[str, Any] | None:
     if r is None:
         return None
@@ -324,6 +364,7 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
                 ci_sides=t.ci_sides,
                 ci_level=t.ci_level,
             )
+        entry.update(_equivalence_fields(h))
         hyps.append(entry)
 
     a = plan.analysis

@@ -92,7 +92,8 @@ def power_records(rows) -> list[dict[str, Any]]:
     return [
         {"name": r.name, "test": r.test, "sides": r.sides, "df1": r.df1, "effect_kind": r.effect_kind,
          "effect": r.effect, "powers": list(r.powers), "n_per_cell": list(r.n_per_cell),
-         "achieved_power": list(r.achieved), **({"note": r.reason} if r.reason else {})}
+         "achieved_power": list(r.achieved), **({"note": r.reason} if r.reason else {}),
+         **({"bounds_sd": list(r.bounds), "true_difference_sd": r.true_difference} if r.bounds is not None else {})}
         for r in rows
     ]
 

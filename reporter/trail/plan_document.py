@@ -230,8 +230,12 @@ class _PlanBuilder:
         cols += [Column(runs_of(f"n per cell, {N.format_confidence_level(p)} power"), "right") for p in spec.powers]
         table_rows = []
         for r in rows:
-            test = (f"F({r.df1}, N − {k})" if r.test == "F" else ("t, one-sided" if r.sides == 1 else "t, two-sided"))
+            test = (f"F({r.df1}, N − {k})" if r.test == "F" else "two one-sided t" if r.test == "TOST" else
+                    ("t, one-sided" if r.sides == 1 else "t, two-sided"))
             effect = "—" if r.effect is None else f"{r.effect_kind} = {N.format_number(r.effect, 2)}"
+            if r.bounds is not None:
+                effect = (f"bounds {N.format_number(r.bounds[0], 2)} to {N.format_number(r.bounds[1], 2)} SD, "
+                          "true difference 0")
             ns = [("—" if n is None else f"{N.format_count(n)} (N = {N.format_count(n * k)})") for n in r.n_per_cell]
             table_rows.append((runs_of(r.name), runs_of(test), runs_of(effect), *(runs_of(x) for x in ns)))
         notes = [runs_of(
@@ -240,6 +244,11 @@ class _PlanBuilder:
             "within-cell SD; noncentrality d·√(n / Σc²) for weights c, on k(n − 1) df. "
             f"Each n is the smallest equal cell size reaching the power at α = {N.format_bounded(self.alpha, 2)} for the "
             "test on its own, before the multiplicity adjustment, which lowers the power of all but the first test.")]
+        if any(r.test == "TOST" for r in rows):
+            notes.append(runs_of(
+                "Equivalence claims: the exact power of the two one-sided tests when the true difference is 0, "
+                "from the joint distribution of the two t statistics (Phillips, 1990); bounds in the outcome's "
+                "units are divided by assumed_sd."))
         if spec.smallest_difference is not None:
             notes.append(runs_of(f"d = smallest_difference / assumed_sd = {N.format_number(spec.smallest_difference, 2)} / "
                                  f"{N.format_number(spec.assumed_sd, 2)}."))

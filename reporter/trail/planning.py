@@ -14,6 +14,11 @@ The ``[planning]`` table names the smallest effect of interest (:class:`~reporte
   Designing Experiments and Analyzing Data, 3rd ed., ch. 4). Power is P(T' > t_crit) for a
   directional test at level alpha and P(|T'| > t_crit) with t_crit at alpha/2 for a two-sided one.
 
+* equivalence claims (``LOW < c'mu < HIGH``): the exact power of the two one-sided tests at a true
+  difference of 0 (:func:`reporter.inference.power.tost_power`, Phillips 1990, Journal of
+  Pharmacokinetics and Biopharmaceutics 18, 137-144), with the bounds in residual SDs as written
+  (``0.3 sd``) or, for bounds in the outcome's units, divided by ``assumed_sd``.
+
 Each n is the smallest whole cell size whose power reaches the target; power rises with n, so
 the search doubles n until the target is reached and then bisects.
 """
@@ -24,7 +29,7 @@ import math
 from dataclasses import dataclass
 
 from reporter.inference.effectsizes import noncentral_t_cdf
-from reporter.inference.power import solve_cell_size
+from reporter.inference.power import solve_cell_size, tost_cell_size, tost_power
 from reporter.numerics.distributions import t_isf
 
 __all__ = ["PowerRow", "a_priori_power", "contrast_power", "contrast_cell_size"]
@@ -49,6 +54,10 @@ class PowerRow:
     n_per_cell: tuple[int | None, ...]
     achieved: tuple[float | None, ...]
     reason: str = ""
+    # An equivalence claim (test "TOST", effect_kind "bounds"): LOW and HIGH in residual SDs and the
+    # true difference the power is computed at.
+    bounds: tuple[float, float] | None = None
+    true_difference: float | None = None
 
 
 def contrast_power(d: float, sum_sq: float, n: int, k: int, alpha: float, sides: int) -> float:
@@ -94,7 +103,10 @@ def a_priori_power(plan, design, contrasts) -> tuple[PowerRow, ...]:
     for c in contrasts:
         if c.role != "planned":
             continue
-        sides = 1 if c.alternative != "two-sided" else 2
+        sides = 1 if c.alternative not in ("two-sided", "equivalence") else 2
+        if c.is_equivalence:
+            out.append(_equivalence_row(c, spec, k, alpha))
+            continue
         if c.test == "F" or c.q > 1:
             f = spec.smallest_effect_f
             if f is None:
@@ -115,6 +127,27 @@ def a_priori_power(plan, design, contrasts) -> tuple[PowerRow, ...]:
         reason = "" if None not in ns else f"more than {MAX_CELL_SIZE:,} per cell"
         out.append(PowerRow(c.name, "t", sides, 1, "d", d, spec.powers, ns, achieved, reason))
     return tuple(out)
+
+
+def _equivalence_row(c, spec, k: int, alpha: float) -> PowerRow:
+    """The cell sizes the two one-sided tests of an equivalence claim need, at a true difference of 0."""
+    if c.unit == "sd":
+        low, high = float(c.bounds[0]), float(c.bounds[1])
+    elif spec.assumed_sd:
+        low, high = float(c.bounds[0]) / spec.assumed_sd, float(c.bounds[1]) / spec.assumed_sd
+    else:
+        return PowerRow(c.name, "TOST", 2, 1, "bounds", None, spec.powers, tuple(None for _ in spec.powers),
+                        tuple(None for _ in spec.powers),
+                        "the bounds are in the outcome's units and the plan gives no assumed_sd", None, 0.0)
+    sum_sq = float(sum(w * w for w in c.weights[0]))
+    ns = tuple(tost_cell_size(low, high, sum_sq, k, alpha, p) for p in spec.powers)
+    achieved = tuple(None if n is None else tost_power(low, high, math.sqrt(sum_sq / n), k * (n - 1), alpha)
+                     for n in ns)
+    reason = ""
+    if None in ns:
+        reason = (f"more than {MAX_CELL_SIZE:,} per cell" if low < 0 < high else
+                  "a true difference of 0 lies outside the bounds, so the power never exceeds alpha")
+    return PowerRow(c.name, "TOST", 2, 1, "bounds", None, spec.powers, ns, achieved, reason, (low, high), 0.0)
 
 
 def _missing(c, kind: str, powers, sides: int, reason: str) -> PowerRow:
