@@ -67,6 +67,11 @@ Kinds (keys of :class:`FigureSpec`; a value of ``None`` is a missing value):
     points and its fitted line in the group's colour, marker and dash pattern. The drawing
     shows the points it is given; the caller bounds them (at most 200 per cell, see
     :mod:`reporter.inference.scatter`).
+``"equivalence"``
+    ``claims``, ``estimates``, ``ci_low``, ``ci_high``, ``bound_low``, ``bound_high``; optional
+    ``x_label`` and ``ci_label``. One row per equivalence claim, top to bottom: its bounds as a
+    light band, the 1 − 2α interval as a dark line with end caps and the estimate as a dot, and a
+    dotted vertical line at 0. An interval inside its band is the picture of equivalence.
 
 The jitter is uniform within ±0.17 of a group's position, drawn from one generator with a
 fixed seed in group order; given values in the same order, a row sits at the same sideways
@@ -125,7 +130,7 @@ MUTED = "#6B6B6B"
 GRID = "#E4E4E4"
 """The light horizontal grid."""
 
-KINDS = ("means", "interaction", "qq", "residuals", "adjusted-means", "covariate")
+KINDS = ("means", "interaction", "qq", "residuals", "adjusted-means", "covariate", "equivalence")
 
 FIGSIZE = (6.4, 3.6)
 """Natural size in inches; 460.8 x 259.2 pt in the SVG."""
@@ -482,7 +487,46 @@ def _draw_covariate(ax, data: dict) -> None:
     )
 
 
+def _draw_equivalence(ax, data: dict) -> None:
+    claims = _strings(data, "claims")
+    k = len(claims)
+    est = _numbers(data, "estimates", k)
+    lows, highs = _numbers(data, "ci_low", k), _numbers(data, "ci_high", k)
+    b_lo, b_hi = _numbers(data, "bound_low", k), _numbers(data, "bound_high", k)
+    band = PALETTE[3]
+    for i in range(k):
+        y = k - 1 - i  # the first claim on top
+        if b_lo[i] is not None and b_hi[i] is not None:
+            ax.fill_between([b_lo[i], b_hi[i]], y - 0.32, y + 0.32, color=band, alpha=0.22, linewidth=0,
+                            gid=f"bounds-{i}")
+            for x in (b_lo[i], b_hi[i]):
+                ax.plot([x, x], [y - 0.32, y + 0.32], color=band, linewidth=1.2, zorder=3)
+        if lows[i] is not None and highs[i] is not None:
+            ax.plot([lows[i], highs[i]], [y, y], color=INK, linewidth=1.6, marker="|", markersize=9,
+                    markeredgewidth=1.6, zorder=4, gid=f"ci-{i}")
+        if est[i] is not None:
+            ax.plot([est[i]], [y], linestyle="none", marker="o", markersize=6, color=INK,
+                    markeredgecolor="white", markeredgewidth=0.9, zorder=5, gid=f"estimate-{i}")
+    ax.axvline(0.0, color=MUTED, linewidth=0.9, linestyle=":", zorder=2)
+    ax.set_ylim(-0.7, k - 0.3)
+    ax.set_yticks(range(k))
+    ax.set_yticklabels([textwrap.fill(s, width=28, max_lines=2, placeholder=" …") for s in reversed(claims)],
+                       fontsize=9)
+    ax.grid(False, axis="y")
+    ax.grid(True, axis="x", color=GRID, linewidth=0.6)
+    if data.get("x_label"):
+        ax.set_xlabel(str(data["x_label"]))
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    handles = [Patch(color=band, alpha=0.35, label="Equivalence bounds"),
+               Line2D([], [], color=INK, linewidth=1.6, marker="o", markersize=5, label=str(data.get("ci_label") or "CI"))]
+    ax.legend(handles=handles, loc="lower left", bbox_to_anchor=(0, 1.0), ncols=2, frameon=False,
+              borderaxespad=0.2, handlelength=1.4, columnspacing=1.6)
+
+
 _DRAWERS = {
+    "equivalence": _draw_equivalence,
     "means": _draw_means,
     "interaction": _draw_interaction,
     "qq": _draw_qq,
