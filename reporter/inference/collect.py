@@ -179,6 +179,10 @@ def _robust_for(contrast, cells: CellStats, one_way_effect: bool, alpha: float, 
     h_off = -constant_part(contrast.weights, contrast.rhs, cells.pivot_exact)
     lab = None if labels is None else tuple(np.asarray(labels, dtype=object)[o])
     try:
+        if contrast.is_equivalence and getattr(cells, "covariates", None) is not None:
+            return RobustTest("not available", "t", float("nan"), (), float("nan"),
+                              note="the Welch-type two one-sided tests use unadjusted cell variances, which do not "
+                                   "apply to covariate-adjusted means")
         if contrast.is_equivalence:
             # bound − pivot·Σc, exact then rounded once: the bounds on the offset scale
             off = -constant_part(contrast.weights * 2, contrast.bounds, cells.pivot_exact)
@@ -316,7 +320,8 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
         eq_power = None
         if c.is_equivalence:
             eq_power = attempt(f"power of the equivalence test '{c.name}'", describe_equivalence_power, c.weights[0],
-                               cells.n, c.bounds, fit.residual_sd, fit.df_error, alpha=alpha)
+                               cells.n, c.bounds, fit.residual_sd, fit.df_error, alpha=alpha,
+                               unscaled_cov=getattr(fit, "unscaled_cov", None))
         extras.append(HypothesisExtras(primary, sizes, rob, perm, choice, p, reason, es_note, eq_power))
 
     kw, kw_note = None, None

@@ -364,13 +364,18 @@ class EquivalencePower:
 
 def describe_equivalence_power(weights, n_cells, bounds, sd: float, df_error: float, alpha: float = 0.05,
                                powers: tuple[float, ...] = (0.80, 0.90),
-                               true_difference: float = 0.0) -> EquivalencePower:
+                               true_difference: float = 0.0, unscaled_cov=None) -> EquivalencePower:
     """Power of the TOST of a fitted equivalence claim (cell sizes ``n_cells``, error df) and the
-    equal n per cell for each power; ``bounds`` in the outcome's units, divided by ``sd``."""
+    equal n per cell for each power; ``bounds`` in the outcome's units, divided by ``sd``. The SE
+    factor is sqrt(c'Uc) with U the fit's covariance of the cell means over sigma^2 when given
+    (covariate-adjusted means), else sqrt(sum c_i^2/n_i)."""
     c = np.asarray([float(w) for w in weights], dtype=float)
     n = np.asarray(n_cells, dtype=float)
     used = c != 0
-    v = math.sqrt(math.fsum((c[used] ** 2 / n[used]).tolist()))
+    if unscaled_cov is not None:
+        v = math.sqrt(float(c @ np.asarray(unscaled_cov, dtype=float) @ c))
+    else:
+        v = math.sqrt(math.fsum((c[used] ** 2 / n[used]).tolist()))
     low, high = float(bounds[0]) / sd, float(bounds[1]) / sd
     now = tost_power(low, high, v, df_error, alpha, true_difference)
     sum_sq = math.fsum((c * c).tolist())
