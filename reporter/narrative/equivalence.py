@@ -27,7 +27,7 @@ from reporter.model.hypotheses import constant_text
 from reporter.narrative import numbers as N
 from reporter.narrative.document import Column, FigureSpec, Figure, Table, runs_of
 
-__all__ = ["claim_decision", "decision_reading", "equivalence_items", "equivalence_table", "equivalence_figure",
+__all__ = ["test_kind", "claim_decision", "decision_reading", "equivalence_items", "equivalence_table", "equivalence_figure",
            "power_table", "margin_kind", "margin_words", "result_claim", "words"]
 
 
@@ -223,9 +223,20 @@ def power_table(hyps, alpha: float) -> Table | None:
             "cell size reaching each power. These describe the design, not the observed difference."),))
 
 
-def margin_kind(h) -> str | None:
-    """"minimum-effect" or "non-inferiority" for a one-sided claim against a nonzero constant."""
-    c = h.contrast
+def test_kind(c) -> str:
+    """The kind of test a compiled hypothesis asks for, in words (methods and analysis plan)."""
+    if c.is_equivalence:
+        return "equivalence claim, two one-sided t tests"
+    if c.alternative != "two-sided":
+        margin = margin_kind(c)
+        return f"{margin} claim, one-sided t test against its margin" if margin else "directional, one-sided t test"
+    return "two-sided t test" if c.test == "t" else f"F test with {c.q} numerator df"
+
+
+def margin_kind(c) -> str | None:
+    """"minimum-effect" or "non-inferiority" for a one-sided claim against a nonzero constant
+    (``c`` a compiled contrast, or a result holding one)."""
+    c = getattr(c, "contrast", c)
     if c.kind != "means" or c.alternative not in ("greater", "less") or c.test != "t":
         return None
     h_written = c.from_sd.rhs[0] if c.from_sd is not None else c.rhs[0]
@@ -237,7 +248,7 @@ def margin_kind(h) -> str | None:
 
 def margin_words(h) -> str | None:
     """A sentence that names a margin claim for what it is: a one-sided test against the margin."""
-    kind = margin_kind(h)
+    kind = margin_kind(h.contrast)
     if kind is None:
         return None
     c = h.contrast

@@ -3,6 +3,7 @@ confirmatory test (classical or robust) with its estimate and effect size, and t
 
 from __future__ import annotations
 
+from reporter.narrative import equivalence as E
 from reporter.narrative import numbers as N
 from reporter.narrative.document import DefinitionList, Paragraph, Section, runs_of
 from reporter.narrative.matrices import contrast_tables
@@ -21,6 +22,9 @@ class HypothesisSections:
         if getattr(self.prep, "lock", None) is not None and c.name in self.prep.lock.added:
             blocks.append(Paragraph(runs_of("Added after the plan was locked: tested as exploratory."), "small"))
         blocks.append(Paragraph(runs_of(self.hypothesis_words(h))))
+        margin = E.margin_words(h)
+        if margin:
+            blocks.append(Paragraph(runs_of(margin)))
         confirm_note = self.confirmatory_note(h, i)
         for n in h.notes:
             if confirm_note and n == self.fitted_confirm_note(h):
@@ -34,7 +38,9 @@ class HypothesisSections:
                      (runs_of("Classical test"), runs_of(self.test_stat(t), ", ", N.stat_p(t.p), " (for comparison)"))]
         else:
             items = [(runs_of("Test"), runs_of(self.test_stat(t), ", ", self.p_text(h)))]
-        if t.test == "t":
+        if c.is_equivalence:
+            items += E.equivalence_items(h, self.alpha)
+        elif t.test == "t":
             ci = self.confirm_ci_stat(h)
             which = ", Welch" if self.robust_confirmatory(h) and h.extras.robust.ci is not None else ""
             items.append((runs_of("Estimate"), runs_of(_num(t.estimate), ", ", ci,
@@ -95,6 +101,8 @@ class HypothesisSections:
 
     def hypothesis_words(self, h) -> str:
         c = h.contrast
+        if c.is_equivalence:
+            return E.words(h, self.prep.data.outcome)
         if c.kind == "effect":
             if len(c.factors) == 1:
                 return (f"In words: the null hypothesis is that the unweighted mean of {self.prep.data.outcome} is the "
@@ -155,6 +163,8 @@ class HypothesisSections:
         alpha = N.format_bounded(self.alpha, 2)
         adj = CORRECTION_SHORT[h.correction] if h.correction != "none" else "unadjusted"
         explor = " As an exploratory result it suggests what to test next rather than confirming anything." if h.family == "exploratory" else ""
+        if c.is_equivalence:
+            return E.decision_reading(h, self.alpha, adj, h.family == "exploratory")
         if c.kind == "effect" or t.test == "F":
             if sig:
                 return (f"Reading: at α = {alpha} ({adj} p), the data are not consistent with the null hypothesis "

@@ -122,12 +122,25 @@ def contrast_tables(i: int, c, d) -> tuple[Table, Table]:
     """Hypothesis ``i`` (a compiled contrast ``c``) over the cell means (C·μ = h) and over the
     coefficients of the design ``d`` (L = C·D): the report and the analysis-plan document print these."""
 
+    # constants as written: in residual SDs when the plan wrote them so (0.3 sd); an equivalence
+    # claim shows its bounds instead of h
+    sd = c.from_sd is not None or c.unit == "sd"
+    written_rhs = c.from_sd.rhs if c.from_sd is not None else c.rhs
+    unit = " sd" if sd else ""
+    if c.is_equivalence:
+        lo, hi = c.from_sd.bounds if c.from_sd is not None else c.bounds
+        right = [f"({_fr(lo)}{unit}, {_fr(hi)}{unit})"]
+        right_head = runs_of("bounds")
+    else:
+        right = [_fr(x) + unit for x in written_rhs]
+        right_head = runs_of(N.symbol("h"))
+
     def table(ident, caption, heads, weights):
         cols = (Column(runs_of("row")),) + tuple(Column(runs_of(hd), "center") for hd in heads) + (
-            Column(runs_of(N.symbol("h")), "right"),)
+            Column(right_head, "right"),)
         rows, marks = [], []
-        for r, (row, rhs) in enumerate(zip(weights, c.rhs), start=1):
-            rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(_fr(rhs))))
+        for r, (row, rhs) in enumerate(zip(weights, right), start=1):
+            rows.append((runs_of(str(r)), *(runs_of(_fr(w)) for w in row), runs_of(rhs)))
             marks.append(("",) + tuple("pos" if w > 0 else "neg" if w < 0 else "zero" for w in row) + ("",))
         return Table(ident, caption, cols, tuple(rows), highlight=tuple(marks), compact=True)
 

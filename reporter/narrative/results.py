@@ -3,6 +3,7 @@ one sentence per hypothesis, and the cautions on reading them."""
 
 from __future__ import annotations
 
+from reporter.narrative import equivalence as E
 from reporter.narrative import numbers as N
 from reporter.narrative.document import BulletList, Column, Note, Paragraph, Section, Table, runs_of
 from reporter.narrative.phrases import _interval, _num
@@ -46,6 +47,9 @@ class ResultsSections:
         power = self.sensitivity_table()
         if power:
             blocks.append(power)
+        eq_power = E.power_table(list(enumerate(self.a.hypotheses, start=1)), self.alpha)
+        if eq_power:
+            blocks.append(eq_power)
         return Section("anova", "Analysis of variance", tuple(blocks))
 
     def sensitivity_table(self) -> Table | None:
@@ -81,6 +85,11 @@ class ResultsSections:
             paras.extend(Paragraph(self.result_sentence(h)) for h in explor)
         if not paras:
             paras.append(Paragraph(runs_of("The plan states no hypothesis; see the analysis of variance above.")))
+        numbered = list(enumerate(self.a.hypotheses, start=1))
+        for block in (E.equivalence_table(numbered, self.alpha, self.prep.data.outcome),
+                      E.equivalence_figure(numbered, self.alpha, self.prep.data.outcome)):
+            if block is not None:
+                paras.append(block)
         return Section("results", "Results", tuple(paras))
 
     def result_sentence(self, h):
@@ -91,6 +100,8 @@ class ResultsSections:
             claim = ("the unweighted means differed" if sig else "the data did not show clear differences among the unweighted means")
             if len(c.factors) > 1:
                 claim = ("the data indicate an interaction" if sig else "the data did not show a clear interaction")
+        elif c.is_equivalence:
+            claim = E.result_claim(h, self.alpha)
         elif t.test == "F":
             claim = "the equalities were rejected" if sig else "the data did not show clear departures from the equalities"
         elif c.alternative == "two-sided":
@@ -110,7 +121,8 @@ class ResultsSections:
             runs_of("Statistical significance is not practical significance: judge the size of each estimate and "
                     "its interval against what matters in this field, not only the p value."),
             runs_of("A result that is not significant does not show that an effect is absent; the intervals show "
-                    "which effects remain compatible with the data."),
+                    "which effects remain compatible with the data. Only a stated equivalence claim, supported by its "
+                    "two one-sided tests, shows that a difference is too small to matter."),
             runs_of("The tests assume independent observations, residuals close to normal and, for the classical "
                     "tests, equal variances across cells; the checks above say how well these hold here."),
             runs_of("Exploratory hypotheses were not part of the confirmatory family; treat them as suggestions "

@@ -3,6 +3,7 @@ hypotheses, error rates, how assumptions were checked, study details, software).
 
 from __future__ import annotations
 
+from reporter.narrative import equivalence as E
 from reporter.narrative import numbers as N
 from reporter.narrative.document import BulletList, DefinitionList, Paragraph, Section, runs_of
 from reporter.narrative.phrases import (
@@ -118,8 +119,7 @@ class SummaryMethods:
             items = []
             for h in a.hypotheses:
                 c = h.contrast
-                kind = ("directional, one-sided t test" if c.alternative != "two-sided"
-                        else "two-sided t test" if c.test == "t" else f"F test with {c.q} numerator df")
+                kind = E.test_kind(c)
                 items.append(runs_of(f"{h.contrast.name} ({h.family}; {kind}). Null hypothesis: {_unquote(c.null_text())}"))
             blocks.append(Paragraph(_lead("Hypotheses",
                 f"The plan states {_count_words(len(planned), 'planned hypothesis', 'planned hypotheses')}"
@@ -129,6 +129,10 @@ class SummaryMethods:
         blocks.append(Paragraph(_lead("Error rates",
             f"Every test used α = {N.format_bounded(self.alpha, 2)}. Directional hypotheses "
             "(written with > or <) were tested one-sided, in the stated direction; the others two-sided. "
+            + ("Equivalence claims (LOW < contrast < HIGH) were tested by two one-sided tests, each at α, with the "
+               f"{N.format_confidence_level(1 - 2 * self.alpha)} interval (1 − 2α) and the larger one-sided p as the "
+               "claim's p (Schuirmann, 1987). " if any(h.contrast.is_equivalence for h in a.hypotheses) else "")
+            + 
             f"p values were adjusted with {CORRECTION_NAMES[corr]} within the planned family"
             + (", and separately within the exploratory family" if explor else "")
             + f". Confidence intervals are at {N.format_confidence_level(self.level)}"

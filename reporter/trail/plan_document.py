@@ -19,6 +19,7 @@ from reporter.narrative import numbers as N
 from reporter.narrative.document import (
     Column, DefinitionList, Document, Note, Paragraph, Section, Table, runs_of,
 )
+from reporter.narrative.equivalence import test_kind
 from reporter.narrative.matrices import contrast_tables
 from reporter.narrative.phrases import CODING_NAMES, CORRECTION_NAMES, PARAM_WORDS, _literal
 
@@ -198,8 +199,7 @@ class _PlanBuilder:
         size = {r: sum(1 for c in self.contrasts if c.role == r) for r in ("planned", "exploratory")}
         corr = CORRECTION_NAMES[self.plan.analysis.correction]
         for i, c in enumerate(self.contrasts, start=1):
-            kind = ("directional, one-sided t test" if c.alternative != "two-sided"
-                    else "two-sided t test" if c.test == "t" else f"F test with {c.q} numerator df")
+            kind = test_kind(c)
             blocks = [
                 Paragraph(runs_of("Statement in the plan: ", c.statement if c.kind == "means" else f'effect = "{c.statement}"'),
                           "small"),
