@@ -35,6 +35,11 @@ def _num(x, d: int = 2) -> str:
     return N.format_number(x, d)
 
 
+def _sd(value) -> str:
+    """A constant written in SDs, as a number with the minus sign of the report (−0.3)."""
+    return constant_text(value, "sd").replace(" sd", "").replace("-", N.MINUS)
+
+
 def _pvalue_used(h) -> float:
     return h.p_adjusted if h.p_adjusted is not None else h.test.p
 
@@ -64,9 +69,8 @@ def _bounds_text(h) -> str:
     text = f"between {_num(low)} and {_num(high)}"
     if c.from_sd is not None:
         lo_sd, hi_sd = c.from_sd.bounds
-        sd_words = (f"±{constant_text(hi_sd, 'sd').replace(' sd', '')} residual SD" if lo_sd == -hi_sd else
-                    f"{constant_text(lo_sd, 'sd').replace(' sd', '')} to {constant_text(hi_sd, 'sd').replace(' sd', '')} "
-                    "residual SD")
+        sd_words = (f"±{_sd(hi_sd)} residual SD" if lo_sd == -hi_sd else
+                    f"{_sd(lo_sd)} to {_sd(hi_sd)} residual SD")
         text += (f" ({sd_words}; the residual SD, {_num(c.from_sd.residual_sd)}, is estimated from these data, so "
                  "these bounds are estimates too)")
     return text
@@ -133,11 +137,12 @@ def result_claim(h, alpha: float) -> str:
     """The clause of the Results paragraph."""
     word, adjusted = claim_decision(h, alpha)
     if word == EQUIVALENT:
-        return f"equivalent within the bounds ({_bounds_text(h)})"
+        return f"equivalent within the bounds {_bounds_text(h)}"
     if word == NOT_EQUIVALENT:
-        return f"not equivalent: the difference lies beyond the bounds ({_bounds_text(h)})"
-    tail = ", after the multiplicity adjustment" if adjusted else ""
-    return f"inconclusive: neither equivalence nor a difference beyond the bounds ({_bounds_text(h)}) was shown{tail}"
+        return f"not equivalent: the difference lies beyond the bounds {_bounds_text(h)}"
+    tail = " after the multiplicity adjustment" if adjusted else ""
+    return (f"inconclusive: neither equivalence nor a difference beyond the bounds {_bounds_text(h)} was "
+            f"shown{tail}")
 
 
 def equivalence_table(hyps, alpha: float, outcome: str) -> Table | None:
@@ -149,8 +154,7 @@ def equivalence_table(hyps, alpha: float, outcome: str) -> Table | None:
             continue
         t = confirmatory_tost(h)
         c = h.contrast
-        sd = "—" if c.from_sd is None else "[{}, {}]".format(*(constant_text(b, "sd").replace(" sd", "")
-                                                              for b in c.from_sd.bounds))
+        sd = "—" if c.from_sd is None else "[{}, {}]".format(*(_sd(b) for b in c.from_sd.bounds))
         rows.append((runs_of(f"{i}. {c.name}"), runs_of(f"[{_num(t.bounds[0])}, {_num(t.bounds[1])}]"), runs_of(sd),
                      runs_of(_num(t.estimate)), runs_of(f"[{_num(t.ci[0])}, {_num(t.ci[1])}]"),
                      runs_of(N.format_p_cell(t.lower.p)), runs_of(N.format_p_cell(t.upper.p)),
@@ -255,7 +259,7 @@ def margin_words(h) -> str | None:
     margin = _num(float(c.rhs[0]))
     unit = ""
     if c.from_sd is not None:
-        unit = (f" ({constant_text(c.from_sd.rhs[0], 'sd').replace(' sd', '')} residual SD; the residual SD, "
+        unit = (f" ({_sd(c.from_sd.rhs[0])} residual SD; the residual SD, "
                 f"{_num(c.from_sd.residual_sd)}, is estimated from these data, so the margin is an estimate too)")
     if kind == "minimum-effect":
         return (f"This is a minimum-effect claim: the one-sided test is against the margin {margin}{unit}, not "

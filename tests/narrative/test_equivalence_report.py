@@ -65,7 +65,7 @@ def test_three_outcomes_in_json_match_the_scipy_interval(outputs):
 def test_report_words_each_outcome(outputs):
     _, _, md, html = outputs
     text = " ".join(md.split())
-    assert "a and b equivalent: equivalent within the bounds (between −1.50 and 1.50)" in text
+    assert "a and b equivalent: equivalent within the bounds between −1.50 and 1.50," in text
     assert "a and c equivalent: not equivalent: the difference lies beyond the bounds" in text
     assert "a and b within 0.3 SD: inconclusive: neither equivalence nor a difference beyond the bounds" in text
     assert "Reading: equivalent." in text and "Reading: not equivalent." in text and "Reading: inconclusive." in text
