@@ -13,6 +13,25 @@ plan and collects the results. The choice rule for unequal variances:
 
 Robust versions: a Welch–Satterthwaite t for a one-row contrast, Welch's ANOVA for a one-way
 effect, and an HC3 Wald F otherwise.
+
+With covariates (an analysis of covariance) every test is about the adjusted cell means
+(``ModelFit.adjusted_offset_mean``, with covariance ``MSE · ModelFit.unscaled_cov`` and the error
+df counting the slopes), and so is everything collected here: effect sizes, post-hoc families,
+power. What applies and what does not:
+
+* robust tests: an HC3 t (one row) or HC3 Wald F with the leverage of each row from the
+  covariance-analysis design (:func:`reporter.inference.robust.hc3_adjusted_covariance`).
+  Welch's ANOVA, the Welch–Satterthwaite t and Games–Howell weight each cell mean by its own
+  variance, s_c²/n_c; an adjusted mean also depends on the slopes pooled over cells, so its
+  variance is not s_c²/n_c and those tests are not defined; they are listed in
+  ``Inference.not_applicable`` with that reason;
+* Kruskal–Wallis ranks the outcome itself and cannot adjust for a covariate: not applicable;
+* permutation F: Freedman–Lane with the covariates kept in the reduced model;
+* assumption checks: on the residuals of the covariance analysis (rows of z = y − b'x through
+  ``rows.adjusted``), with the homogeneity-of-slopes F among them and a note when it rejects;
+* the outlier-sensitivity rerun updates the cell table from the removed rows' outcome sums; with
+  covariates it would also need their covariate cross-products to refit the slopes, which the row
+  access does not give, so it is not computed (stated in ``unavailable``).
 """
 
 from __future__ import annotations
@@ -27,6 +46,8 @@ from reporter.errors import FitError
 from reporter.inference import assumptions as A
 from reporter.inference import posthoc as P
 from reporter.inference import robust as R
+from reporter.inference.covariate_model import covariate_model_of
+from reporter.fitting.ancova import SlopesCheck, slopes_homogeneity
 from reporter.intake.cells import CellStats
 from reporter.inference.effectsizes import AnovaEffectSizes, EffectSize, describe_anova_effect_sizes, standardized_contrast
 from reporter.fitting.linear import ContrastTest, ModelFit, constant_part, fit_contrast, fit_model
@@ -86,6 +107,10 @@ class AssumptionChecks:
     heterogeneous: bool
     notes: tuple[str, ...]
     unavailable: str | None = None
+    # with covariates: the homogeneity-of-slopes F (cell × covariate interaction) and, when it
+    # rejects at alpha (or cannot be computed), what that means and what to do
+    slopes: SlopesCheck | None = None
+    slopes_note: str | None = None
 
 
 @dataclass(frozen=True)
@@ -125,6 +150,9 @@ class Inference:
     kruskal_note: str | None = None
     permutation_note: str | None = None
     unavailable: tuple[tuple[str, str], ...] = ()  # (auxiliary result, why it could not be computed)
+    # (result, why it does not apply to this analysis): with covariates, the tests that are not
+    # defined for adjusted means
+    not_applicable: tuple[tuple[str, str], ...] = ()
 
 
 def _observed(cells: CellStats):
@@ -145,6 +173,10 @@ def check_assumptions(rows, cells: CellStats, fit: ModelFit, alpha: float, *, se
         sw = A.NormalityResult("Shapiro-Wilk", 0, True, unavailable, None, None)
         return AssumptionChecks(None, None, sw, None, None, False, (), unavailable), None
     notes = []
+    extra = {}
+    if cells.covariates is not None:
+        rows, cells, extra, more = _covariate_checks(rows, cells, fit, alpha)
+        notes.extend(more)
     try:
         bf, lev = A.homogeneity_both(rows, cells)
     except FitError as exc:
@@ -153,12 +185,53 @@ def check_assumptions(rows, cells: CellStats, fit: ModelFit, alpha: float, *, se
     sw = A.normality(rows, cells, seed=seed)
     qq = scan = flagged = None
     try:
-        qq = A.qq_quantiles(rows, cells, fit.mse)
-        scan, flagged = A.screen_outliers(rows, cells, limit=OUTLIER_LIMIT)
+        qq = A.qq_quantiles(rows, cells, fit.mse, **extra.get("qq", {}))
+        scan, flagged = A.screen_outliers(rows, cells, limit=OUTLIER_LIMIT, **extra.get("screen", {}))
     except FitError as exc:
         notes.append(f"Residual checks not possible: {exc}")
     hetero = bool(bf is not None and bf.p is not None and bf.p < alpha)
-    return AssumptionChecks(bf, lev, sw, qq, scan, hetero, tuple(notes)), flagged
+    return AssumptionChecks(bf, lev, sw, qq, scan, hetero, tuple(notes), None, extra.get("slopes"),
+                            extra.get("slopes_note")), flagged
+
+
+def _covariate_checks(rows, cells: CellStats, fit: ModelFit, alpha: float):
+    """With covariates: the rows and cell table of z = y − b'x (whose within-cell deviations are
+    the covariance analysis's residuals), the options of the residual checks (the adjusted
+    model's MSE and df, each cell's average leverage), the slopes check with its note, and notes
+    saying what the checks ran on."""
+    model = covariate_model_of(fit)
+    leverage = model.mean_leverage(cells.covariates.sxx)
+    extra = {"qq": {"leverage": leverage},
+             "screen": {"mse": fit.mse, "df_e": fit.df_error, "leverage": leverage}}
+    notes = ["The checks use the residuals of the covariance analysis (the outcome minus the fitted covariate "
+             "slopes, about each cell's adjusted mean). The Q–Q plot and the outlier screen take each row's "
+             "leverage as its cell's average leverage (1 + tr(Q_c S_xx,c))/n_c, where the exact leverage adds "
+             "(x_i − x̄_c)'Q_c(x_i − x̄_c) − tr(Q_c S_xx,c)/n_c; a row far from its cell's covariate mean is "
+             "therefore screened a little leniently."]
+    try:
+        check = slopes_homogeneity(cells)
+    except FitError as exc:
+        check, note = None, f"The homogeneity of slopes could not be tested: {exc}."
+    else:
+        extra["slopes"] = check
+        note = _slopes_note(check, fit, alpha)
+    extra["slopes_note"] = note
+    return rows.adjusted(model.slopes), A.adjusted_cells(cells, model.slopes), extra, notes
+
+
+def _slopes_note(check: SlopesCheck, fit: ModelFit, alpha: float) -> str | None:
+    """What a rejected homogeneity-of-slopes test means for the fitted model, and what to do."""
+    if not check.p < alpha:
+        return None
+    if fit.covariate_slopes_mode == "per-cell":
+        return ("The slopes differ between cells; the plan already fits a slope per cell, so the adjusted means "
+                "and every comparison of them hold at the stated covariate values (adjust_to) only, and "
+                "differences between cells would be different at other covariate values.")
+    return ("The slopes differ between cells (the cell × covariate interaction is significant), so a common "
+            "slope misdescribes at least one cell and the adjusted differences depend on the covariate value. "
+            "Fit separate slopes (slopes = \"per-cell\" under [[covariates]] in the plan); the effects are then "
+            "evaluated at the covariate value adjust_to (the covariate's mean unless a number is given), "
+            "which the report states.")
 
 
 def cell_names(design) -> tuple[str, ...]:
@@ -206,6 +279,39 @@ def _robust_for(contrast, cells: CellStats, one_way_effect: bool, alpha: float, 
         return RobustTest("not available", contrast.test, float("nan"), (), float("nan"), note=str(exc))
 
 
+def _robust_adjusted(contrast, test: ContrastTest, hc, alpha: float, labels=None) -> RobustTest:
+    """The HC3 version of one test of adjusted cell means (with covariates): a t for one row, a
+    Wald F otherwise, on C·mu_adj − h as the fit computed it (``test.row_estimates``)."""
+    d = np.asarray(test.row_estimates, dtype=float)
+    if hc is None:
+        return RobustTest("not available", contrast.test, float("nan"), (), float("nan"),
+                          note="the HC3 covariance of the adjusted means could not be computed")
+    try:
+        if contrast.test == "t" and contrast.q == 1:
+            r = R.hc3_contrast_adjusted(contrast.C[0], d[0], float(contrast.h[0]), hc,
+                                        alternative=contrast.alternative, alpha=alpha, labels=labels)
+            return RobustTest("HC3 t", "t", r.statistic, (r.df,), r.p, r.estimate, (r.ci_low, r.ci_high))
+        r = R.hc3_wald_adjusted(contrast.C, d, hc, labels=labels)
+        return RobustTest("HC3 Wald F", "F", r.statistic, (r.df1, r.df2), r.p)
+    except FitError as exc:
+        return RobustTest("not available", contrast.test, float("nan"), (), float("nan"), note=str(exc))
+
+
+# Why each test that weights cells by their own variance, or ranks the outcome, is not computed
+# with covariates (Inference.not_applicable).
+NOT_WITH_COVARIATES = (
+    ("Welch's ANOVA", "not defined for covariate-adjusted means: it weights each cell mean by n/s², but an "
+                      "adjusted mean also carries the slopes estimated from all cells, so its variance is not "
+                      "s²/n of its own cell; the HC3 tests are the robust versions here"),
+    ("Welch–Satterthwaite t", "not defined for covariate-adjusted means, for the same reason; the HC3 t is the "
+                              "robust version here"),
+    ("Games–Howell pairs", "not defined for covariate-adjusted means: each pair's standard error would come from "
+                           "the two cells' own variances, which leave out the variance of the estimated slopes"),
+    ("Kruskal–Wallis test", "not applicable with covariates: it ranks the outcome itself and cannot adjust for "
+                            "a covariate; the Freedman–Lane permutation F is the test here that does not assume normal errors"),
+)
+
+
 class _Attempts:
     """Runs auxiliary computations; one that cannot be computed is recorded, never raised."""
 
@@ -242,14 +348,37 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
     names_obs = tuple(names[i] for i in np.flatnonzero(o))
     attempt = _Attempts()
     perm_arrays, perm_note = _permutation_rows(rows, cells, permutations, permutation_max_rows, rows_unavailable)
+    covariates = cells.covariates is not None
+    hc = perm_x = None
+    if covariates:
+        model = covariate_model_of(fit)
+        if rows is not None:
+            hc = attempt("HC3 covariance of the adjusted means", R.hc3_adjusted_covariance, model, cells.offset_mean,
+                         rows.batches(HC3_BATCH_ROWS), fit.df_error)
+        if perm_arrays is not None:
+            perm_x = rows.covariate_arrays()
+            if perm_x is None:
+                perm_arrays, perm_note = None, ("not available: the covariate values are read from the data file by "
+                                                "queries and are not held in memory")
+        slope_modes = tuple("common" if len(set(model.index[o, j].tolist())) == 1 else "per-cell"
+                            for j in range(model.p))
 
     def permute(C, label):
         if perm_arrays is None or np.any(C[:, ~o] != 0):
             return None
         y, cell = perm_arrays
+        if covariates:
+            return permutation_f_test(y, cell, cells.k, C, n_permutations=permutations, seed=seed,
+                                      stop_after=SEQUENTIAL_EXCEEDANCES, progress=progress, notify=notify,
+                                      label=label, x=perm_x, slopes=slope_modes, reference=model.reference)
         return permutation_f_test(y, cell, cells.k, C, n_permutations=permutations, seed=seed,
                                   stop_after=SEQUENTIAL_EXCEEDANCES, progress=progress, notify=notify,
                                   label=label)
+
+    def robust(contrast, test, one_way_effect):
+        if covariates and not contrast.is_equivalence:  # equivalence: _robust_for says why there is none
+            return _robust_adjusted(contrast, test, hc, alpha, names)
+        return _robust_for(contrast, cells, one_way_effect, alpha, names)
 
     rows_out = []
     for r in table.rows:
@@ -258,13 +387,17 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
             continue
         es = attempt(f"effect sizes of {r.source}", describe_anova_effect_sizes, r.ss, r.df, fit.ss_error,
                      fit.df_error, fit.ss_total, cells.n_total, alpha=alpha)
-        eff = compile_effect(design, " x ".join(r.factors))
         sens = attempt(f"sensitivity (power) of {r.source}", describe_sensitivity, r.df, cells.n_total, fit.df_error,
                        alpha=alpha)
+        if getattr(r, "covariate", None) is not None:  # a covariate's slope row: no cell-mean contrast
+            rows_out.append(RowExtras(es, None, None, sens))
+            continue
+        eff = compile_effect(design, " x ".join(r.factors))
         if np.any(eff.C[:, ~o] != 0):  # the unweighted-means contrast needs an empty cell
             rows_out.append(RowExtras(es, None, None, sens))
             continue
-        rob = _robust_for(eff, cells, one_way, alpha, names)
+        eff_test = fit_contrast(fit, eff.weights, eff.rhs, test="F") if covariates else None
+        rob = robust(eff, eff_test, one_way)
         rows_out.append(RowExtras(es, rob, attempt(f"permutation F of {r.source}", permute, eff.C, r.source), sens))
 
     extras = []
@@ -279,7 +412,8 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
                     # C·ȳ − h as fitted (exact pivot part), not the estimate minus h again.
                     sc = standardized_contrast([float(w) for w in c.weights[0]], 0.0, t.row_estimates[0], cells.n,
                                                fit.mse, fit.df_error, level=1 - alpha,
-                                               alternative="two-sided" if c.is_equivalence else c.alternative)
+                                               alternative="two-sided" if c.is_equivalence else c.alternative,
+                                               cov=fit.unscaled_cov if covariates else None)
                     primary, sizes = sc.d, (sc.d, sc.g)
                 except FitError as exc:
                     es_note = f"no standardized contrast: {exc}"
@@ -290,7 +424,7 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
             if es is None:
                 es_note = attempt.unavailable[-1][1]
         is_oneway_effect = one_way and c.kind == "effect"
-        rob = _robust_for(c, cells, is_oneway_effect, alpha, names)
+        rob = robust(c, t, is_oneway_effect)
         perm = None
         if c.test == "F" and np.allclose(c.h, 0) and np.allclose(c.C.sum(axis=1), 0):
             perm = attempt(f"permutation F of '{c.name}'", permute, c.C, c.name)
@@ -325,14 +459,19 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
         extras.append(HypothesisExtras(primary, sizes, rob, perm, choice, p, reason, es_note, eq_power))
 
     kw, kw_note = None, None
-    if rows is None:
+    not_applicable = NOT_WITH_COVARIATES if covariates else ()
+    if covariates:
+        kw_note = dict(NOT_WITH_COVARIATES)["Kruskal–Wallis test"]
+    elif rows is None:
         kw_note = rows_unavailable
     elif int(o.sum()) >= 2:
         try:
             kw = R.kruskal_wallis_ranked(rows.rank_sums(), cells.n)
         except FitError as exc:
             kw_note = f"not available: {exc}"
-    welch = attempt("Welch's ANOVA", R.welch_anova, n_obs, mean_obs, ss_obs, labels=names_obs) if one_way else None
+    welch = None
+    if one_way and not covariates:
+        welch = attempt("Welch's ANOVA", R.welch_anova, n_obs, mean_obs, ss_obs, labels=names_obs)
 
     families = []
     for fam in posthoc:
@@ -341,12 +480,17 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
         if got is not None:
             families.append(got)
     gh = None
-    if "all-pairs" in posthoc and posthoc_on == "cells":
+    if "all-pairs" in posthoc and posthoc_on == "cells" and not covariates:
         gh = attempt("Games–Howell pairs on the cells", _games_howell, cells, alpha, names_obs)
 
-    sens = _outlier_sensitivity(design, cells, flagged, contrasts, alpha)
+    if covariates:
+        sens = None
+        if flagged is not None and flagged.total:
+            attempt.unavailable.append(("planned tests without the flagged rows", _NO_SENSITIVITY_RERUN))
+    else:
+        sens = _outlier_sensitivity(design, cells, flagged, contrasts, alpha)
     return Inference(tuple(rows_out), tuple(extras), checks, kw, welch, tuple(families), gh, sens, policy,
-                     kw_note, perm_note, tuple(attempt.unavailable))
+                     kw_note, perm_note, tuple(attempt.unavailable), not_applicable)
 
 
 def _permutation_rows(rows, cells: CellStats, permutations: int, max_rows: int, unavailable: str):
@@ -367,6 +511,13 @@ def _permutation_rows(rows, cells: CellStats, permutations: int, max_rows: int, 
         return None, "not available: the rows are read from the data file by queries and are not held in memory"
     return arrays, None
 
+
+# Rows per chunk of the one pass over the rows that the HC3 covariance with covariates makes.
+HC3_BATCH_ROWS = 65_536
+
+_NO_SENSITIVITY_RERUN = (
+    "not computed with covariates: refitting without the flagged rows would re-estimate the covariate slopes, "
+    "which needs the removed rows' covariate cross-products; the row access returns only their outcome sums")
 
 _NOT_A_CONTRAST = ("no standardized contrast: the weights do not sum to zero, so the combination is not a "
                    "difference of means and its size in SD units depends on where the scale starts")
@@ -391,12 +542,15 @@ def _posthoc_family(fam, design, cells, fit, alpha, on, control, names):
     of which needs every cell at its level.
     """
     o = cells.observed
+    adjusted = cells.covariates is not None
+    means = fit.adjusted_offset_mean if adjusted else cells.offset_mean
     if on == "cells":
         idx = np.flatnonzero(o)
         labels = [design.cells[i].short for i in idx]
         weights = None
         n = cells.n[o]
-        est = cells.offset_mean[o]
+        est = means[o]
+        cov = fit.unscaled_cov[np.ix_(o, o)] if adjusted else None
     else:
         f = design.factor(on)
         labels = list(f.levels)
@@ -410,9 +564,10 @@ def _posthoc_family(fam, design, cells, fit, alpha, on, control, names):
             W[i, idx] = 1.0 / len(idx)
         weights = W
         n = cells.n
-        est = np.array([math.fsum((row[o] * cells.offset_mean[o]).tolist()) for row in W])
+        est = np.array([math.fsum((row[o] * means[o]).tolist()) for row in W])
+        cov = fit.unscaled_cov if adjusted else None
     if fam == "all-pairs":
-        res = P.tukey_kramer(est, n, fit.mse, fit.df_error, weights=weights, alpha=alpha)
+        res = P.tukey_kramer(est, n, fit.mse, fit.df_error, weights=weights, alpha=alpha, cov=cov)
     elif fam == "versus-control":
         if on == "cells":
             empty = [c for c in design.cells if not o[c.index]]
@@ -420,9 +575,9 @@ def _posthoc_family(fam, design, cells, fit, alpha, on, control, names):
             if gone:
                 raise FitError(f"the control cell {names[gone[0].index]} is empty, so nothing can be compared with it")
         ctrl = _control_index(labels, control, design, on)
-        res = P.dunnett(est, n, fit.mse, fit.df_error, control=ctrl, weights=weights, alpha=alpha)
+        res = P.dunnett(est, n, fit.mse, fit.df_error, control=ctrl, weights=weights, alpha=alpha, cov=cov)
     else:
-        res = P.scheffe_pairs(est, n, fit.mse, fit.df_error, weights=weights, alpha=alpha)
+        res = P.scheffe_pairs(est, n, fit.mse, fit.df_error, weights=weights, alpha=alpha, cov=cov)
     return (fam, on, res, tuple(labels))
 
 
