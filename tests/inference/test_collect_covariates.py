@@ -17,6 +17,7 @@ from statsmodels.stats.anova import anova_lm
 
 from conftest import DATA_DIR
 from reporter.inference.analysis import fit_analysis
+from reporter.inference.effectsizes import partial_eta_squared_ci
 from reporter.intake.cells import describe_cells, describe_covariates
 from reporter.intake.memory_rows import MemoryRows
 from reporter.model.design import Factor, build_design
@@ -80,6 +81,10 @@ def test_effect_sizes_and_sensitivity_use_the_ancova_table(anorexia):
     es = a.inference.rows[row].effect_sizes
     assert es.partial_eta_squared.value == pytest.approx(ss_t / (ss_t + sse), rel=1e-9)
     assert es.df_error == 68
+    mse = sse / 68
+    assert es.partial_omega_squared.value == pytest.approx((ss_t - 2 * mse) / (ss_t + (72 - 2) * mse), rel=1e-9)
+    assert es.F == pytest.approx(table.loc["C(Treat, Sum)", "F"], rel=1e-9)
+    assert es.partial_eta_squared.ci == partial_eta_squared_ci(es.F, 2, 68, 0.90)
     assert a.inference.rows[row].sensitivity.df_error == 68
 
 
