@@ -20,8 +20,10 @@ of at least 1 - alpha is proven for diagonal U (Hayter 1984) but not for every U
 by them as holding in the covariance-analysis settings studied (value from memory; no page is
 quoted). Dunnett's computation needs the one-factor correlation of the differences from the
 control (lam_i lam_j). Two or three differences with positive correlations always have it
-exactly (lam_i^2 = r_ij r_ik / r_jk); with four or more, adjusted means, which share the slope
-estimate, break that structure in general, and the family is then refused with that reason.
+exactly (lam_i^2 = r_ij r_ik / r_jk); with every slope per cell the adjusted means are
+uncorrelated (U diagonal), so the structure holds for any number; with four or more differences
+and a slope common to several cells, the shared slope estimate breaks that structure in general,
+and the family is then refused with that reason.
 
 Families:
 
