@@ -6,6 +6,7 @@ against statsmodels OLS with sum coding (reference library) or scipy.stats."""
 from __future__ import annotations
 
 from dataclasses import replace
+from fractions import Fraction
 
 import numpy as np
 import pandas as pd
@@ -20,6 +21,7 @@ from reporter.inference.analysis import fit_analysis
 from reporter.inference.effectsizes import partial_eta_squared_ci
 from reporter.intake.cells import describe_cells, describe_covariates
 from reporter.intake.memory_rows import MemoryRows
+from reporter.intake.plan import CovariateSpec
 from reporter.model.design import Factor, build_design
 from reporter.model.hypotheses import compile_effect, compile_statement
 
@@ -192,3 +194,26 @@ def test_two_by_two_with_two_covariates_against_statsmodels():
         key = " : ".join(f"C({f}, Sum)" for f in r.factors).replace(" : ", ":")
         ss = table.loc[key, "sum_sq"]
         assert extra.effect_sizes.partial_eta_squared.value == pytest.approx(ss / (ss + sse), rel=1e-9)
+
+
+def test_per_cell_slopes_at_a_stated_value():
+    """Per-cell slopes evaluated at Prewt = 85 (adjust_to): the Treat effect's classical F, its
+    HC3 F and the permutation's observed F equal statsmodels on Postwt ~ Treat * Prewt with L over
+    the cell lines at 85 (reference library); Dunnett's comparisons with the control are computed
+    (the adjusted means are uncorrelated with a slope per cell)."""
+    df, cell, y, x = _anorexia()
+    d = build_design([Factor("Treat", TREATMENTS)], "cell-means")
+    spec = CovariateSpec("Prewt", 85.0, Fraction(85), "per-cell")
+    a = _analyze(d, cell, y, x, [compile_effect(d, "Treat")], posthoc=("versus-control",), control="Cont",
+                 permutations=199, seed=9, covariates=[spec])
+    X = np.hstack([np.eye(3)[cell], np.eye(3)[cell] * x])
+    A = np.hstack([np.eye(3), np.eye(3) * 85.0])
+    L = np.array([[1.0, -1, 0], [0, 1, -1]]) @ A
+    fit = sm.OLS(y, X).fit()
+    hc3 = sm.OLS(y, X).fit(cov_type="HC3", use_t=True)
+    h = a.hypotheses[0]
+    assert h.test.statistic == pytest.approx(float(fit.f_test(L).fvalue), rel=1e-9)
+    assert h.extras.robust.statistic == pytest.approx(float(hc3.f_test(L).fvalue), rel=1e-9)
+    assert h.extras.permutation.statistic == pytest.approx(h.test.statistic, rel=1e-9)
+    fams = {key: res for key, _, res, _ in a.inference.posthoc}
+    assert len(fams["versus-control"].comparisons) == 2
