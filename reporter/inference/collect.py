@@ -360,8 +360,6 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
             if perm_x is None:
                 perm_arrays, perm_note = None, ("not available: the covariate values are read from the data file by "
                                                 "queries and are not held in memory")
-        slope_modes = tuple("common" if len(set(model.index[o, j].tolist())) == 1 else "per-cell"
-                            for j in range(model.p))
 
     def permute(C, label):
         if perm_arrays is None or np.any(C[:, ~o] != 0):
@@ -370,7 +368,7 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
         if covariates:
             return permutation_f_test(y, cell, cells.k, C, n_permutations=permutations, seed=seed,
                                       stop_after=SEQUENTIAL_EXCEEDANCES, progress=progress, notify=notify,
-                                      label=label, x=perm_x, slopes=slope_modes, reference=model.reference)
+                                      label=label, x=perm_x, covariate_model=model, cell_means=cells.offset_mean)
         return permutation_f_test(y, cell, cells.k, C, n_permutations=permutations, seed=seed,
                                   stop_after=SEQUENTIAL_EXCEEDANCES, progress=progress, notify=notify,
                                   label=label)
@@ -389,7 +387,7 @@ def describe_inference(design, cells: CellStats, rows, fit: ModelFit, table, con
                      fit.df_error, fit.ss_total, cells.n_total, alpha=alpha)
         sens = attempt(f"sensitivity (power) of {r.source}", describe_sensitivity, r.df, cells.n_total, fit.df_error,
                        alpha=alpha)
-        if getattr(r, "covariate", None) is not None:  # a covariate's slope row: no cell-mean contrast
+        if r.covariate is not None:  # a covariate's slope row: no cell-mean contrast
             rows_out.append(RowExtras(es, None, None, sens))
             continue
         eff = compile_effect(design, " x ".join(r.factors))
