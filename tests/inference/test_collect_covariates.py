@@ -16,6 +16,7 @@ from scipy import stats
 from statsmodels.formula.api import ols
 from statsmodels.stats.anova import anova_lm
 
+import reporter
 from conftest import DATA_DIR
 from reporter.inference.analysis import fit_analysis
 from reporter.inference.effectsizes import partial_eta_squared_ci
@@ -217,3 +218,48 @@ def test_per_cell_slopes_at_a_stated_value():
     assert h.extras.permutation.statistic == pytest.approx(h.test.statistic, rel=1e-9)
     fams = {key: res for key, _, res, _ in a.inference.posthoc}
     assert len(fams["versus-control"].comparisons) == 2
+
+
+E2E_PLAN = """
+title = "Weight after treatment, adjusted for weight before (published data)"
+[data]
+path = "anorexia.csv"
+outcome = "Postwt"
+reader = "{reader}"
+[[factors]]
+name = "Treat"
+levels = ["Cont", "CBT", "FT"]
+[[covariates]]
+name = "Prewt"
+[analysis]
+unequal_variances = "always-robust"
+follow_up = ["all-pairs-tukey"]
+permutations = 200
+[[hypotheses]]
+name = "treatments differ"
+effect = "Treat"
+"""
+
+
+@pytest.mark.parametrize("reader", ["in-memory", "out-of-core"])
+def test_plan_with_a_covariate_on_both_readers(project, reader):
+    """A plan with [[covariates]] read by either reader: the confirmatory HC3 F equals statsmodels'
+    f_test on the HC3 fit (reference library) to 1e-9 (the out-of-core rows through SQL batches),
+    Levene on the residuals equals scipy.stats.levene, and the permutation F runs where the rows are
+    in memory and says why not otherwise."""
+    plan = project(E2E_PLAN.format(reader=reader), {"anorexia.csv": (DATA_DIR / "anorexia.csv").read_text()})
+    a = reporter.report(plan).analysis
+    df, cell, _, _ = _anorexia()
+    hc3 = ols("Postwt ~ C(Treat, Sum) + Prewt", df).fit(cov_type="HC3", use_t=True)
+    ref = hc3.f_test(_contrast_rows(hc3, [[1, -1, 0], [0, 1, -1]], df.Prewt.mean()))
+    h = a.hypotheses[0]
+    assert h.extras.confirmatory == "robust" and h.extras.robust.method == "HC3 Wald F"
+    assert h.extras.robust.statistic == pytest.approx(float(ref.fvalue), rel=1e-9)
+    fit = ols("Postwt ~ C(Treat, Sum) + Prewt", df).fit()
+    groups = [fit.resid[cell == c] for c in range(3)]
+    assert a.inference.assumptions.levene.statistic == pytest.approx(
+        stats.levene(*groups, center="mean").statistic, rel=1e-9)
+    if reader == "in-memory":
+        assert "covariates kept" in h.extras.permutation.method
+    else:
+        assert h.extras.permutation is None and "not held in memory" in a.inference.permutation_note
