@@ -490,6 +490,24 @@ def _results_projects(folder: Path) -> list[Path]:
         '[[factors]]\nname = "g"\nlevels = ["a", "b"]\n[analysis]\npermutation_max_rows = 1000\n'
         '[[hypotheses]]\nname = "b above a"\nmeans = "b > a"\n', encoding="utf-8")
     plans.append(big / "plan.toml")
+    # 6. covariates: one with a common slope at its mean, one with per-cell slopes at a stated value, factorial
+    cov = folder / "covariates"
+    cov.mkdir()
+    rows = []
+    for a, b, shift in (("a1", "b1", 0.0), ("a1", "b2", 1.0), ("a2", "b1", 2.0), ("a2", "b2", 2.5)):
+        for _ in range(9):
+            x1, x2 = rng.normal(50, 8), rng.normal(3, 1)
+            rows.append((a, b, f"{x1:.1f}", f"{x2:.2f}", f"{5 + shift + 0.4 * x1 + x2 + rng.normal(0, 2):.2f}"))
+    _write_csv(cov / "data.csv", ["A", "B", "pre", "age", "y"], rows)
+    (cov / "plan.toml").write_text(
+        'title = "Covariates (simulated)"\n[data]\npath = "data.csv"\noutcome = "y"\n'
+        '[[factors]]\nname = "A"\nlevels = ["a1", "a2"]\n[[factors]]\nname = "B"\nlevels = ["b1", "b2"]\n'
+        '[[covariates]]\nname = "pre"\ndescription = "score before allocation"\n'
+        '[[covariates]]\nname = "age"\nadjust_to = 3\nslopes = "per-cell"\n'
+        '[analysis]\npermutations = 200\n'
+        '[[hypotheses]]\nname = "a2 above a1"\nmeans = "a2 > a1"\n[[hypotheses]]\nname = "A x B"\neffect = "A x B"\n',
+        encoding="utf-8")
+    plans.append(cov / "plan.toml")
     return plans
 
 

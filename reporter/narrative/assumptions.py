@@ -52,7 +52,9 @@ class AssumptionSections:
                           runs_of(N.symbol("W"), f" = {N.format_bounded(sw.statistic, 3)}, ", N.stat_p(sw.p),
                                   ", ", N.stat_count(sw.n, "N"), sample)))
         items.append((runs_of("Outliers (|studentized residual| > 3)"), runs_of(self.outlier_phrase(a))))
+        items += self.slopes_check_items(a)
         blocks.append(DefinitionList(tuple(items)))
+        blocks += self.slopes_check_blocks(a)
         if a.unavailable:
             verdict = f"Residual checks, variance checks and the outlier screen are {a.unavailable}."
         elif a.heterogeneous:
@@ -64,7 +66,7 @@ class AssumptionSections:
         blocks.append(Paragraph(runs_of(verdict)))
         if a.qq is not None:
             blocks.append(self.qq_figure())
-        if self.a.points is not None:
+        if self.a.points is not None and not self.has_covariates:  # the points are outcomes, not ANCOVA residuals
             blocks.append(self.residual_figure())
         blocks.append(self.robust_table())
         other = self.distribution_free()
@@ -115,7 +117,7 @@ class AssumptionSections:
                       f"Strip plot of the residuals in each of the {len(groups)} cells around a line at zero.", spec)
 
     def robust_table(self) -> Table:
-        short = {"Welch–Satterthwaite t": "Welch", "Welch's ANOVA": "Welch", "HC3 Wald F": "HC3"}
+        short = {"Welch–Satterthwaite t": "Welch", "Welch's ANOVA": "Welch", "HC3 Wald F": "HC3", "HC3 t": "HC3"}
         cols = (Column(runs_of("hypothesis")), Column(runs_of("classical"), nowrap=True), Column(runs_of(N.symbol("p")), "right"),
                 Column(runs_of("robust"), nowrap=True), Column(runs_of(N.symbol("p")), "right"),
                 Column(runs_of("permutation ", N.symbol("p")), "right"), Column(runs_of("confirmatory")))
@@ -133,8 +135,12 @@ class AssumptionSections:
             perm = runs_of(N.format_p_cell(e.permutation.p)) if e.permutation else runs_of("—")
             rows.append((runs_of(h.contrast.name), runs_of(self.test_stat(h.test)), runs_of(N.format_p_cell(h.test.p)),
                          robust, rp, perm, runs_of(e.confirmatory)))
-        note = [runs_of("Robust versions: Welch = Welch–Satterthwaite t for a one-row contrast, or Welch's ANOVA for a "
-                        "one-way effect; HC3 = heteroscedasticity-consistent (HC3) Wald F. All p values unadjusted.")]
+        if self.has_covariates:
+            note = [runs_of("Robust versions: HC3 = heteroscedasticity-consistent (HC3) t for a one-row contrast or Wald "
+                            "F otherwise, on the adjusted means. All p values unadjusted.")]
+        else:
+            note = [runs_of("Robust versions: Welch = Welch–Satterthwaite t for a one-row contrast, or Welch's ANOVA for a "
+                            "one-way effect; HC3 = heteroscedasticity-consistent (HC3) Wald F. All p values unadjusted.")]
         for h in self.a.hypotheses:
             if h.extras and h.extras.robust and h.extras.robust.note:
                 note.append(runs_of(f"{h.contrast.name}: robust test not available ({h.extras.robust.note})."))

@@ -27,6 +27,7 @@ from __future__ import annotations
 from reporter.narrative import numbers as N
 from reporter.narrative.assumptions import AssumptionSections
 from reporter.narrative.cell_summaries import CellSummarySections
+from reporter.narrative.covariates import CovariateSections
 from reporter.narrative.document import Document, Section, plain
 from reporter.narrative.hypothesis_tests import HypothesisSections
 from reporter.narrative.matrices import MatrixSections
@@ -38,7 +39,7 @@ from reporter.narrative.summary_methods import SummaryMethods
 
 
 class _Builder(SummaryMethods, MeansSections, MatrixSections, HypothesisSections, ResultsSections,
-               AssumptionSections, ProvenanceSections):
+               AssumptionSections, ProvenanceSections, CovariateSections):
     """One report's wording: the sections come from the mixins, the state and the shared statistic
     pieces (the confirmatory test, its p values and interval) from here."""
 
@@ -66,7 +67,7 @@ class _Builder(SummaryMethods, MeansSections, MatrixSections, HypothesisSections
         if self.robust_confirmatory(h):
             r = h.extras.robust
             stat = N.stat_t(r.statistic, r.df[0]) if r.test == "t" else N.stat_f(r.statistic, r.df[0], r.df[1])
-            name = {"HC3 Wald F": "HC3 Wald test", "Welch–Satterthwaite t": "Welch–Satterthwaite test"}.get(r.method, r.method)
+            name = {"HC3 Wald F": "HC3 Wald test", "HC3 t": "HC3 t test", "Welch–Satterthwaite t": "Welch–Satterthwaite test"}.get(r.method, r.method)
             return N.text(f"{name}, ") + stat
         return self.test_stat(h.test)
 
@@ -116,7 +117,7 @@ class _Builder(SummaryMethods, MeansSections, MatrixSections, HypothesisSections
         sections += [self.results_section(), self.cautions(), self.provenance()]
         return Document(
             title=self.plan.title,
-            subtitle=f"Analysis of variance report · {self.design_phrase()}",
+            subtitle=f"Analysis of {'co' if self.has_covariates else ''}variance report · {self.design_phrase()}",
             summary=self.summary(),
             sections=tuple(sections),
             created=self.prov.created,

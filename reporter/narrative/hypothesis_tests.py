@@ -69,7 +69,7 @@ class HypothesisSections:
         if not self.robust_confirmatory(h):
             return None
         method = h.extras.robust.method
-        name = {"HC3 Wald F": "the HC3 Wald test", "Welch–Satterthwaite t": "the Welch–Satterthwaite test",
+        name = {"HC3 Wald F": "the HC3 Wald test", "HC3 t": "the HC3 t test", "Welch–Satterthwaite t": "the Welch–Satterthwaite test",
                 "Welch's ANOVA": "Welch's ANOVA"}.get(method, method)
         policy = self.plan.analysis.unequal_variances
         why = (f"Because the plan sets {POLICY_KEY} = \"{policy}\"" if policy != "robust-if-heterogeneous" else
@@ -85,6 +85,11 @@ class HypothesisSections:
                 "variance of each cell mean from that cell's own residuals (enlarged for the cell's leverage) instead "
                 "of from one variance pooled over all cells, so it stays valid when the cells' variances differ "
                 "(MacKinnon & White, 1985; Long & Ervin, 2000)."),
+            "HC3 t": runs_of(
+                ", a ", N.symbol("t"), " test of the contrast with a heteroscedasticity-consistent standard error of type "
+                "HC3: the variance of the estimate comes from each row's own residual (enlarged for its leverage) "
+                "instead of from one variance pooled over all cells, so it stays valid when the cells' variances "
+                "differ (MacKinnon & White, 1985; Long & Ervin, 2000)."),
             "Welch–Satterthwaite t": runs_of(
                 ", Welch's ", N.symbol("t"), " test for a contrast. It uses each cell's own variance instead of one "
                 "variance pooled over all cells, with Satterthwaite's approximate degrees of freedom (Welch, 1947), so "
@@ -208,7 +213,9 @@ class HypothesisSections:
         subs = tuple(self.hypothesis_block(i, h) for i, h in enumerate(self.a.hypotheses, start=1))
         intro = Paragraph(runs_of(
             "Each hypothesis below is shown as written in the plan, as the null and alternative it implies, "
-            "as a contrast over the cell means and over the model's coefficients, and with its test."))
+            "as a contrast over the cell means and over the model's coefficients, and with its test."
+            + (f" Every mean in them is an adjusted mean: the cell mean at {self.references_phrase(why=False)}."
+               if self.has_covariates else "")))
         if not subs:
             intro = Paragraph(runs_of("The plan states no hypothesis."))
         return Section("hypotheses", "Hypotheses tested", (intro,), subs)

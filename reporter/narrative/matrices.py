@@ -6,7 +6,7 @@ from __future__ import annotations
 from fractions import Fraction
 
 from reporter.narrative import numbers as N
-from reporter.narrative.document import Column, DefinitionList, Note, Paragraph, Section, Table, runs_of
+from reporter.narrative.document import Column, DefinitionList, Note, Paragraph, Section, Table, plain, runs_of
 from reporter.narrative.phrases import CODING_NAMES, _count_noun, _fr, _num
 
 
@@ -63,11 +63,15 @@ class MatrixSections:
                     "that the null hypothesis sets equal to its ", N.symbol("h"), ". A hypothesis of one row is usually tested "
                     "with a ", N.symbol("t"), " test; several rows are tested together with one ", N.symbol("F"),
                     " test.")),
-                (runs_of(N.symbol("L = C·D")), runs_of(
+                (runs_of(N.symbol("L = [C·D, 0]" if self.has_covariates else "L = C·D")), runs_of(
                     "The same hypothesis written over the coefficients: ", N.symbol("L·β = h"), " states exactly what ",
-                    N.symbol("C·μ = h"), " states.")),
+                    N.symbol("C·μ = h"), " states.",
+                    " The zeros stand for the slopes: a hypothesis about adjusted means puts no weight on them."
+                    if self.has_covariates else "")),
                 (runs_of("H0, H1"), runs_of("The null hypothesis and the alternative hypothesis.")),
             ]
+        if self.has_covariates:
+            items[1:1] = self.covariate_notation()
         return Note("info", "Notation used from here on", (DefinitionList(tuple(items)),))
 
     def model_section(self) -> Section:
@@ -75,22 +79,29 @@ class MatrixSections:
         coefs = d.coefficients
         names = [f.name for f in d.factors]
         cols = [Column(runs_of("/".join(names) if self.multi else "cell"))]
+        cov_cols = d.covariates if self.has_covariates else ()
         cols += [Column(runs_of(c.symbol), "center") for c in coefs]
+        cols += [Column(runs_of(c.symbol), "center") for c in cov_cols]
         cols += [Column(runs_of("data rows"), "right")]
         rows, marks = [], []
         for c, n in zip(d.cells, self.prep.counts):
             if n == 0:
                 continue
             vals = [int(v) for v in d.matrix[c.index]]
-            rows.append((runs_of(c.short), *(runs_of(_fr(Fraction(v))) for v in vals), runs_of(N.format_count(n))))
-            marks.append(("",) + tuple("pos" if v > 0 else "neg" if v < 0 else "zero" for v in vals) + ("",))
+            xs = [self.covariate_entry(col, c.index) for col in cov_cols]
+            rows.append((runs_of(c.short), *(runs_of(_fr(Fraction(v))) for v in vals), *(runs_of(x) for x in xs),
+                         runs_of(N.format_count(n))))
+            marks.append(("",) + tuple("pos" if v > 0 else "neg" if v < 0 else "zero" for v in vals)
+                         + tuple("zero" if x == "0" else "" for x in xs) + ("",))
         matrix = Table(
             "design-matrix",
             runs_of(f"Design matrix ({CODING_NAMES[d.parameterization]} coding): its distinct rows, one per observed cell"),
             tuple(cols), tuple(rows),
             notes=(runs_of("Each row stands for the data rows of its cell (last column); ", N.symbol("X"), " has "
-                           f"{_count_noun(self.prep.data.n, 'row')} and {_count_noun(len(coefs), 'column')}. Columns: "
-                           + "; ".join(f"{c.symbol} = {c.label}" for c in coefs) + "."),),
+                           f"{_count_noun(self.prep.data.n, 'row')} and {_count_noun(len(coefs) + len(cov_cols), 'column')}. "
+                           "Columns: " + "; ".join([f"{c.symbol} = {c.label}" for c in coefs]
+                                                   + [self.covariate_column_words(col) for col in cov_cols]) + "."),
+                   *self.covariate_matrix_notes(cov_cols)),
             highlight=tuple(marks), compact=True,
         )
         check = d.check_indicator_rule(self.prep.counts)
@@ -102,25 +113,35 @@ class MatrixSections:
             rule = Paragraph(runs_of(
                 "These columns are not plain group indicators (" + "; ".join(check.failures) +
                 "), so a coefficient is not simply a group mean; its meaning is given below."))
+        if self.has_covariates:
+            rule = Paragraph(runs_of(plain(rule.runs).replace("simply the mean of", "simply the adjusted mean of")
+                                     .replace("Every column is", "Every factor column is")
+                                     .replace("has exactly one 1,", "has exactly one 1 among them,")
+                                     .replace("simply a group mean", "simply a group's adjusted mean")))
         mrows = []
         for c, est, se, ok in zip(coefs, a.fit.coefficients, a.fit.coefficient_se, a.fit.estimable):
             mrows.append((runs_of(c.symbol), runs_of(c.label), runs_of(c.meaning_text(d)),
                           runs_of(c.meaning_words(d)),
                           runs_of(_num(est) if ok else "not estimable"), runs_of(_num(se) if ok else "—")))
+        mrows += self.slope_meaning_rows(cov_cols)
         meanings = Table(
             "coefficients", runs_of("What each coefficient estimates, as a combination of cell means (", N.symbol("β = D⁻¹μ"), ")"),
             (Column(runs_of("β")), Column(runs_of("column")), Column(runs_of("in symbols")), Column(runs_of("in words")),
              Column(runs_of("estimate"), "right"), Column(runs_of(N.symbol("SE")), "right")),
             tuple(mrows),
             notes=((runs_of(f"μ̄ is the average of the {d.k} cell means, each cell counted once whatever its n."),)
-                   if any(not ref.fixed for c in coefs for _, ref in c.meaning) else ()),
+                   if any(not ref.fixed for c in coefs for _, ref in c.meaning) else ())
+                  + ((runs_of("With covariates, μ are the adjusted cell means; a slope coefficient is not a "
+                              "combination of cell means, and its meaning is given in words."),) if cov_cols else ()),
         )
         return Section("model", "The model", (self.notation(), matrix, rule, meanings))
 
 
 def contrast_tables(i: int, c, d) -> tuple[Table, Table]:
     """Hypothesis ``i`` (a compiled contrast ``c``) over the cell means (C·μ = h) and over the
-    coefficients of the design ``d`` (L = C·D): the report and the analysis-plan document print these."""
+    coefficients of the design ``d`` (L = C·D; with covariates L = [C·D, 0], a zero for each slope):
+    the report and the analysis-plan document print these."""
+    slopes = tuple(getattr(d, "covariates", ()))
 
     # constants as written: in residual SDs when the plan wrote them so (0.3 sd); an equivalence
     # claim shows its bounds instead of h
@@ -147,7 +168,9 @@ def contrast_tables(i: int, c, d) -> tuple[Table, Table]:
     return (
         table(f"h{i}-cells", runs_of(f"Hypothesis {i} as a contrast over the cell means (", N.symbol("C·μ = h"), ")"),
               [cell.short for cell in d.cells], c.weights),
-        table(f"h{i}-betas", runs_of(f"Hypothesis {i} as the same contrast over the coefficients (", N.symbol("L = C·D"),
+        table(f"h{i}-betas", runs_of(f"Hypothesis {i} as the same contrast over the coefficients (",
+                                     N.symbol("L = [C·D, 0]" if slopes else "L = C·D"),
                                      f", {CODING_NAMES[d.parameterization]} coding)"),
-              [co.symbol for co in d.coefficients], c.beta_weights),
+              [co.symbol for co in d.coefficients] + [s.symbol for s in slopes],
+              [tuple(row) + (Fraction(0),) * len(slopes) for row in c.beta_weights] if slopes else c.beta_weights),
     )

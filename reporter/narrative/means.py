@@ -30,9 +30,13 @@ class MeansSections:
             header_columns=len(names),
         )
         blocks = [table]
+        if self.has_covariates:
+            blocks.append(self.adjusted_means_table())
         fig = self.means_figure()
         if fig:
             blocks.append(fig)
+        if self.has_covariates:
+            blocks.append(self.adjusted_means_figure())
         return Section("cells", "The groups", tuple(blocks))
 
     def means_figure(self) -> Figure | None:
@@ -88,8 +92,15 @@ class MeansSections:
             ci = _interval(m.ci)
             rows.append((runs_of(m.factor), runs_of(m.level), runs_of(_num(m.mean) if m.mean is not None else "not estimable"),
                          runs_of(_num(m.se)), runs_of(ci)))
-        table = Table("marginal-means", runs_of("Unweighted marginal means (each cell counted once)"), cols, tuple(rows),
-                      notes=(runs_of("SE and CI use the pooled residual variance of the full model."),), header_columns=2)
+        if self.has_covariates:
+            table = Table("marginal-means", runs_of("Adjusted unweighted marginal means (each adjusted cell mean counted "
+                                                    f"once, at {self.references_phrase(why=False)})"),
+                          cols, tuple(rows), notes=(runs_of(
+                              "SE and CI use the residual variance of the covariance model and the covariances of the "
+                              "adjusted cell means, which share the estimated slopes."),), header_columns=2)
+        else:
+            table = Table("marginal-means", runs_of("Unweighted marginal means (each cell counted once)"), cols, tuple(rows),
+                          notes=(runs_of("SE and CI use the pooled residual variance of the full model."),), header_columns=2)
         blocks = [table]
         fig = self.interaction_figure()
         if fig:
@@ -101,6 +112,7 @@ class MeansSections:
         if len(d.factors) < 2:
             return None
         fx, ft = d.factors[-1], d.factors[0]
+        adjusted = self.has_covariates
         traces = []
         for lt in ft.levels:
             means, lo, hi = [], [], []
@@ -108,20 +120,23 @@ class MeansSections:
                 idx = [c.index for c in d.cells if c.as_dict()[ft.name] == lt and c.as_dict()[fx.name] == lx]
                 if len(d.factors) == 2:
                     s = a.summaries[idx[0]]
-                    means.append(s.mean)
-                    lo.append(None if s.ci_pooled is None else s.ci_pooled[0])
-                    hi.append(None if s.ci_pooled is None else s.ci_pooled[1])
+                    mean, ci = (s.adjusted_mean, s.adjusted_ci) if adjusted else (s.mean, s.ci_pooled)
+                    means.append(mean)
+                    lo.append(None if ci is None else ci[0])
+                    hi.append(None if ci is None else ci[1])
                 else:
-                    vals = [a.summaries[i].mean for i in idx]
+                    vals = [a.summaries[i].adjusted_mean if adjusted else a.summaries[i].mean for i in idx]
                     means.append(None if any(v is None for v in vals) else sum(vals) / len(vals))
                     lo.append(None)
                     hi.append(None)
             traces.append((lt, tuple(means), tuple(lo), tuple(hi)))
         spec = FigureSpec("interaction", (("x_factor", fx.name), ("x_levels", tuple(fx.levels)), ("trace_factor", ft.name),
                                           ("traces", tuple(traces)), ("y_label", self.prep.data.outcome)))
-        alt = (f"Line plot of the cell means of {self.prep.data.outcome} across the levels of {fx.name}, "
+        which = "adjusted cell means" if adjusted else "cell means"
+        alt = (f"Line plot of the {which} of {self.prep.data.outcome} across the levels of {fx.name}, "
                f"one line per level of {ft.name}; parallel lines would mean no interaction.")
         note = "" if len(d.factors) == 2 else " (averaged over the other factors)"
+        at = f" at {self.references_phrase(why=False)}" if adjusted else ""
         return Figure("fig-interaction", runs_of(
-            f"Cell means{note} of {self.prep.data.outcome} by {fx.name} and {ft.name}, with "
+            f"{which[0].upper() + which[1:]}{note} of {self.prep.data.outcome}{at} by {fx.name} and {ft.name}, with "
             f"{N.format_confidence_level(self.level)} confidence intervals from the pooled residual variance."), alt, spec)

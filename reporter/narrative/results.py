@@ -41,16 +41,19 @@ class ResultsSections:
         for r in tab.rows:
             if r.note:
                 notes.append(runs_of(f"{r.source}: {r.note}."))
-        table = Table("anova", runs_of(f"Analysis of variance of {self.prep.data.outcome}"), cols, tuple(rows),
+        what = "covariance" if self.has_covariates else "variance"
+        table = Table("anova", runs_of(f"Analysis of {what} of {self.prep.data.outcome}"), cols, tuple(rows),
                       notes=tuple(notes))
         blocks = [table]
+        if self.has_covariates and self.a.fit.slopes:
+            blocks.append(self.slopes_table())
         power = self.sensitivity_table()
         if power:
             blocks.append(power)
         eq_power = E.power_table(list(enumerate(self.a.hypotheses, start=1)), self.alpha)
         if eq_power:
             blocks.append(eq_power)
-        return Section("anova", "Analysis of variance", tuple(blocks))
+        return Section("anova", f"Analysis of {what}", tuple(blocks))
 
     def sensitivity_table(self) -> Table | None:
         if not self.inf:
@@ -127,6 +130,7 @@ class ResultsSections:
                     "tests, equal variances across cells; the checks above say how well these hold here."),
             runs_of("Exploratory hypotheses were not part of the confirmatory family; treat them as suggestions "
                     "for future studies."),
+            *((self.covariate_caution(),) if self.has_covariates else ()),
             runs_of("Where these results inform decisions about people (clinical, educational, personnel or legal), "
                     "have them reviewed by a qualified statistician and follow the review rules that apply locally."),
         ]

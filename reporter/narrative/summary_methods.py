@@ -20,7 +20,9 @@ class SummaryMethods:
         supported = [h for h in planned if self.decision_p(h) < self.alpha]
         text = (plan.summary.strip() + " ") if plan.summary else ""
         text += (f"This report analyses {N.format_count(self.prep.data.n)} observations of "
-                 f"{self.prep.data.outcome} in {self.design_phrase()}. ")
+                 f"{self.prep.data.outcome} in {self.design_phrase()}"
+                 + (f", adjusted for {_words_list([s.name for s in self.covariate_specs])}. " if self.has_covariates
+                    else ". "))
         if planned:
             text += (f"{self.supported_phrase(len(supported), len(planned))} supported at "
                      f"α = {N.format_bounded(self.alpha, 2)} after {CORRECTION_NAMES[planned[0].correction]}; "
@@ -111,7 +113,10 @@ class SummaryMethods:
         agree = " The design is balanced, so Types I, II and III coincide." if a.anova.balanced and self.multi else ""
         if not self.multi:
             agree = " With one factor, the three types coincide."
+        if self.has_covariates:
+            agree = self.covariate_types_words()
         blocks.append(Paragraph(runs_of(f"The ANOVA table uses {why}.{agree}")))
+        blocks.extend(self.covariate_methods())
 
         planned = [h for h in a.hypotheses if h.family == "planned"]
         explor = [h for h in a.hypotheses if h.family == "exploratory"]
@@ -165,9 +170,16 @@ class SummaryMethods:
         }[policy]
         where = (", each described under the first hypothesis where it is the confirmatory test"
                  if any(self.robust_confirmatory(h) for h in self.a.hypotheses) else "")
-        words += (" The robust versions do not assume equal variances: Welch's t test for a one-row contrast, "
-                  "Welch's ANOVA for a one-way effect, and otherwise a Wald F test with heteroscedasticity-"
-                  f"consistent (HC3) standard errors{where}.")
+        if self.has_covariates:
+            words += (" The robust versions do not assume equal variances: a t test for a one-row contrast and a Wald F "
+                      f"test otherwise, both with heteroscedasticity-consistent (HC3) standard errors{where}. Welch's "
+                      "tests are not defined for adjusted means. With covariates every check runs on the residuals "
+                      "of the covariance analysis, and the homogeneity of the slopes across cells is tested as the "
+                      "cell × covariate interaction.")
+        else:
+            words += (" The robust versions do not assume equal variances: Welch's t test for a one-row contrast, "
+                      "Welch's ANOVA for a one-way effect, and otherwise a Wald F test with heteroscedasticity-"
+                      f"consistent (HC3) standard errors{where}.")
         return [Paragraph(_lead("Assumptions",
             "Independence of observations follows from the design and cannot be checked "
             "from the data. Equality of variances across cells was checked with the Brown–Forsythe test "

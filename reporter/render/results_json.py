@@ -173,6 +173,17 @@ def _inference_dict(prep, analysis) -> dict[str, Any]:
         "games_howell": None if inf.games_howell is None else _family(
             "all-pairs-unequal-variances", "cells", inf.games_howell, tuple(c.short for c in analysis.design.cells)),
     }
+    if analysis.fit.has_covariates:
+        check = a.slopes
+        out["assumptions"]["slopes_homogeneity"] = {
+            "covariates": [c.name for c in prep.plan.covariates],
+            "F": None if check is None else _num(check.F),
+            "df": None if check is None else [check.df1, check.df2],
+            "p": None if check is None else _num(check.p),
+            "ss_error_common": None if check is None else _num(check.ss_error_common),
+            "ss_error_per_cell": None if check is None else _num(check.ss_error_per_cell),
+            "note": a.slopes_note,
+        }
     if inf.outlier_sensitivity is not None:
         s = inf.outlier_sensitivity
         out["outlier_sensitivity"] = {
@@ -233,6 +244,25 @@ def _summary_dict(info, bounds) -> dict[str, Any]:
     return out
 
 
+def _covariates_dict(plan, analysis) -> dict[str, Any]:
+    """The covariates, where the adjusted means are taken, the slopes and the adjusted marginal means."""
+    fit, design = analysis.fit, analysis.design
+    return {
+        "covariates": [
+            {"name": s.name, "description": s.description, "slopes": s.slopes,
+             "adjust_to": "mean" if s.adjust_to is None else s.adjust_to, "reference": _num(ref)}
+            for s, ref in zip(plan.covariates, fit.covariate_reference)],
+        "slopes": [
+            {"covariate": s.covariate, "cell": None if s.cell is None else design.cells[s.cell].as_dict(),
+             "estimate": _num(s.estimate), "se": _num(s.se), "t": _num(s.t), "df": s.df, "p": _num(s.p)}
+            for s in fit.slopes],
+        "adjusted_marginal_means": [
+            {"factor": m.factor, "level": m.level, "mean": _num(m.mean), "se": _num(m.se), "ci": _pair(m.ci),
+             **({"note": m.note} if m.note else {})}
+            for m in analysis.marginal_means],
+    }
+
+
 def _provenance_more(p) -> dict[str, Any]:
     """Input paths and size, rows, platform, command line, seeds and the lock's hash."""
     r = p.randomness
@@ -274,6 +304,10 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
             "ci": _pair(s.ci),
             "ci_pooled": _pair(s.ci_pooled),
         }
+        if analysis.fit.has_covariates:
+            entry["adjusted_mean"] = _num(s.adjusted_mean)
+            entry["adjusted_se"] = _num(s.adjusted_se)
+            entry["adjusted_ci"] = _pair(s.adjusted_ci)
         if s.n == 0:
             entry["note"] = "empty cell: no data, so no mean, SD or CI"
         elif s.n == 1:
@@ -287,6 +321,8 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
                "F": _num(r.F), "p": _num(r.p)}
         if r.note:
             row["note"] = r.note
+        if r.covariate is not None:
+            row["covariate"] = r.covariate
         if r.df_hypothesis is not None:
             row["df_hypothesis"] = r.df_hypothesis
             row["tested_contrast"] = [[_frac(w) for w in t] for t in r.tested]
@@ -342,7 +378,7 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
             "ss": _num(t.ss),
             "contrast": {
                 "cells": [[_frac(w) for w in row] for row in c.weights],
-                "coefficients": [[_frac(w) for w in row] for row in c.beta_weights],
+                "coefficients": [[_frac(w) for w in row] + [0.0] * len(design.covariates) for row in c.beta_weights],
                 "rhs": [_frac(x) for x in c.rhs],
             },
             "notes": list(h.notes),
@@ -430,6 +466,12 @@ def results_dict(prep, analysis, provenance) -> dict[str, Any]:
     }
     if data.summary is not None:
         doc["data"]["summary"] = _summary_dict(data.summary, analysis.rounding)
+    if analysis.fit.has_covariates:
+        doc["design"]["covariate_columns"] = [
+            {"symbol": col.symbol, "covariate": col.covariate,
+             "cell": None if col.cell is None else design.cells[col.cell].as_dict(),
+             "label": col.label, "meaning_words": col.meaning_words(design)} for col in design.covariates]
+        doc.update(_covariates_dict(plan, analysis))
     doc.update(_inference_dict(prep, analysis))
     doc["lock"] = _lock_dict(getattr(prep, "lock", None))
     return doc
