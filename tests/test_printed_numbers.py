@@ -751,3 +751,89 @@ def test_results_sentence_prints_the_confirmatory_interval(robust_oneway, name, 
                         f"Holm-adjusted {stat_p(p_adj).plain()}; estimate {format_number(e)}, "
                         f"{stat_ci(lo, hi, 0.95).plain()}",
                         float(res.statistic), float(res.df), float(res.pvalue), est, *ci), f"{name} Results sentence")
+
+
+# ---------------------------------------------------------------------------------------------
+# Covariates: the numbers the analysis of covariance adds
+
+
+COVARIATE_PATHS = ("covariates", "slopes", "adjusted_marginal_means", "assumptions.slopes_homogeneity")
+CELL_ADJUSTED = ("adjusted_mean", "adjusted_se", "adjusted_ci")
+
+
+@pytest.fixture(scope="module")
+def ancova(tmp_path_factory):
+    import json
+
+    from ancova_project import write_ancova_project
+    from refcheck import Run
+    from reporter import report
+
+    project = write_ancova_project(tmp_path_factory.mktemp("ancova-printed"))
+    rep = report(project.plan)
+    return project, Run(rep, json.loads(rep.render("json")))
+
+
+def test_covariate_numbers_are_checked_and_printed(ancova):
+    """Every number of the covariate fields of results.json (covariates, slopes, adjusted cell and
+    marginal means, the slopes check, the covariate's ANOVA row) is checked against statsmodels OLS
+    (y ~ C(g) + (x − x̄) − 1, and y ~ C(g) * x for the slopes check) or the rows' mean (numpy), and the
+    Markdown and HTML print those values in the adjusted-means, slopes and ANOVA tables."""
+    import statsmodels.formula.api as smf
+    from statsmodels.stats.anova import anova_lm
+
+    from ancova_project import LEVELS, reference_fit
+
+    project, out = ancova
+    doc = out.results
+    fit = reference_fit(project)
+    ci = fit.conf_int(0.05)
+    ledger = Ledger(doc)
+    ledger.check(("covariates", 0, "reference"), float(np.mean(project.rows["x"])), rel=1e-12)
+    cells = {g: f"C(g)[{g}]" for g in LEVELS}
+    for i, g in enumerate(LEVELS):
+        ledger.check(("cells", i, "adjusted_mean"), fit.params[cells[g]], rel=1e-9)
+        ledger.check(("cells", i, "adjusted_se"), fit.bse[cells[g]], rel=1e-9)
+        ledger.check(("cells", i, "adjusted_ci"), list(ci.loc[cells[g]]), rel=1e-9)
+        ledger.check(("adjusted_marginal_means", i, "mean"), fit.params[cells[g]], rel=1e-9)
+        ledger.check(("adjusted_marginal_means", i, "se"), fit.bse[cells[g]], rel=1e-9)
+        ledger.check(("adjusted_marginal_means", i, "ci"), list(ci.loc[cells[g]]), rel=1e-9)
+    for key, ref in (("estimate", fit.params["xc"]), ("se", fit.bse["xc"]), ("t", fit.tvalues["xc"]),
+                     ("df", fit.df_resid), ("p", fit.pvalues["xc"])):
+        ledger.check(("slopes", 0, key), float(ref), rel=1e-9)
+    small = smf.ols("y ~ C(g) + x", data=project.rows).fit()
+    large = smf.ols("y ~ C(g) * x", data=project.rows).fit()
+    cmp = anova_lm(small, large)
+    check = ("assumptions", "slopes_homogeneity")
+    ledger.check((*check, "F"), float(cmp["F"].iloc[1]), rel=1e-9)
+    ledger.check((*check, "p"), float(cmp["Pr(>F)"].iloc[1]), rel=1e-9)
+    ledger.check((*check, "df"), [float(cmp["df_diff"].iloc[1]), float(large.df_resid)])
+    ledger.check((*check, "ss_error_common"), float(small.ssr), rel=1e-9)
+    ledger.check((*check, "ss_error_per_cell"), float(large.ssr), rel=1e-9)
+    row = ("anova", "rows", 0)
+    assert doc["anova"]["rows"][0]["covariate"] == "pretest"
+    F = float(fit.tvalues["xc"]) ** 2
+    ledger.check((*row, "df"), 1)
+    ledger.check((*row, "F"), F, rel=1e-9)
+    ledger.check((*row, "ss"), F * fit.mse_resid, rel=1e-9)
+    ledger.check((*row, "ms"), F * fit.mse_resid, rel=1e-9)
+    ledger.check((*row, "p"), float(fit.pvalues["xc"]), rel=1e-8)
+    unchecked = [p for p in ledger.unchecked()
+                 if p.startswith(COVARIATE_PATHS) or any(f".{k}" in p for k in CELL_ADJUSTED)
+                 or (p.startswith("anova.rows.0.") and p.split(".")[3] in ("df", "ss", "ms", "F", "p"))]
+    assert not unchecked, f"covariate numbers with no reference check: {unchecked}"
+
+    pr = Printed(out)
+    for g in LEVELS:
+        c = cells[g]
+        ys = project.rows.loc[project.rows["g"] == g, "y"]
+        pr.has_row(g, [{str(len(ys))}, num(float(ys.mean())), num(fit.params[c]),
+                       num(fit.bse[c]), bracket(*ci.loc[c])], f"adjusted mean of {g}")
+    pr.has_row("pretest", [num(fit.params["xc"]), num(fit.bse["xc"]), num(fit.tvalues["xc"]),
+                           {format_df(fit.df_resid)}, formats(format_p_cell, fit.pvalues["xc"])], "slope")
+    pr.has_row("pretest", [{"1"}, num(F * fit.mse_resid), num(F * fit.mse_resid), num(F),
+                           formats(format_p_cell, fit.pvalues["xc"])], "ANOVA covariate row")
+    pr.has_text(formats(lambda F, p: f"{stat_f(F, int(cmp['df_diff'].iloc[1]), int(large.df_resid)).plain()}, "
+                                     f"{stat_p(p).plain()}", float(cmp["F"].iloc[1]), float(cmp["Pr(>F)"].iloc[1])),
+                "slopes check")
+    pr.has_text(num(float(np.mean(project.rows["x"]))), "reference value")

@@ -136,13 +136,20 @@ class CovariateSections:
                         runs_of(_num(s.estimate) if s else "not estimable"), runs_of(_num(s.se) if s else "—")))
         return out
 
+    @staticmethod
+    def adjusted_words(words: str) -> str:
+        """A coefficient's meaning in words, said of adjusted means."""
+        return (words.replace("the mean of", "the adjusted mean of").replace("cell means", "adjusted cell means")
+                .replace("the unweighted mean over", "the unweighted adjusted mean over"))
+
     def covariate_notation(self) -> list:
         """Definitions the notation box adds with covariates, placed after the cell mean μ."""
         return [
-            (runs_of("x*"), runs_of(
-                "The reference value of a covariate x: ", self.references_phrase(), ". With covariates each μ is an "
-                "adjusted cell mean, the cell's mean of ", self.prep.data.outcome, " at x = x*.")),
-            (runs_of("x − x*"), runs_of(
+            (runs_of(N.symbol("x*")), runs_of(
+                "The reference value of a covariate ", N.symbol("x"), ": ", self.references_phrase(), ". With "
+                "covariates each μ is an adjusted cell mean, the cell's mean of ", self.prep.data.outcome, " at ",
+                N.symbol("x = x*"), ".")),
+            (runs_of(N.symbol("x − x*")), runs_of(
                 "A covariate's value minus its reference value: the covariate columns of ", N.symbol("X"),
                 " hold it, row by row.")),
         ]

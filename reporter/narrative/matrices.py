@@ -45,7 +45,9 @@ class MatrixSections:
                 "for each coefficient.")),
             (runs_of(N.symbol("D")), runs_of(
                 "The design matrix of the cells: the distinct rows of ", N.symbol("X"), ", one for each cell, so that ",
-                N.symbol("μ = D·β"), ".")),
+                N.symbol("μ = D·β"), ".",
+                (" With covariates, ", N.symbol("D"), " holds only the factor columns of ", N.symbol("X"),
+                 ", and μ are the adjusted cell means.") if self.has_covariates else ())),
             (runs_of(N.symbol("D⁻¹")), runs_of(
                 "The inverse of ", N.symbol("D"), ", so that ", N.symbol("β = D⁻¹μ"), ": each row of ", N.symbol("D⁻¹"),
                 " gives the combination of cell means that one coefficient estimates.")),
@@ -121,7 +123,7 @@ class MatrixSections:
         mrows = []
         for c, est, se, ok in zip(coefs, a.fit.coefficients, a.fit.coefficient_se, a.fit.estimable):
             mrows.append((runs_of(c.symbol), runs_of(c.label), runs_of(c.meaning_text(d)),
-                          runs_of(c.meaning_words(d)),
+                          runs_of(self.adjusted_words(c.meaning_words(d)) if cov_cols else c.meaning_words(d)),
                           runs_of(_num(est) if ok else "not estimable"), runs_of(_num(se) if ok else "—")))
         mrows += self.slope_meaning_rows(cov_cols)
         meanings = Table(
