@@ -72,6 +72,9 @@ class AssumptionSections:
         other = self.distribution_free()
         if other:
             blocks.append(other)
+        ruled_out = self.not_computed_note()
+        if ruled_out:
+            blocks.append(ruled_out)
         if inf.outlier_sensitivity is not None:
             blocks.append(self.outlier_table())
         for fam in self.posthoc_tables():
@@ -164,7 +167,7 @@ class AssumptionSections:
     def distribution_free(self) -> Paragraph | None:
         kw, welch = self.inf.kruskal, self.inf.welch_oneway
         parts = []
-        if kw is None and self.inf.kruskal_note and self.prep.data.summary is None:
+        if kw is None and self.inf.kruskal_note and self.prep.data.summary is None and not self.has_covariates:
             parts += [f"Kruskal–Wallis test across the cells: {self.inf.kruskal_note}. "]
         if welch is not None:
             parts += ["Welch's ANOVA across the cells: ", N.stat_f(welch.statistic, welch.df1, welch.df2), ", ",

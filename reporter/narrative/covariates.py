@@ -13,7 +13,7 @@ stated covariate value). Nothing is computed here: every number comes from the f
 from __future__ import annotations
 
 from reporter.narrative import numbers as N
-from reporter.narrative.document import Column, Figure, FigureSpec, Note, Paragraph, Table, runs_of
+from reporter.narrative.document import BulletList, Column, Figure, FigureSpec, Note, Paragraph, Table, runs_of
 from reporter.narrative.phrases import _count_words, _interval, _lead, _num, _words_list
 
 
@@ -56,6 +56,11 @@ class CovariateSections:
     def references_phrase(self, why: bool = True) -> str:
         return _words_list([self.reference_phrase(j, why) for j in range(len(self.covariate_specs))])
 
+    def per_cell_phrase(self) -> str:
+        """The reference values of the covariates with per-cell slopes: where effects are evaluated."""
+        return _words_list([self.reference_phrase(j, why=False) for j, s in enumerate(self.covariate_specs)
+                            if s.slopes == "per-cell"])
+
     def per_cell_names(self) -> list[str]:
         return [s.name for s in self.covariate_specs if s.slopes == "per-cell"]
 
@@ -85,7 +90,7 @@ class CovariateSections:
         if separate:
             blocks.append(Paragraph(runs_of(
                 "With a separate slope in each cell, the difference between two cells depends on the covariate's "
-                f"value, so every effect and every hypothesis is evaluated at {self.references_phrase(why=False)}; "
+                f"value, so every effect and every hypothesis is evaluated at {self.per_cell_phrase()}; "
                 "at another value the differences would be other ones.")))
         assume = ("that the relation between each covariate and the outcome is linear within each cell"
                   + (", with the same slope in every cell (checked below by the homogeneity-of-slopes test)"
@@ -221,7 +226,7 @@ class CovariateSections:
             rows.append(tuple(row))
         fixed = ", the other covariates held fixed" if len(self.covariate_specs) > 1 else ""
         notes = [runs_of("Slope: the change in the mean of ", self.prep.data.outcome, " per unit of the covariate "
-                         f"within {'its' if per_cell else 'a'} cell{fixed}; ", N.symbol("t"), " tests that it is zero "
+                         f"within a cell{' (its own cell for a per-cell slope)' if per_cell else ''}{fixed}; ", N.symbol("t"), " tests that it is zero "
                          f"(two-sided, unadjusted, on the model's {fit.df_error} error df).")]
         return Table("slopes", runs_of(f"Covariate slopes of {self.prep.data.outcome}"), tuple(cols), tuple(rows),
                      notes=tuple(notes), header_columns=2 if per_cell else 1)
@@ -252,8 +257,16 @@ class CovariateSections:
                 "differ between cells" + ("; a common slope describes the cells adequately as far as this test can "
                                          "tell, though it has little power with small cells." if mode == "common" else
                                          "; the plan fits separate slopes all the same, so the effects hold at "
-                                         f"{self.references_phrase(why=False)}."))))
+                                         f"{self.per_cell_phrase()}."))))
         return blocks
+
+    def not_computed_note(self) -> Note | None:
+        """The tests that covariates rule out, each with the reason the inference layer gives."""
+        items = tuple(getattr(self.inf, "not_applicable", ()) or ()) if self.has_covariates else ()
+        if not items:
+            return None
+        return Note("info", "Not computed with covariates", (BulletList(tuple(
+            runs_of(f"{what} — {why}.") for what, why in items)),))
 
     def covariate_caution(self):
         names = _words_list([s.name for s in self.covariate_specs])

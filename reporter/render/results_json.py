@@ -184,6 +184,7 @@ def _inference_dict(prep, analysis) -> dict[str, Any]:
             "ss_error_per_cell": None if check is None else _num(check.ss_error_per_cell),
             "note": a.slopes_note,
         }
+        out["not_applicable"] = [{"result": what, "reason": why} for what, why in inf.not_applicable]
     if inf.outlier_sensitivity is not None:
         s = inf.outlier_sensitivity
         out["outlier_sensitivity"] = {

@@ -199,3 +199,16 @@ def test_report_without_covariates_says_nothing_of_them():
     for words in ("covariate", "adjusted mean", "L = [C·D, 0]", "Homogeneity of slopes"):
         assert words not in text
     assert doc.subtitle.startswith("Analysis of variance report")
+
+
+def test_what_covariates_rule_out_is_listed_with_its_reason(common):
+    """The assumption checks list the tests that do not apply to adjusted means (Welch's tests,
+    Games–Howell, Kruskal–Wallis), each with the inference layer's reason, once."""
+    _, report, doc = common
+    notes = [b for b in doc.walk() if isinstance(b, Note) and b.title == "Not computed with covariates"]
+    assert len(notes) == 1
+    items = [plain(i) for i in notes[0].blocks[0].items]
+    reasons = dict(report.analysis.inference.not_applicable)
+    assert {"Welch's ANOVA", "Kruskal–Wallis test"} <= set(reasons)
+    assert items == [f"{what} — {why}." for what, why in report.analysis.inference.not_applicable]
+    assert sum("Kruskal–Wallis" in plain(b.runs) for b in doc.walk() if isinstance(b, Paragraph)) == 0
