@@ -109,3 +109,17 @@ def test_results_json_covariate_fields_against_statsmodels(run):
     assert [c["symbol"] for c in doc["design"]["covariate_columns"]] == ["β3"]
     assert all(row[-1] == 0 for h in doc["hypotheses"] for row in h["contrast"]["coefficients"])
     assert all(len(row) == 4 for h in doc["hypotheses"] for row in h["contrast"]["coefficients"])
+
+
+def test_long_notation_box_may_break_in_print(run):
+    """With covariates the notation box has more than a dozen entries: the HTML marks it note-long, which
+    the print rules let continue on the next page instead of leaving "The model" alone on a page; the
+    demo's shorter box stays unbreakable (class note-info only)."""
+    from pathlib import Path
+
+    _, report, _ = run
+    html = report.render("html").decode("utf-8")
+    assert 'class="note note-info note-long"' in html
+    demo = build_report(Path(__file__).resolve().parents[2] / "demo_project" / "oneway.toml").render("html").decode()
+    assert "note-long" not in demo.split("</style>", 1)[1]
+    assert ".note-long { break-inside: auto" in html
