@@ -94,6 +94,8 @@ class _PlanBuilder:
             f"The outcome, {plan.data.outcome}, will be modelled by a linear model with one mean per cell (the full "
             f"model, including all interactions), fitted by ordinary least squares, with {PARAM_WORDS[d.parameterization]}. "
             f"The ANOVA table will use {SS_WORDS[a.ss_type]}.")))
+        if getattr(plan, "covariates", ()):
+            blocks.append(Paragraph(_lead("Covariates", self.covariate_words())))
         planned = [c for c in self.contrasts if c.role == "planned"]
         explor = [c for c in self.contrasts if c.role != "planned"]
         if self.contrasts:
@@ -131,6 +133,24 @@ class _PlanBuilder:
         if given:
             blocks.append(DefinitionList(tuple((runs_of(k), runs_of(v.strip())) for k, v in given)))
         return Section("methods", "Planned methods", tuple(blocks))
+
+    def covariate_words(self) -> str:
+        """The plan's covariates, in the future tense: slopes, where adjusted means will be taken, what they assume."""
+        specs, outcome = self.plan.covariates, self.plan.data.outcome
+        parts = []
+        for s in specs:
+            at = "its mean over the rows used" if s.adjust_to is None else f"{s.name} = {s.adjust_to:g}"
+            slope = "one slope common to all cells" if s.slopes == "common" else "a separate slope in each cell"
+            about = f" ({s.description.strip()})" if s.description else ""
+            parts.append(f"{s.name}{about}, with {slope}, adjusted to {at}")
+        per_cell = any(s.slopes == "per-cell" for s in specs)
+        return (f"The model will adjust {outcome} for {'; '.join(parts)} (analysis of covariance). Every hypothesis "
+                "about means will be about the adjusted means, the cell means at those covariate values; in Type I "
+                "sums of squares the covariates will enter first. The homogeneity of the slopes across cells will be "
+                "checked among the assumptions."
+                + (" With separate slopes, effects will be evaluated at the stated covariate values." if per_cell else "")
+                + " The adjustment assumes the covariates cannot be changed by the factors, as when they are measured "
+                "before allocation.")
 
     def data_words(self) -> str:
         plan = self.plan
@@ -190,7 +210,9 @@ class _PlanBuilder:
             (runs_of(N.symbol("D")), runs_of("The design matrix of the cells, so that ", N.symbol("μ = D·β"), ".")),
             (runs_of(N.symbol("C·μ = h")), runs_of("A hypothesis about the cell means: a matrix ", N.symbol("C"),
                                                    " of weights, one column per cell; H0 states that the equation holds.")),
-            (runs_of(N.symbol("L = C·D")), runs_of("The same hypothesis over the coefficients: ", N.symbol("L·β = h"), ".")),
+            (runs_of(N.symbol("L = [C·D, 0]" if getattr(self.design, "covariates", ()) else "L = C·D")),
+             runs_of("The same hypothesis over the coefficients: ", N.symbol("L·β = h"), ".",
+                     " The zeros stand for the covariate slopes." if getattr(self.design, "covariates", ()) else "")),
         )),))
         return Section("model", "The model", (note, matrix, meanings))
 
