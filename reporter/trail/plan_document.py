@@ -94,8 +94,6 @@ class _PlanBuilder:
             f"The outcome, {plan.data.outcome}, will be modelled by a linear model with one mean per cell (the full "
             f"model, including all interactions), fitted by ordinary least squares, with {PARAM_WORDS[d.parameterization]}. "
             f"The ANOVA table will use {SS_WORDS[a.ss_type]}.")))
-        if getattr(plan, "covariates", ()):
-            blocks.append(Paragraph(_lead("Covariates", self.covariate_words())))
         planned = [c for c in self.contrasts if c.role == "planned"]
         explor = [c for c in self.contrasts if c.role != "planned"]
         if self.contrasts:
@@ -134,24 +132,6 @@ class _PlanBuilder:
             blocks.append(DefinitionList(tuple((runs_of(k), runs_of(v.strip())) for k, v in given)))
         return Section("methods", "Planned methods", tuple(blocks))
 
-    def covariate_words(self) -> str:
-        """The plan's covariates, in the future tense: slopes, where adjusted means will be taken, what they assume."""
-        specs, outcome = self.plan.covariates, self.plan.data.outcome
-        parts = []
-        for s in specs:
-            at = "its mean over the rows used" if s.adjust_to is None else f"{s.name} = {s.adjust_to:g}"
-            slope = "one slope common to all cells" if s.slopes == "common" else "a separate slope in each cell"
-            about = f" ({s.description.strip()})" if s.description else ""
-            parts.append(f"{s.name}{about}, with {slope}, adjusted to {at}")
-        per_cell = any(s.slopes == "per-cell" for s in specs)
-        return (f"The model will adjust {outcome} for {'; '.join(parts)} (analysis of covariance). Every hypothesis "
-                "about means will be about the adjusted means, the cell means at those covariate values; in Type I "
-                "sums of squares the covariates will enter first. The homogeneity of the slopes across cells will be "
-                "checked among the assumptions."
-                + (" With separate slopes, effects will be evaluated at the stated covariate values." if per_cell else "")
-                + " The adjustment assumes the covariates cannot be changed by the factors, as when they are measured "
-                "before allocation.")
-
     def data_words(self) -> str:
         plan = self.plan
         ds = plan.data
@@ -180,7 +160,9 @@ class _PlanBuilder:
         return (f"The model will adjust for {'the covariates' if many else 'the covariate'} {'; '.join(parts)} "
                 "(analysis of covariance): hypotheses about means will concern the adjusted means. Rows with a "
                 "missing covariate value will be left out and counted by reason; a value that is not a number will "
-                "stop the analysis with a message.")
+                "stop the analysis with a message. In Type I sums of squares the covariates will enter first, and the "
+                "homogeneity of the slopes across cells will be checked among the assumptions. The adjustment assumes "
+                "the factors cannot change the covariates, as when they are measured before allocation.")
 
     def model_section(self) -> Section:
         d = self.design

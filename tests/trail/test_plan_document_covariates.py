@@ -22,23 +22,21 @@ def _paragraphs(doc) -> str:
 
 
 def test_planned_methods_state_the_covariate_and_its_reference(tmp_path):
-    """Common slope at the mean: the covariate, its slope, 'its mean over the rows used', adjusted means,
+    """Common slope at the mean: the covariate, its slope, the mean of the rows analysed, adjusted means,
     Type I order and the assumption that the factors cannot change it."""
     text = _paragraphs(_document(tmp_path))
-    assert ("Covariates. The model will adjust score for pretest (reading score before allocation), with one slope "
-            "common to all cells, adjusted to its mean over the rows used (analysis of covariance).") in text
-    assert "Every hypothesis about means will be about the adjusted means" in text
+    assert ("The model will adjust for the covariate pretest (one slope common to all cells; adjusted means at the "
+            "mean of the rows analysed)") in text
+    assert "hypotheses about means will concern the adjusted means" in text
     assert "the covariates will enter first" in text
     assert "measured before allocation" in text
-    assert "effects will be evaluated at the stated covariate values" not in text
 
 
 def test_per_cell_slopes_at_a_stated_value_and_zero_slope_columns(tmp_path):
     """Per-cell slopes at pretest = 50: said so; L = [C·D, 0] has a zero in each slope's column."""
     doc = _document(tmp_path, slopes="per-cell", adjust_to=50)
     text = _paragraphs(doc)
-    assert "with a separate slope in each cell, adjusted to pretest = 50" in text
-    assert "effects will be evaluated at the stated covariate values" in text
+    assert "pretest (a separate slope in each cell; adjusted means at the value 50)" in text
     betas = [b for b in doc.walk() if isinstance(b, Table) and b.id.endswith("-betas")]
     assert betas
     for table in betas:
