@@ -37,6 +37,11 @@ class CovariateSections:
     def has_covariates(self) -> bool:
         return bool(self.covariate_specs) and bool(getattr(self.a.fit, "has_covariates", False))
 
+    @property
+    def adjusted_word(self) -> str:
+        """"adjusted " before "means" with covariates, nothing without."""
+        return "adjusted " if self.has_covariates else ""
+
     def reference_value(self, j: int) -> str:
         """Covariate j's reference value x* as printed: the plan's number as written, or the mean."""
         spec = self.covariate_specs[j]

@@ -110,7 +110,8 @@ class HypothesisSections:
             return E.words(h, self.prep.data.outcome)
         if c.kind == "effect":
             if len(c.factors) == 1:
-                return (f"In words: the null hypothesis is that the unweighted mean of {self.prep.data.outcome} is the "
+                return (f"In words: the null hypothesis is that the unweighted {self.adjusted_word}mean of "
+                        f"{self.prep.data.outcome} is the "
                         f"same at every level of {c.factors[0]}; the alternative is that at least two differ.")
             return (f"In words: the null hypothesis is that the effect of one factor is the same at every level of "
                     f"the other ({' × '.join(c.factors)} interaction absent).")
@@ -205,7 +206,7 @@ class HypothesisSections:
         c = h.contrast
         if c.kind == "effect":
             if len(c.factors) == 1:
-                return f"all unweighted means of {c.factors[0]} are equal"
+                return f"all unweighted {self.adjusted_word}means of {c.factors[0]} are equal"
             return f"there is no {' × '.join(c.factors)} interaction"
         return _unquote(c.null_text())
 

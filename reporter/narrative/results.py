@@ -100,7 +100,8 @@ class ResultsSections:
         sig = self.decision_p(h) < self.alpha
         lead = f"{c.name}: "
         if c.kind == "effect":
-            claim = ("the unweighted means differed" if sig else "the data did not show clear differences among the unweighted means")
+            means = f"unweighted {self.adjusted_word}means"
+            claim = (f"the {means} differed" if sig else f"the data did not show clear differences among the {means}")
             if len(c.factors) > 1:
                 claim = ("the data indicate an interaction" if sig else "the data did not show a clear interaction")
         elif c.is_equivalence:

@@ -212,3 +212,13 @@ def test_what_covariates_rule_out_is_listed_with_its_reason(common):
     assert {"Welch's ANOVA", "Kruskal–Wallis test"} <= set(reasons)
     assert items == [f"{what} — {why}." for what, why in report.analysis.inference.not_applicable]
     assert sum("Kruskal–Wallis" in plain(b.runs) for b in doc.walk() if isinstance(b, Paragraph)) == 0
+
+
+def test_effect_wording_speaks_of_adjusted_means(common):
+    """The omnibus effect is read as a statement about unweighted adjusted means, in words, in the
+    reading and in the results sentence."""
+    _, _, doc = common
+    text = _text(doc)
+    assert "the unweighted adjusted mean of score is the same at every level of method" in text
+    assert "all unweighted adjusted means of method are equal" in text
+    assert "clear differences among the unweighted adjusted means" in text
