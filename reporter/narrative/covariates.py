@@ -97,12 +97,15 @@ class CovariateSections:
                 "With a separate slope in each cell, the difference between two cells depends on the covariate's "
                 f"value, so every effect and every hypothesis is evaluated at {self.per_cell_phrase()}; "
                 "at another value the differences would be other ones.")))
-        assume = ("that the relation between each covariate and the outcome is linear within each cell"
+        one = len(specs) == 1
+        assume = (f"that the relation between {'the covariate' if one else 'each covariate'} and the outcome is linear "
+                  "within each cell"
                   + (", with the same slope in every cell (checked below by the homogeneity-of-slopes test)"
                      if common else ""))
         blocks.append(Paragraph(runs_of(
-            "The adjustment assumes that the covariates are not affected by the factors (for example, measured "
-            f"before allocation to the groups), and {assume}.")))
+            f"The adjustment assumes that {'the covariate is' if one else 'the covariates are'} not "
+            "affected by the factors (for example, measured before allocation to the groups), and "
+            f"{assume}.")))
         return blocks
 
     def covariate_types_words(self) -> str:

@@ -84,7 +84,7 @@ def test_methods_name_the_covariate_its_reference_and_the_type_i_order(common):
     assert "one slope common to all cells for pretest" in text
     assert "Every hypothesis about means, every effect and every cell coefficient below refers to these adjusted means" in text
     assert "In Type I sums of squares the covariates enter first" in text
-    assert "not affected by the factors (for example, measured before allocation" in text
+    assert "the covariate is not affected by the factors (for example, measured before allocation" in text
     assert doc.subtitle.startswith("Analysis of covariance report")
     assert "adjusted for pretest." in plain(doc.summary[0].runs)
 
