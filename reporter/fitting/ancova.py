@@ -319,7 +319,7 @@ def covariate_rss(cells: CellStats, columns: np.ndarray, chosen: Sequence[int], 
     return rss * block.sy * block.sy, rank
 
 
-def _slope_system(cells: CellStats, block: WithinBlock):
+def _slope_system(cells: CellStats, block: WithinBlock, labels: Sequence[str] | None = None):
     """The within-cell least squares problem of the full model: slopes, their unscaled covariance
     and the residual SS."""
     m, T = block.m, block.T
@@ -329,7 +329,8 @@ def _slope_system(cells: CellStats, block: WithinBlock):
     diag = np.abs(np.diag(R))
     bad = np.flatnonzero(~(diag > 1e-9 * np.maximum(block.colnorm, 1e-300)) | (block.colnorm == 0))
     if bad.size:
-        raise FitError(_not_estimable(cells, block.modes, list(range(cells.covariates.p)), block.cols, int(bad[0])))
+        raise FitError(_not_estimable(cells, block.modes, list(range(cells.covariates.p)), block.cols, int(bad[0]),
+                                      labels))
     b = np.linalg.solve(R, T[:m, m])
     Rinv = np.linalg.solve(R, np.eye(m))
     scale = _column_scales(block.cols, block.sx, m)
@@ -347,15 +348,16 @@ def _column_scales(cols: np.ndarray, sx: np.ndarray, m: int) -> np.ndarray:
     return out
 
 
-def _not_estimable(cells, modes, chosen, cols, col) -> str:
+def _not_estimable(cells, modes, chosen, cols, col, labels=None) -> str:
     cov = cells.covariates
     for i, j in enumerate(chosen):
         hit = np.flatnonzero(cols[:, i] == col)
         if hit.size == 0:
             continue
         name = cov.names[j]
+        where = str(int(hit[0]) + 1) if labels is None else labels[int(hit[0])]
         if modes[j] == "per-cell":
-            return (f"the slope of covariate '{name}' in cell {int(hit[0]) + 1} cannot be estimated: within that cell "
+            return (f"the slope of covariate '{name}' in the cell ({where}) cannot be estimated: within that cell "
                     f"the covariate is constant or collinear with the other covariates (or the cell has too few rows). "
                     f"Use slopes = \"common\" for '{name}', or collect more varied values in every cell.")
         return (f"the slope of covariate '{name}' cannot be estimated: it is constant within every cell or collinear "
@@ -364,16 +366,17 @@ def _not_estimable(cells, modes, chosen, cols, col) -> str:
     return "internal: a slope column that belongs to no covariate"
 
 
-def fit_covariates(cells: CellStats, specs=None) -> CovariateFit:
+def fit_covariates(cells: CellStats, specs=None, cell_labels: Sequence[str] | None = None) -> CovariateFit:
     """The full model with covariates: slopes, residual SS and df, adjusted cell means at x* and
-    their covariance over σ² (see the module docstring for the formulas and their sources)."""
+    their covariance over σ² (see the module docstring for the formulas and their sources).
+    ``cell_labels`` name the cells in messages (a cell too small for its own slopes)."""
     cov = cells.covariates
     p = cov.p
     modes = _modes(specs, p)
     ref_off, ref = reference_point(cells, specs)
     block = within_block(cells, modes)
     cols = block.cols
-    b, slope_cov, sse = _slope_system(cells, block)
+    b, slope_cov, sse = _slope_system(cells, block, cell_labels)
     k = cells.k
     o = cells.observed
     obs = np.flatnonzero(o)

@@ -113,7 +113,8 @@ class ContrastTest:
         return self.ci
 
 
-def fit_model(cells: CellStats, design_matrix: np.ndarray, covariates=None) -> ModelFit:
+def fit_model(cells: CellStats, design_matrix: np.ndarray, covariates=None,
+              cell_labels: Sequence[str] | None = None) -> ModelFit:
     """Residual SS and df, R², and the coefficients of a parameterization (β = D⁻¹·μ).
 
     When ``cells.covariates`` is set, the model has the covariates' columns too
@@ -142,7 +143,7 @@ def fit_model(cells: CellStats, design_matrix: np.ndarray, covariates=None) -> M
     ss_total = cells.ss_total
     cf = None
     if cells.covariates is not None:
-        cf = fit_covariates(cells, covariates)
+        cf = fit_covariates(cells, covariates, cell_labels)
         ss_error, df_error = cf.ss_error, cf.df_error
     if ss_error <= 0.0:
         raise FitError(

@@ -202,7 +202,7 @@ def fit_analysis(
     None with covariate statistics means common slopes at the covariates' means.
     """
     _check_float_range(cells)
-    fit = fit_model(cells, design.matrix, covariates)
+    fit = fit_model(cells, design.matrix, covariates, tuple(c.label for c in design.cells))
     table = fit_anova(design, fit, ss_type)
     # Constants written in residual SDs become outcome units with the fitted residual SD.
     contrasts = [in_outcome_units(c, fit.residual_sd) for c in contrasts]

@@ -473,3 +473,19 @@ def test_mixed_slopes_match_statsmodels():
     ft = exp.f_test(np.hstack([C, np.zeros((C.shape[0], 1 + design.k))]))
     row = [r for r in t3.rows if r.factors == ("A", "B")][0]
     assert close(row.F, num(ft.fvalue)) and close(row.p, num(ft.pvalue))
+
+
+def test_cell_without_its_own_slope_is_named():
+    """Per-cell slopes need varied covariate values in every cell: a cell whose covariate is
+    constant gets one message naming the covariate, the cell and the fix (no source: the rule that
+    a slope needs two distinct values)."""
+    df, factors, covs = random_frame(21, 1, 1)
+    first = factors[0][1][0]
+    df.loc[df.A == first, "x1"] = 5.0
+    design = build_design([Factor(n, tuple(lv)) for n, lv in factors], "effects")
+    cell = design.cell_index(pd.Categorical(df.A, categories=factors[0][1]).codes[:, None])
+    y = df.y.to_numpy()
+    cells = replace(describe_cells(y, cell, design.k),
+                    covariates=describe_covariates(y, df[covs].to_numpy(), cell, design.k, names=("x1",)))
+    with pytest.raises(FitError, match=rf"slope of covariate 'x1' in the cell \({first}\).*slopes = \"common\""):
+        fit_model(cells, design.matrix, [Spec("x1", slopes="per-cell")], [c.label for c in design.cells])
