@@ -167,3 +167,20 @@ def parquet_project(folder, reader, pretest) -> object:
 def test_parquet_columns(capsys, tmp_path, reader, pretest, expected):
     plan = parquet_project(tmp_path, reader, pretest)
     refused(capsys, tmp_path, plan, "recall.parquet", expected)
+
+
+@pytest.mark.parametrize("reader", READERS)
+def test_slopes_that_leave_no_residual_degree_of_freedom(capsys, tmp_path, reader):
+    """Four rows in two cells with a slope per cell: 4 − 2 − 2 = 0 residual degrees of freedom."""
+    text = "recall,schedule,pretest,age\n31,massed,40,20\n33,massed,44,21\n35,spaced,41,22\n36,spaced,47,23\n"
+    plan = project(tmp_path, reader, text, '[[covariates]]\nname = "pretest"\nslopes = "per-cell"')
+    refused(capsys, tmp_path, plan, "recall.csv", "4 analysed rows in 2 cells with data leave no residual degree of "
+            "freedom once the covariates' 2 slopes are estimated (4 − 2 − 2 = 0)", 'use slopes = "common"')
+
+
+@pytest.mark.parametrize("reader", READERS)
+def test_per_cell_slope_in_a_cell_of_one_row(capsys, tmp_path, reader):
+    rows = data().splitlines()
+    text = "\n".join([rows[0], *[r for r in rows[1:] if ",massed," not in r], rows[1]]) + "\n"
+    plan = project(tmp_path, reader, text, '[[covariates]]\nname = "pretest"\nslopes = "per-cell"')
+    refused(capsys, tmp_path, plan, "recall.csv", "does not vary within 1 cell (massed has one row)")

@@ -450,7 +450,8 @@ def check_covariates(plan: Plan, stats, n: np.ndarray, cell_labels: Sequence[str
     a covariate that does not vary within any cell (a constant one among them), with
     ``slopes = "per-cell"`` one that does not vary within some observed cell, and covariates
     that are linear combinations of one another within cells (the correlation matrix of the
-    pooled within-cell cross-products has an eigenvalue under 1e-10: common practice, no source).
+    pooled within-cell cross-products has an eigenvalue under 1e-10: common practice, no source),
+    and slopes that leave no residual degree of freedom (rows − cells with rows − slopes < 1).
     ``stats`` is the :class:`~reporter.intake.cells.CovariateStats` of the analysed rows."""
     observed = np.asarray(n) > 0
     pooled = stats.pooled_sxx(observed)
@@ -465,7 +466,8 @@ def check_covariates(plan: Plan, stats, n: np.ndarray, cell_labels: Sequence[str
         if cov.slopes == "per-cell":
             flat = np.flatnonzero(observed & ~(stats.sxx[:, j, j] > 0))
             if flat.size:
-                listed = ", ".join(str(cell_labels[c]) for c in flat[:5]) + (" …" if flat.size > 5 else "")
+                listed = ", ".join(str(cell_labels[c]) + (" has one row" if n[c] == 1 else "") for c in flat[:5]) + (
+                    " …" if flat.size > 5 else "")
                 raise DataError(f"{where} does not vary within {flat.size} {'cell' if flat.size == 1 else 'cells'} "
                                 f"({listed}), so a separate slope cannot be estimated there. Use slopes = \"common\", "
                                 "or leave those cells out.")
@@ -479,6 +481,14 @@ def check_covariates(plan: Plan, stats, n: np.ndarray, cell_labels: Sequence[str
             raise DataError(f"{source}: the covariates {names} are linear combinations of one another within cells "
                             "(their pooled within-cell correlations are singular), so their slopes cannot be told "
                             "apart. Keep one of them.")
+    rows, cells = int(np.asarray(n).sum()), int(observed.sum())
+    slopes = sum(1 if c.slopes == "common" else cells for c in plan.covariates)
+    if rows - cells - slopes < 1:
+        raise DataError(f"{source}: {rows} analysed rows in {cells} cells with data leave no residual degree of freedom "
+                        f"once the covariates' {slopes} {'slope is' if slopes == 1 else 'slopes are'} estimated ({rows} − "
+                        f"{cells} − {slopes} = {rows - cells - slopes}), so there is no error variance to test against. "
+                        'Collect more rows, use slopes = "common", or adjust for fewer covariates.')
+
 
 
 def _as_texts(values) -> tuple[np.ndarray, np.ndarray]:
