@@ -112,7 +112,7 @@ def _covariate(c) -> dict[str, Any]:
     out: dict[str, Any] = {"name": c.name}
     if c.adjust_to_exact is None:
         out["adjust_to"] = "mean"
-    elif isinstance(c.adjust_to_exact, int) or (c.adjust_to_exact.denominator == 1 and abs(c.adjust_to_exact) < 2**63):
+    elif c.adjust_to_exact.denominator == 1 and -(2**63) <= c.adjust_to_exact < 2**63:  # TOML's integers
         out["adjust_to"] = int(c.adjust_to_exact)
     else:
         out["adjust_to"] = float(c.adjust_to)

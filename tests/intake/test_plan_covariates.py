@@ -39,12 +39,15 @@ def test_defaults_and_exact_reference_values():
 
 def test_canonical_mapping_and_round_trip(tmp_path):
     plan = _plan({"name": "pre"}, {"name": "age", "adjust_to": 40.5, "slopes": "per-cell", "description": "years"},
-                 {"name": "big", "adjust_to": 1e300}, {"name": "whole", "adjust_to": -7})
+                 {"name": "big", "adjust_to": 1e300}, {"name": "whole", "adjust_to": -7},
+                 {"name": "lowest", "adjust_to": -(2**63)}, {"name": "highest", "adjust_to": 2**63 - 1})
     m = plan_mapping(plan)["covariates"]
     assert m == [{"name": "pre", "adjust_to": "mean", "slopes": "common"},
                  {"name": "age", "adjust_to": 40.5, "slopes": "per-cell", "description": "years"},
                  {"name": "big", "adjust_to": 1e300, "slopes": "common"},
-                 {"name": "whole", "adjust_to": -7, "slopes": "common"}]
+                 {"name": "whole", "adjust_to": -7, "slopes": "common"},
+                 {"name": "lowest", "adjust_to": -(2**63), "slopes": "common"},
+                 {"name": "highest", "adjust_to": 2**63 - 1, "slopes": "common"}]
     (tmp_path / "plan.toml").write_text(plan_toml(plan), encoding="utf-8")
     again = load_plan(tmp_path / "plan.toml")
     assert again.covariates == plan.covariates
