@@ -121,3 +121,40 @@ def test_bad_shapes_are_refused():
         covariate_points(rows, 2, np.zeros((1, 1)), np.zeros(1))
     with pytest.raises(ValueError, match="at least 1"):
         covariate_points(rows, 1, np.zeros((1, 1)), np.zeros(1), max_points=0)
+
+
+@pytest.mark.parametrize("reader", ["in-memory", "out-of-core"])
+def test_both_readers_give_the_same_points(tmp_path, reader):
+    """Through the real row access of each reader (numpy in memory, DuckDB out of core), the
+    points equal the whole-array reference computed here from the written values."""
+    from reporter.api import prepare
+
+    rng = np.random.default_rng(21)
+    n = 900
+    group = np.where(rng.random(n) < 0.8, "big", "small")
+    x = np.round(rng.normal(50.0, 8.0, n), 1)
+    y = np.round(3.0 + 0.5 * x + (group == "big") + rng.normal(0.0, 2.0, n), 2)
+    lines = ["g,x,y"] + [f"{g},{a:.1f},{b:.2f}" for g, a, b in zip(group, x, y)]
+    (tmp_path / "d.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    (tmp_path / "p.toml").write_text(
+        f'title = "t"\n[data]\npath = "d.csv"\noutcome = "y"\nreader = "{reader}"\n'
+        '[[factors]]\nname = "g"\nlevels = ["small", "big"]\n[[covariates]]\nname = "x"\n', encoding="utf-8")
+    prep = prepare(tmp_path / "p.toml")
+    cov = prep.cells.covariates
+    out = covariate_points(prep.rows, 2, np.full((2, 1), 0.5), np.zeros(1), max_points=200)[0]
+    for c, name in enumerate(("small", "big")):
+        mask = group == name
+        pts = out[c]
+        xs = x[mask]
+        assert pts.n == mask.sum()
+        assert pts.low + cov.pivot[0] == pytest.approx(xs.min(), abs=1e-9)
+        assert pts.high + cov.pivot[0] == pytest.approx(xs.max(), abs=1e-9)
+        if not pts.summarized:
+            np.testing.assert_allclose(np.sort(np.array(pts.x) + cov.pivot[0]), np.sort(xs), atol=1e-9)
+            np.testing.assert_allclose(np.sort(np.array(pts.y) + prep.cells.pivot), np.sort(y[mask]), atol=1e-9)
+            continue
+        idx = np.clip(np.floor((xs - xs.min()) / (xs.max() - xs.min()) * 200).astype(int), 0, 199)
+        ref = pd.DataFrame({"b": idx, "x": xs, "y": y[mask]}).groupby("b").mean()
+        np.testing.assert_allclose(np.array(pts.x) + cov.pivot[0], ref["x"], atol=1e-9)
+        np.testing.assert_allclose(np.array(pts.y) + prep.cells.pivot, ref["y"], atol=1e-9)
+    assert out[0].summarized is False and out[1].summarized is True
