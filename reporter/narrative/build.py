@@ -27,6 +27,7 @@ from __future__ import annotations
 from reporter.narrative import numbers as N
 from reporter.narrative.assumptions import AssumptionSections
 from reporter.narrative.cell_summaries import CellSummarySections
+from reporter.narrative.covariate_figures import CovariateFigures
 from reporter.narrative.covariates import CovariateSections
 from reporter.narrative.document import Document, Section, plain
 from reporter.narrative.hypothesis_tests import HypothesisSections
@@ -39,7 +40,7 @@ from reporter.narrative.summary_methods import SummaryMethods
 
 
 class _Builder(SummaryMethods, MeansSections, MatrixSections, HypothesisSections, ResultsSections,
-               AssumptionSections, ProvenanceSections, CovariateSections):
+               AssumptionSections, ProvenanceSections, CovariateSections, CovariateFigures):
     """One report's wording: the sections come from the mixins, the state and the shared statistic
     pieces (the confirmatory test, its p values and interval) from here."""
 

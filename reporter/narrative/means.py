@@ -37,6 +37,7 @@ class MeansSections:
             blocks.append(fig)
         if self.has_covariates:
             blocks.append(self.adjusted_means_figure())
+            blocks += self.covariate_figures()
         return Section("cells", "The groups", tuple(blocks))
 
     def means_figure(self) -> Figure | None:
