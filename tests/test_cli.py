@@ -35,8 +35,8 @@ def test_check_prints_design_and_writes_nothing(project, tmp_path):
 
 
 def test_check_runs_on_both_demo_plans():
-    """Both demo plans validate."""
-    for plan in ("oneway.toml", "factorial.toml"):
+    """Every demo plan validates."""
+    for plan in ("oneway.toml", "factorial.toml", "baseline.toml"):
         assert main(["check", str(DEMO / plan)]) == 0
 
 

@@ -22,9 +22,9 @@ def run(args, env_extra=None, cwd=None):
     return subprocess.run([sys.executable, "-m", "reporter", *args], capture_output=True, text=True, env=env, cwd=cwd)
 
 
-@pytest.mark.parametrize("plan", ["oneway.toml", "factorial.toml"])
+@pytest.mark.parametrize("plan", ["oneway.toml", "factorial.toml", "baseline.toml"])
 def test_demo_results_validate_against_schema(plan, tmp_path):
-    """Both demo plans give a results.json that validates against the published schema."""
+    """Every demo plan gives a results.json that validates against the published schema."""
     res = run(["run", str(DEMO / plan), "--out", str(tmp_path), "--format", "json"])
     assert res.returncode == 0, res.stderr
     doc = json.loads((tmp_path / "results.json").read_text(encoding="utf-8"))

@@ -172,7 +172,7 @@ def test_plan_document_is_deterministic(locked, tmp_path, monkeypatch):
         assert document_paths(plan)[fmt].read_bytes() == document_paths(locked)[fmt].read_bytes()
 
 
-@pytest.mark.parametrize("name", ["oneway", "factorial"])
+@pytest.mark.parametrize("name", ["oneway", "factorial", "baseline"])
 def test_locks_follow_the_published_schema(name, locked):
     """The demo's committed locks and a fresh one validate against reporter/schema/lock-1.schema.json
     (jsonschema, Draft 2020-12), and each demo lock matches its plan as it is now."""
