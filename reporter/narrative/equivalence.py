@@ -220,7 +220,7 @@ def power_table(hyps, alpha: float) -> Table | None:
             Column(runs_of("power now"), "right"),
             *(Column(runs_of(f"n per cell, {N.format_confidence_level(pw)} power"), "right") for pw in powers))
     return Table("equivalence-power", runs_of(
-        f"Sensitivity of the equivalence tests at α = {N.format_bounded(alpha, 2)}: power when the true difference is 0"),
+        f"Power of the equivalence tests at α = {N.format_bounded(alpha, 2)} with this study's cell sizes, when the true difference is 0"),
         cols, tuple(rows), notes=(runs_of(
             "Exact power of the two one-sided tests from the joint distribution of the two t statistics "
             "(Phillips, 1990), with the residual SD of this fit taken as known; n per cell is the smallest equal "

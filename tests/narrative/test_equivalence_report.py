@@ -74,7 +74,7 @@ def test_report_words_each_outcome(outputs):
     assert "two one-sided tests" in text and "Schuirmann, 1987" in text
     assert "Equivalence claims: the interval against the bounds" in text
     assert 'id="fig-equivalence"' in html or "fig-equivalence" in html
-    assert "Sensitivity of the equivalence tests" in text
+    assert "Power of the equivalence tests" in text
 
 
 def test_analysis_plan_names_the_claims(tmp_path):

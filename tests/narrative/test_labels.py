@@ -63,6 +63,11 @@ def factorial():
     return _report(DEMO / "factorial.toml")
 
 
+@pytest.fixture(scope="module")
+def baseline():
+    return _report(DEMO / "baseline.toml")
+
+
 def _plan_copy(tmp_path: Path, plan: Path, **replace: str) -> Path:
     """The demo plan with its data path made absolute and some lines replaced."""
     text = plan.read_text(encoding="utf-8")
@@ -167,7 +172,7 @@ def _captions(document) -> list[str]:
     return [plain(b.caption) for b in document.walk() if isinstance(b, (Table, Figure))]
 
 
-@pytest.mark.parametrize("which", ["oneway", "factorial"])
+@pytest.mark.parametrize("which", ["oneway", "factorial", "baseline"])
 def test_no_two_captions_are_equal(which, request):
     """Every table and figure has a caption of its own (the power and outlier tables included)."""
     _, document = request.getfixturevalue(which)
