@@ -332,12 +332,18 @@ def tost_cell_size(low: float, high: float, sum_sq: float, k: int, alpha: float,
     def enough(n: int) -> bool:
         return tost_power(low, high, math.sqrt(sum_sq / n), k * (n - 1), alpha, true_difference) >= power
 
+    return smallest_cell_size(enough, TOST_MAX_CELL_SIZE)
+
+
+def smallest_cell_size(enough, limit: int) -> int | None:
+    """The smallest n >= 2 with ``enough(n)`` true, for a condition that stays true once it holds
+    (power grows with n): doubling, then bisection. None when no n up to ``limit`` is enough."""
     lo, hi = 1, 2
     while not enough(hi):
         lo, hi = hi, hi * 2
-        if hi > TOST_MAX_CELL_SIZE:
+        if hi > limit:
             return None
-    while hi - lo > 1:
+    while hi - lo > 1:  # enough(hi) holds; enough(lo) does not (or lo = 1, below the smallest n)
         mid = (lo + hi) // 2
         if enough(mid):
             hi = mid

@@ -29,7 +29,7 @@ import math
 from dataclasses import dataclass
 
 from reporter.inference.effectsizes import noncentral_t_cdf
-from reporter.inference.power import solve_cell_size, tost_cell_size, tost_power
+from reporter.inference.power import smallest_cell_size, solve_cell_size, tost_cell_size, tost_power
 from reporter.numerics.distributions import t_isf
 
 __all__ = ["PowerRow", "a_priori_power", "contrast_power", "contrast_cell_size"]
@@ -79,18 +79,7 @@ def contrast_cell_size(d: float, sum_sq: float, k: int, alpha: float, power: flo
     def enough(n: int) -> bool:
         return contrast_power(d, sum_sq, n, k, alpha, sides) >= power
 
-    lo, hi = 1, 2
-    while not enough(hi):
-        lo, hi = hi, hi * 2
-        if hi > MAX_CELL_SIZE:
-            return None
-    while hi - lo > 1:  # enough(hi) holds; enough(lo) does not (or lo = 1, below the smallest n)
-        mid = (lo + hi) // 2
-        if enough(mid):
-            hi = mid
-        else:
-            lo = mid
-    return hi
+    return smallest_cell_size(enough, MAX_CELL_SIZE)
 
 
 def a_priori_power(plan, design, contrasts) -> tuple[PowerRow, ...]:
