@@ -39,7 +39,7 @@ from reporter.intake.cells import CellStats
 from reporter.intake.rows import RowAccess
 from reporter.intake import defaults as D
 from reporter.intake import numtext
-from reporter.intake.files import describe_path, open_regular
+from reporter.intake.files import decode_utf8, describe_path, open_regular
 from reporter.intake.plan import Plan, level_key
 
 _CTX = decimal.Context(prec=60, traps=[decimal.InvalidOperation])
@@ -232,15 +232,7 @@ def data_from_frame(plan: Plan, frame: Any, name: str = "DataFrame") -> Dataset:
 def _parse_text(raw: bytes, source: str, delimiter: str):
     if not raw.strip():
         raise DataError(f"{source}: the file is empty. It needs a header row and data rows.")
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = raw[: exc.start].count(b"\n") + 1
-        raise DataError(
-            f"{source}: is not UTF-8 text: line {line} holds the byte 0x{raw[exc.start]:02x} "
-            f"(file offset {exc.start}). Save the file as UTF-8 (for example 'CSV UTF-8' in a "
-            "spreadsheet program) and run again."
-        ) from None
+    text = decode_utf8(raw, source, DataError)
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     try:
         header = next(reader)

@@ -9,6 +9,7 @@ FIFO with no writer cannot hang the open), refuses everything that is not a regu
 
 from __future__ import annotations
 
+import codecs
 import errno
 import os
 import stat
@@ -98,3 +99,18 @@ def _size(n: int) -> str:
         if n >= factor and n % factor == 0:
             return f"{n // factor} {unit}"
     return f"{n} bytes"
+
+
+def decode_utf8(raw: bytes, source: str, error: type[ReporterError], *, final: bool = True) -> str:
+    """``raw`` as UTF-8 text (a byte-order mark dropped), or one message naming the line and byte
+    that are not UTF-8. ``final=False`` for the head of a longer file: a character cut at its end
+    is left out rather than refused."""
+    try:
+        return codecs.getincrementaldecoder("utf-8-sig")().decode(raw, final=final)
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise error(
+            f"{source}: is not UTF-8 text: line {line} holds the byte 0x{raw[exc.start]:02x} "
+            f"(file offset {exc.start}). Save the file as UTF-8 (for example 'CSV UTF-8' in a "
+            "spreadsheet program) and run again."
+        ) from None

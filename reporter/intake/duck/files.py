@@ -13,7 +13,6 @@ a NUL byte, its own SHA-256 in hex and a newline.
 
 from __future__ import annotations
 
-import codecs
 import csv
 import glob as _glob
 import hashlib
@@ -23,6 +22,7 @@ from pathlib import Path
 from typing import Sequence
 
 from reporter.errors import DataError
+from reporter.intake.files import decode_utf8
 
 
 def is_glob(path: Path | str) -> bool:
@@ -100,15 +100,7 @@ def _read_header(path: Path, delimiter: str) -> tuple[list[str], int]:
         raise DataError(f"{path}: cannot be read ({exc.strerror}).") from None
     if not head.strip():
         raise DataError(f"{path}: the file is empty. It needs a header row and data rows.")
-    try:
-        text = codecs.getincrementaldecoder("utf-8-sig")().decode(head, final=False)
-    except UnicodeDecodeError as exc:
-        line = head[: exc.start].count(b"\n") + 1
-        raise DataError(
-            f"{path}: is not UTF-8 text: line {line} holds the byte 0x{head[exc.start]:02x} "
-            f"(file offset {exc.start}). Save the file as UTF-8 (for example 'CSV UTF-8' in a "
-            "spreadsheet program) and run again."
-        ) from None
+    text = decode_utf8(head, str(path), DataError, final=False)
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     try:
         header = next(reader)
