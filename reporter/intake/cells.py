@@ -151,6 +151,15 @@ def _grouped(cell: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray, np.ndarr
     return n, order, ends - n, ends
 
 
+def segment_moments(x: np.ndarray) -> tuple[float, float]:
+    """Mean and centred SS of the values ``x`` (one cell) by the corrected two-pass algorithm
+    (Chan, Golub & LeVeque 1983, The American Statistician 37(3), 242-247, eq. 1.7), with
+    exactly rounded sums up to 16,384 values and pairwise sums beyond."""
+    total = _sum_exact if x.size <= _FSUM_LIMIT else _sum_pairwise
+    m, d, s1 = _refined_deviations(x, total)
+    return m, max(total(d * d) - s1 * s1 / x.size, 0.0)
+
+
 def _refined_deviations(x: np.ndarray, total) -> tuple[float, np.ndarray, float]:
     """The corrected two-pass mean m of x, the deviations x − m and their (tiny) sum."""
     m0 = total(x) / x.size
@@ -168,11 +177,7 @@ def describe_cells(y: np.ndarray, cell: np.ndarray, k: int, pivot: float = 0.0, 
     mean = np.full(k, np.nan)
     ss = np.full(k, np.nan)
     for c in np.flatnonzero(n):
-        x = ys[starts[c] : ends[c]]
-        total = _sum_exact if x.size <= _FSUM_LIMIT else _sum_pairwise
-        m, d, s1 = _refined_deviations(x, total)
-        mean[c] = m
-        ss[c] = max(total(d * d) - s1 * s1 / n[c], 0.0)
+        mean[c], ss[c] = segment_moments(ys[starts[c] : ends[c]])
     for arr in (n, mean, ss):
         arr.setflags(write=False)
     exact = pivot_exact if pivot_exact is not None else Fraction(pivot)

@@ -1,9 +1,8 @@
 """Row access for rows held in memory as numpy arrays (see :mod:`reporter.intake.rows`).
 
-Two sorts are made, each once and only when first needed: the rows ordered by (cell, value),
-which answers medians, figure points and per-cell quantiles, and one global order of the
-values, which answers the mid-ranks. Every answer is then a linear pass over the rows, so each
-method costs at most O(N log N) time and O(N) extra memory.
+The order-based answers (medians, deviations about them, mid-ranks, quantiles, figure points)
+come from each cell's values sorted once, when first needed (:mod:`.sorted_cells`, shared with
+the DuckDB rows); every method costs at most O(N log N) time and O(N) extra memory.
 """
 
 from __future__ import annotations
@@ -12,12 +11,8 @@ from typing import Sequence
 
 import numpy as np
 
-from reporter.intake.cells import describe_cells
 from reporter.intake.rows import CellPoints, FlaggedRows, RankSums, sample_positions
-
-
-def _code_type(k: int):
-    return np.uint8 if k <= 255 else np.uint16 if k <= 65535 else np.int64
+from reporter.intake.sorted_cells import SortedCells
 
 
 def average_ranks(y: np.ndarray, order: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
@@ -62,80 +57,37 @@ class MemoryRows:
             raise ValueError(f"cell codes ({self._cell.shape}) and values ({self._y.shape}) differ in shape")
         self._x = None if x is None else np.asarray(x, dtype=np.float64).reshape(self.n, -1)
         self._rows = row_numbers
-        self._counts = np.bincount(self._cell, minlength=self.k).astype(np.int64) if self.n else np.zeros(self.k, np.int64)
-        self._ends = np.cumsum(self._counts)
-        self._starts = self._ends - self._counts
-        self._by_cell: tuple[np.ndarray, np.ndarray] | None = None
+        self._by_cell: SortedCells | None = None
         self._ranks: RankSums | None = None
 
     # -----------------------------------------------------------------------------------------
-    # the two sorts
+    # RowAccess: the order-based answers come from each cell's sorted values
 
-    def _sorted_by_cell(self) -> tuple[np.ndarray, np.ndarray]:
-        """(values sorted by (cell, value), the cell of each) — made once."""
+    def _sorted(self) -> SortedCells:
+        """Each cell's values in increasing order (:mod:`.sorted_cells`), made once."""
         if self._by_cell is None:
-            codes = self._cell.astype(_code_type(self.k), copy=False)
-            order = np.lexsort((self._y, codes))
-            self._by_cell = (self._y[order], codes[order])
+            self._by_cell = SortedCells.from_rows(self._y, self._cell, self.k)
         return self._by_cell
 
-    def _segment(self, c: int) -> np.ndarray:
-        ys, _ = self._sorted_by_cell()
-        return ys[self._starts[c] : self._ends[c]]
-
-    # -----------------------------------------------------------------------------------------
-    # RowAccess
-
     def medians(self) -> np.ndarray:
-        ys, _ = self._sorted_by_cell()
-        n = self._counts
-        med = np.full(self.k, np.nan)
-        obs = n > 0
-        lo = self._starts[obs] + (n[obs] - 1) // 2
-        hi = self._starts[obs] + n[obs] // 2
-        med[obs] = (ys[lo] + ys[hi]) / 2.0
-        return med
+        return self._sorted().medians()
 
     def deviation_stats(self, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        centre = np.asarray(centre, dtype=np.float64)
-        ys, codes = self._sorted_by_cell()
-        z = np.abs(ys - centre[codes])
-        st = describe_cells(z, codes, self.k)
-        return st.n, st.offset_mean, st.ss
+        return self._sorted().deviation_stats(centre)
 
     def deviation_stats_many(self, centres: Sequence[np.ndarray]) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
         return [self.deviation_stats(c) for c in centres]
 
     def rank_sums(self) -> RankSums:
         if self._ranks is None:
-            ranks, sizes = average_ranks(self._y)
-            rank_sum = np.bincount(self._cell, weights=ranks, minlength=self.k)
-            t = sizes.astype(np.float64)
-            self._ranks = RankSums(rank_sum=rank_sum, tie_term=float(np.sum(t**3 - t)), n=self.n)
+            self._ranks = self._sorted().rank_sums()
         return self._ranks
 
     def residual_quantiles(self, means: np.ndarray, scale: np.ndarray, probs: Sequence[float]) -> np.ndarray:
-        means = np.asarray(means, dtype=np.float64)
-        scale = np.asarray(scale, dtype=np.float64)
-        with np.errstate(invalid="ignore"):
-            usable = np.isfinite(scale) & (scale > 0)
-        keep = usable[self._cell]
-        r = (self._y[keep] - means[self._cell[keep]]) / scale[self._cell[keep]]
-        if r.size == 0:
-            return np.full(len(probs), np.nan)
-        return np.quantile(r, np.asarray(probs, dtype=np.float64))
+        return self._sorted().pooled_quantiles(means, scale, probs)
 
     def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
-        out = []
-        for c in range(self.k):
-            seg = self._segment(c)
-            n = int(seg.size)
-            if n <= max_points:
-                out.append(CellPoints(n, tuple(seg.tolist()), False))
-            else:
-                q = np.quantile(seg, np.linspace(0.0, 1.0, max_points))
-                out.append(CellPoints(n, tuple(q.tolist()), True))
-        return tuple(out)
+        return self._sorted().cell_points(max_points)
 
     def flagged(self, centre: np.ndarray, bound: np.ndarray, limit: int) -> FlaggedRows:
         centre = np.asarray(centre, dtype=np.float64)

@@ -208,10 +208,13 @@ def test_nist_certified_values_out_of_core(name, tmp_path):
 # Row access against the in-memory answers and numpy / scipy
 
 
-@pytest.fixture(params=["scans", "distinct"])
+@pytest.fixture(params=["scans", "sorted", "distinct"])
 def rows_pair(tmp_path, request, monkeypatch):
-    """Rows with many ties, answered by scans of the rows or from the distinct values."""
-    monkeypatch.setattr(duck_rows, "_DISTINCT_SHARE", 0.0 if request.param == "scans" else 1.0)
+    """Rows with many ties, answered by scans of the rows, from each cell's sorted values held in
+    memory, or from the distinct values."""
+    monkeypatch.setattr(duck_rows, "_DISTINCT_SHARE", 1.0 if request.param == "distinct" else 0.0)
+    monkeypatch.setattr(duck_rows, "MAX_ROWS", 0 if request.param == "scans" else duck_rows.MAX_ROWS)
+    monkeypatch.setattr(duck_rows, "_FETCH", 1000)  # the sorted values fetched in several slices
     rng = np.random.default_rng(7)
     n = 3000
     dose = rng.choice(["1", "2", "5"], n)
@@ -223,6 +226,7 @@ def rows_pair(tmp_path, request, monkeypatch):
     mem, duck = both(tmp_path, "d.csv")
     cells, cell = memory_cells(load_plan(tmp_path / "m.toml"), mem)
     assert (duck.row_access._distinct() is not None) == (request.param == "distinct")
+    assert (duck.row_access._sorted() is not None) == (request.param == "sorted")
     return mem.y, cell, cells, duck.row_access, mem.rows
 
 
@@ -303,7 +307,7 @@ def test_order_statistics_when_buckets_must_be_refined(rows_pair, monkeypatch):
 
     monkeypatch.setattr(duck_rows.DuckRows, "_refine", counted)
     rows._medians = None
-    rows._distinct_state = False  # the bucket search, whichever route the fixture chose
+    rows._distinct_state = rows._sorted_state = False  # the bucket search, whichever route the fixture chose
     assert_close(rows.medians(), np.array([np.median(y[cell == c]) for c in range(6)]))
     scale = np.array([2.0, 3.0, 1.0, 4.0, 2.5, 5.0])
     probs = np.linspace(0.0, 1.0, 41)

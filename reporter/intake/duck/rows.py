@@ -26,6 +26,7 @@ from reporter.intake.duck.cell_table import _moments
 from reporter.intake.duck.connection import _close, _doubles
 from reporter.intake.duck.files import _RowNumbers
 from reporter.intake.rows import CellPoints, FlaggedRows, RankSums, sample_positions
+from reporter.intake.sorted_cells import MAX_ROWS, SortedCells, type7_quantiles
 
 
 class DuckRows:
@@ -57,6 +58,7 @@ class DuckRows:
         self._medians: np.ndarray | None = None
         self._distinct_state: _Distinct | bool | None = None  # None: not yet decided; False: not used
         self._distinct_name = f"distinct_values_{next(_TABLES)}"
+        self._sorted_state: SortedCells | bool | None = None  # None: not yet decided; False: not used
 
     def close(self) -> None:
         self._finalizer()
@@ -89,6 +91,23 @@ class DuckRows:
                         np.column_stack([np.asarray(got[f"c{j}"], dtype=np.int64) for j in range(self.k)]))
         return self._distinct_state or None
 
+    def _sorted(self) -> SortedCells | None:
+        """Each cell's values in increasing order, held in memory, for continuous data (when
+        the distinct values are not few) up to :data:`~reporter.intake.sorted_cells.MAX_ROWS`
+        rows; fetched once, in slices of row ids, so memory is the values plus a slice."""
+        if self._sorted_state is None:
+            self._sorted_state = False
+            if 0 < self.n <= MAX_ROWS and self._distinct() is None:
+                step = _FETCH
+
+                def chunks():
+                    for start in range(0, self._n_obs, step):
+                        got = self._np(f"SELECT cell, d FROM kept WHERE id >= {start} AND id < {start + step}")
+                        yield got["cell"], got["d"]
+
+                self._sorted_state = SortedCells.from_chunks(chunks(), self._counts)
+        return self._sorted_state or None
+
     def _value_stats(self, source: str, bounds: dict[int, tuple[float, float]], counts: dict[int, int]):
         """Order statistics of the values: from the distinct values when fetched, else by the
         bucket search of :meth:`_order_stats` over ``source``."""
@@ -100,12 +119,14 @@ class DuckRows:
     def medians(self) -> np.ndarray:
         """Per-cell medians from exact order statistics (DuckDB's median aggregate would hold
         every value of a cell in memory); computed once."""
+        if self._medians is None and self._sorted() is not None:
+            self._medians = self._sorted().medians()
         if self._medians is None:
             out = np.full(self.k, np.nan)
             counts = self._observed()
             bounds = {c: (self._lo[c], self._hi[c]) for c in counts}
             stats = self._value_stats("SELECT cell, d AS v FROM kept", bounds, counts)
-            for c, q in self._quantiles(counts, [0.5], stats).items():
+            for c, q in type7_quantiles(counts, [0.5], stats).items():
                 out[c] = q[0]
             self._medians = out
         return self._medians.copy()
@@ -119,6 +140,8 @@ class DuckRows:
         centres = [np.asarray(c, dtype=np.float64) for c in centres]
         if self._distinct() is not None:
             return self._weighted_deviation_stats(centres)
+        if self._sorted() is not None:
+            return [self._sorted().deviation_stats(c) for c in centres]
         with self._lock:
             return _moments(self._con, [f"abs(d - {_doubles(c)}[cell + 1])" for c in centres], "kept", self.k)[0]
 
@@ -154,6 +177,8 @@ class DuckRows:
         dist = self._distinct()
         if dist is not None:
             return dist.rank_sums()
+        if self._sorted() is not None:
+            return self._sorted().rank_sums()
         if self.k <= _WIDE_CELLS:
             counts = ", ".join(f"count(*) FILTER (WHERE cell = {j}) AS c{j}" for j in range(self.k))
             sums = ", ".join(f"sum(CAST(c{j} AS HUGEINT) * (2 * CAST(below AS HUGEINT) + t + 1))" for j in range(self.k))
@@ -263,26 +288,6 @@ class DuckRows:
                 for q, w in targets[(c, b)]:
                     result[(c, q)] = float(vals[start + w])
 
-    def _quantiles(self, counts: dict[int, int], probs: Sequence[float], order_stats) -> dict[int, np.ndarray]:
-        """Type 7 quantiles per cell (numpy's default: h = (n − 1)p, linear interpolation written
-        as numpy writes it), from the order statistics ``order_stats`` gives: a function of
-        {cell: [0-based ranks]} returning {(cell, rank): value}."""
-        p = np.asarray(probs, dtype=np.float64)
-        plan = {}
-        for c, n in counts.items():
-            h = (n - 1) * p
-            lo = np.floor(h).astype(np.int64)
-            hi = np.minimum(lo + 1, n - 1)
-            plan[c] = (lo, hi, h - lo)
-        stats = order_stats({c: [*lo.tolist(), *hi.tolist()] for c, (lo, hi, _) in plan.items()})
-        out = {}
-        for c, (lo, hi, t) in plan.items():
-            a = np.array([stats[(c, int(i))] for i in lo])
-            b = np.array([stats[(c, int(i))] for i in hi])
-            diff = b - a
-            out[c] = np.where(t >= 0.5, b - diff * (1 - t), a + diff * t)
-        return out
-
     def residual_quantiles(self, means: np.ndarray, scale: np.ndarray, probs: Sequence[float]) -> np.ndarray:
         """Quantiles of (d − mean_c)/scale_c over the usable cells. Their count and range come
         from the cell table and each cell's smallest and largest value: the map is monotone
@@ -300,17 +305,21 @@ class DuckRows:
             return np.full(len(probs), np.nan)
         dist = self._distinct()
         if dist is not None:
-            return self._quantiles({0: n}, probs, dist.pooled_stats(means, scale, np.flatnonzero(usable)))[0]
+            return type7_quantiles({0: n}, probs, dist.pooled_stats(means, scale, np.flatnonzero(usable)))[0]
+        if self._sorted() is not None:
+            return self._sorted().pooled_quantiles(means, scale, probs)
         m, s = _doubles(means), _doubles(scale)
         source = (f"SELECT 0 AS cell, (d - {m}[cell + 1]) / {s}[cell + 1] AS v FROM kept "
                   f"WHERE isfinite({s}[cell + 1]) AND {s}[cell + 1] > 0")
         with np.errstate(invalid="ignore", divide="ignore"):
             lo = float(np.min(((self._lo - means) / scale)[usable]))
             hi = float(np.max(((self._hi - means) / scale)[usable]))
-        return self._quantiles({0: n}, probs, lambda positions: self._order_stats(source, positions, {0: (lo, hi)}, {0: n}))[0]
+        return type7_quantiles({0: n}, probs, lambda positions: self._order_stats(source, positions, {0: (lo, hi)}, {0: n}))[0]
 
     def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
         """Small cells: every value in increasing order; large cells: ``max_points`` quantiles."""
+        if self._distinct() is None and self._sorted() is not None:
+            return self._sorted().cell_points(max_points)
         counts = self._observed()
         small = [c for c, n in counts.items() if n <= max_points]
         large = {c: n for c, n in counts.items() if n > max_points}
@@ -327,7 +336,7 @@ class DuckRows:
             listed = ", ".join(map(str, large))
             stats = self._value_stats(f"SELECT cell, d AS v FROM kept WHERE cell IN ({listed})",
                                       {c: (self._lo[c], self._hi[c]) for c in large}, large)
-            values.update(self._quantiles(large, np.linspace(0.0, 1.0, max_points), stats))
+            values.update(type7_quantiles(large, np.linspace(0.0, 1.0, max_points), stats))
         return tuple(
             CellPoints(n=int(counts.get(c, 0)), values=tuple(float(v) for v in values.get(c, ())), summarized=c in large)
             for c in range(self.k)
@@ -338,10 +347,10 @@ class DuckRows:
         sums and the largest deviations are read from it. With the distinct values fetched, the
         sums come from them, and one scan fetches only the rows of the values that hold the
         largest deviations (none when nothing is flagged)."""
-        dist = self._distinct()
-        if dist is not None:
-            return self._flagged_distinct(dist, np.asarray(centre, dtype=np.float64),
-                                          np.asarray(bound, dtype=np.float64), int(max(limit, 0)))
+        held = self._distinct() or self._sorted()
+        if held is not None:
+            return self._flagged_held(held, np.asarray(centre, dtype=np.float64),
+                                      np.asarray(bound, dtype=np.float64), int(max(limit, 0)))
         c, b = _doubles(centre), _doubles(bound)
         with self._lock:
             self._con.execute(
@@ -360,8 +369,9 @@ class DuckRows:
         rows = tuple((self._rownum.number(r), int(c), float(d)) for r, c, d in top)
         return FlaggedRows(total=int(count.sum()), rows=rows, count=count, sum_dev=sum_dev, sum_dev2=sum_dev2)
 
-    def _flagged_distinct(self, dist: "_Distinct", centre: np.ndarray, bound: np.ndarray, limit: int) -> FlaggedRows:
-        """:meth:`flagged` from the distinct values: per cell, the values v with |v − centre_c| >
+    def _flagged_held(self, held: "_Distinct | SortedCells", centre: np.ndarray, bound: np.ndarray, limit: int) -> FlaggedRows:
+        """:meth:`flagged` from the values held in memory (the distinct values with their counts
+        per cell, or each cell's sorted values): per cell, the values v with |v − centre_c| >
         bound_c (the same floating-point operations as the SQL), their rows counted and their
         deviations summed exactly rounded (``math.fsum`` of count × deviation); then the rows of
         the values with the largest |deviation|, enough to fill ``limit`` with every tie of the
@@ -372,8 +382,7 @@ class DuckRows:
         for c in range(self.k):
             if not (math.isfinite(bound[c]) and self._counts[c] > 0):
                 continue
-            m = dist.counts[:, c] > 0
-            v, w = dist.values[m], dist.counts[m, c]
+            v, w = held.values_counts(c)
             e = v - centre[c]
             sel = np.abs(e) > bound[c]
             if not sel.any():
@@ -482,6 +491,11 @@ class _Distinct:
             return {(0, q): x for q, x in zip(r.tolist(), v[np.searchsorted(cum, r, side="right")].tolist())}
 
         return stats
+
+    def values_counts(self, c: int) -> tuple[np.ndarray, np.ndarray]:
+        """Cell c's distinct values in increasing order with the number of rows of each."""
+        m = self.counts[:, c] > 0
+        return self.values[m], self.counts[m, c]
 
     def cell_values(self, c: int) -> list[float]:
         """Every value of cell ``c`` in increasing order."""

@@ -1,0 +1,267 @@
+"""Each cell's values in increasing order, held in one float64 array, and the row-level answers
+that follow from them: order statistics, medians, quantiles, deviations about a centre per cell,
+mid-rank sums and quantiles of the pooled scaled residuals.
+
+Both readers use it: the in-memory rows (:mod:`.memory_rows`) and, for continuous data up to
+:data:`MAX_ROWS` rows, the DuckDB rows (:mod:`.duck.rows`), which fetch the analysed values
+once. Every answer is then the same computation on the same numbers, whichever reader read them.
+
+Cost for N rows in k cells: grouping by cell is a stable counting pass (numpy's radix sort of
+small integer codes), each cell is sorted in place (O(N log N)), and the answers are linear
+passes; the mid-ranks merge the k sorted runs slab by slab (:meth:`SortedCells.rank_sums`), so
+the extra memory is the values themselves (8 bytes a row) plus a slab of about 2^20 rows.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Iterable, Sequence
+
+import numpy as np
+
+from reporter.intake.cells import segment_moments
+from reporter.intake.rows import CellPoints, RankSums
+
+MAX_ROWS = 1 << 24  # the DuckDB rows hold the values in memory up to this many rows (128 MB)
+_SLAB = 1 << 20  # rows per slab when the sorted runs are merged
+
+
+def type7_quantiles(counts: dict[int, int], probs: Sequence[float], order_stats) -> dict[int, np.ndarray]:
+    """Type 7 quantiles per cell (Hyndman & Fan 1996, The American Statistician 50(4), 361-365:
+    h = (n − 1)p, linear interpolation between the order statistics at floor(h) and floor(h) + 1,
+    written as numpy writes it), from the order statistics ``order_stats`` gives: a function of
+    {cell: [0-based ranks]} returning {(cell, rank): value}."""
+    p = np.asarray(probs, dtype=np.float64)
+    plan = {}
+    for c, n in counts.items():
+        h = (n - 1) * p
+        lo = np.floor(h).astype(np.int64)
+        hi = np.minimum(lo + 1, n - 1)
+        plan[c] = (lo, hi, h - lo)
+    stats = order_stats({c: [*lo.tolist(), *hi.tolist()] for c, (lo, hi, _) in plan.items()})
+    out = {}
+    for c, (lo, hi, t) in plan.items():
+        a = np.array([stats[(c, int(i))] for i in lo])
+        b = np.array([stats[(c, int(i))] for i in hi])
+        diff = b - a
+        out[c] = np.where(t >= 0.5, b - diff * (1 - t), a + diff * t)
+    return out
+
+
+def tie_term(sizes: np.ndarray) -> int:
+    """Σ(t³ − t) over tie groups of sizes t, exactly (Python integers when t³ would pass int64)."""
+    tied = sizes[sizes > 1]
+    if not tied.size:
+        return 0
+    if int(tied.max()) >= 1 << 21:
+        return sum(x * x * x - x for x in tied.tolist())
+    return int(((tied - 1) * tied * (tied + 1)).sum())
+
+
+class SortedCells:
+    """The values of each cell in increasing order: ``values[starts[c]:ends[c]]`` is cell c."""
+
+    def __init__(self, values: np.ndarray, counts: np.ndarray):
+        self.values = values
+        self.counts = np.asarray(counts, dtype=np.int64)
+        self.k = int(self.counts.size)
+        self.ends = np.cumsum(self.counts)
+        self.starts = self.ends - self.counts
+        self.n = int(self.counts.sum())
+        for c in range(self.k):
+            self.values[self.starts[c] : self.ends[c]].sort()
+        self.values.setflags(write=False)
+
+    @classmethod
+    def from_rows(cls, y: np.ndarray, cell: np.ndarray, k: int) -> "SortedCells":
+        """From each row's value ``y`` and cell code ``cell`` (0 .. k − 1)."""
+        counts = np.bincount(cell, minlength=k).astype(np.int64) if cell.size else np.zeros(k, np.int64)
+        codes = cell.astype(_code_type(k), copy=False)
+        order = np.argsort(codes, kind="stable")
+        return cls(np.asarray(y, dtype=np.float64)[order], counts)
+
+    @classmethod
+    def from_chunks(cls, chunks: Iterable[tuple[np.ndarray, np.ndarray]], counts: np.ndarray) -> "SortedCells":
+        """From (cell codes, values) chunks whose cell counts add up to ``counts``; each chunk is
+        grouped by cell and copied into its cells' places, so memory is the values plus a chunk."""
+        counts = np.asarray(counts, dtype=np.int64)
+        k = counts.size
+        values = np.empty(int(counts.sum()), dtype=np.float64)
+        fill = np.cumsum(counts) - counts
+        stop = fill + counts
+        for cell, y in chunks:
+            codes = np.asarray(cell).astype(_code_type(k), copy=False)
+            m = np.bincount(codes, minlength=k)
+            y = np.asarray(y, dtype=np.float64)[np.argsort(codes, kind="stable")]
+            pos = 0
+            for c in np.flatnonzero(m).tolist():
+                j = int(m[c])
+                if fill[c] + j > stop[c]:
+                    raise ValueError(f"cell {c} got more rows than its count {int(counts[c])}")
+                values[fill[c] : fill[c] + j] = y[pos : pos + j]
+                fill[c] += j
+                pos += j
+        if not np.array_equal(fill, stop):
+            raise ValueError("the chunks hold fewer rows than the cell counts")
+        return cls(values, counts)
+
+    def segment(self, c: int) -> np.ndarray:
+        return self.values[self.starts[c] : self.ends[c]]
+
+    def observed(self) -> dict[int, int]:
+        return {c: int(m) for c, m in enumerate(self.counts.tolist()) if m > 0}
+
+    def order_stats(self, positions: dict[int, list[int]]) -> dict[tuple[int, int], float]:
+        """The values at 0-based ranks within each cell."""
+        out = {}
+        for c, ranks in positions.items():
+            r = np.asarray(ranks, dtype=np.int64)
+            out.update(zip(((c, q) for q in r.tolist()), self.values[self.starts[c] + r].tolist()))
+        return out
+
+    def quantiles(self, counts: dict[int, int], probs: Sequence[float]) -> dict[int, np.ndarray]:
+        return type7_quantiles(counts, probs, self.order_stats)
+
+    def medians(self) -> np.ndarray:
+        out = np.full(self.k, np.nan)
+        for c, q in self.quantiles(self.observed(), [0.5]).items():
+            out[c] = q[0]
+        return out
+
+    def deviation_stats(self, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Per cell (n, mean, centred SS) of |x − centre_c|, by :func:`~reporter.intake.cells.segment_moments`."""
+        centre = np.asarray(centre, dtype=np.float64)
+        mean, ss = np.full(self.k, np.nan), np.full(self.k, np.nan)
+        for c in self.observed():
+            mean[c], ss[c] = segment_moments(np.abs(self.segment(c) - centre[c]))
+        return self.counts.copy(), mean, ss
+
+    def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
+        """Small cells: every value in increasing order; large cells: ``max_points`` quantiles."""
+        large = {c: int(m) for c, m in enumerate(self.counts.tolist()) if m > max_points}
+        q = self.quantiles(large, np.linspace(0.0, 1.0, max_points)) if large else {}
+        return tuple(
+            CellPoints(int(self.counts[c]), tuple((q[c] if c in large else self.segment(c)).tolist()), c in large)
+            for c in range(self.k)
+        )
+
+    def values_counts(self, c: int) -> tuple[np.ndarray, np.ndarray]:
+        """Cell c's values in increasing order with the number of rows of each (all ones here)."""
+        seg = self.segment(c)
+        return seg, np.ones(seg.size, dtype=np.int64)
+
+    # -----------------------------------------------------------------------------------------
+    # merging the sorted runs
+
+    def _slabs(self, runs: Sequence[np.ndarray], maps: Sequence[tuple[float, float]] | None = None):
+        """The sorted runs cut by common values into slabs of about :data:`_SLAB` rows: yields,
+        per slab, the parts of the runs with values in [p_s, p_s+1), in the order of ``runs``.
+        With ``maps``, run i stands for the values (x − a_i)/b_i (b_i > 0, so still sorted),
+        computed a slab at a time. A value never straddles two slabs: every run is cut at its
+        first position holding p_s or more."""
+        if maps is None:
+            maps = [None] * len(runs)
+
+        def value(i, x):
+            return x if maps[i] is None else (x - maps[i][0]) / maps[i][1]
+
+        total = sum(r.size for r in runs)
+        nslab = max(1, math.ceil(total / _SLAB))
+        cuts = np.empty(0)
+        if nslab > 1:  # cut values: evenly spaced order statistics of every run, pooled
+            picks = [value(i, r[np.linspace(0, r.size - 1, nslab + 1).astype(np.int64)[1:-1]])
+                     for i, r in enumerate(runs) if r.size > 1]
+            if picks:
+                pooled = np.sort(np.concatenate(picks))
+                cuts = np.unique(pooled[np.linspace(0, pooled.size - 1, nslab + 1).astype(np.int64)[1:-1]])
+        bounds = [np.concatenate([[0], _first_at_least(r, cuts, lambda x, i=i: value(i, x)), [r.size]])
+                  for i, r in enumerate(runs)]
+        for s in range(cuts.size + 1):
+            yield [value(i, r[b[s] : b[s + 1]]) for i, (r, b) in enumerate(zip(runs, bounds))]
+
+    def rank_sums(self) -> RankSums:
+        """Mid-rank sums per cell (Kruskal & Wallis 1952, JASA 47, 583-621: a tie group at sorted
+        positions s+1 .. s+t gets rank s + (t + 1)/2) and Σ(t³ − t), exactly: twice each rank is
+        an integer, summed in float64 within a slab (below 2^53) and in Python integers across
+        slabs. The runs are merged one slab at a time (an argsort of the slab's k sorted parts)."""
+        runs = [self.segment(c) for c in range(self.k)]
+        twice = [0] * self.k
+        tie, base = 0, 0
+        labels_all = np.arange(self.k, dtype=_code_type(self.k))
+        for parts in self._slabs(runs):
+            sizes = np.array([p.size for p in parts], dtype=np.int64)
+            m = int(sizes.sum())
+            if m == 0:
+                continue
+            v = np.concatenate(parts)
+            order = np.argsort(v)
+            sv = v[order]
+            lab = np.repeat(labels_all, sizes)[order]
+            new = np.empty(m, dtype=bool)
+            new[0] = True
+            np.not_equal(sv[1:], sv[:-1], out=new[1:])
+            starts = np.flatnonzero(new)
+            if starts.size == m:  # no ties in the slab: rank = position
+                w = 2.0 * np.arange(base + 1, base + m + 1, dtype=np.float64)
+            else:
+                t = np.diff(np.append(starts, m))
+                w = np.repeat(2.0 * (base + starts) + t + 1, t)
+                tie += tie_term(t)
+            got = np.bincount(lab, weights=w, minlength=self.k)
+            for c in range(self.k):
+                twice[c] += int(got[c])
+            base += m
+        rank_sum = np.array([t / 2 for t in twice], dtype=np.float64)
+        return RankSums(rank_sum=rank_sum, tie_term=float(tie), n=self.n)
+
+    def pooled_quantiles(self, means: np.ndarray, scale: np.ndarray, probs: Sequence[float]) -> np.ndarray:
+        """Type 7 quantiles of (x − means_c)/scale_c pooled over the cells with a finite positive
+        scale. Within a cell the map is monotone, so each cell stays a sorted run; the order
+        statistics are read from the merged runs slab by slab."""
+        means = np.asarray(means, dtype=np.float64)
+        scale = np.asarray(scale, dtype=np.float64)
+        with np.errstate(invalid="ignore"):
+            usable = np.isfinite(scale) & (scale > 0) & (self.counts > 0)
+        n = int(self.counts[usable].sum())
+        if not len(probs):
+            return np.empty(0)
+        if n == 0:
+            return np.full(len(probs), np.nan)
+        cells = np.flatnonzero(usable).tolist()
+        runs = [self.segment(c) for c in cells]
+        maps = [(means[c], scale[c]) for c in cells]
+
+        def order_stats(positions: dict[int, list[int]]) -> dict[tuple[int, int], float]:
+            want = np.unique(np.asarray(positions[0], dtype=np.int64))
+            out, base, i = {}, 0, 0
+            for parts in self._slabs(runs, maps):
+                m = sum(p.size for p in parts)
+                j = int(np.searchsorted(want, base + m, side="left"))
+                if j > i:
+                    sv = np.sort(np.concatenate(parts))
+                    out.update(zip(((0, q) for q in want[i:j].tolist()), sv[want[i:j] - base].tolist()))
+                    i = j
+                base += m
+            return out
+
+        return type7_quantiles({0: n}, probs, order_stats)[0]
+
+
+def _first_at_least(run: np.ndarray, cuts: np.ndarray, value) -> np.ndarray:
+    """For each cut p, the first position i of the sorted ``run`` with value(run[i]) ≥ p, where
+    ``value`` is monotone non-decreasing (a bisection on all cuts at once)."""
+    lo = np.zeros(cuts.size, dtype=np.int64)
+    hi = np.full(cuts.size, run.size, dtype=np.int64)
+    while True:
+        open_ = lo < hi
+        if not open_.any():
+            return lo
+        mid = (lo + hi) // 2
+        below = np.zeros(cuts.size, dtype=bool)
+        below[open_] = value(run[mid[open_]]) < cuts[open_]
+        lo = np.where(open_ & below, mid + 1, lo)
+        hi = np.where(open_ & ~below, mid, hi)
+
+
+def _code_type(k: int):
+    return np.uint8 if k <= 255 else np.uint16 if k <= 65535 else np.int64
