@@ -154,7 +154,11 @@ _WEYL = 2654435761  # odd, so p -> p * _WEYL + seed is a bijection of 32-bit num
 _WEYL_INV = pow(_WEYL, -1, 1 << 32)
 _FMIX = (0x85EBCA6B, 0xC2B2AE35)
 _FMIX_INV = tuple(pow(m, -1, 1 << 32) for m in _FMIX)
-_CHUNK = 1 << 20
+_M32 = (1 << 32) - 1
+# Positions or keys per step of the searches: whole blocks of 2^16 (see _inverse_block), small
+# enough that the step's few uint32 buffers stay in the CPU cache and are reused, not reallocated.
+_BLOCK = 1 << 16
+_STEP = 4 * _BLOCK
 
 
 def sample_key(position: np.ndarray, seed: int) -> np.ndarray:
@@ -162,7 +166,7 @@ def sample_key(position: np.ndarray, seed: int) -> np.ndarray:
     (Appleby 2011, public domain) of (position · 2654435761 + seed) mod 2^32. Both steps are
     bijections of 32-bit numbers, so positions below 2^32 get distinct keys (uint32 arithmetic
     wraps modulo 2^32)."""
-    h = np.asarray(position).astype(np.uint32) * np.uint32(_WEYL) + np.uint32(int(seed) % (1 << 32))
+    h = np.asarray(position).astype(np.uint32) * np.uint32(_WEYL) + np.uint32(int(seed) & _M32)
     for shift, mult in ((16, _FMIX[0]), (13, _FMIX[1])):
         h = (h ^ (h >> np.uint32(shift))) * np.uint32(mult)
     return h ^ (h >> np.uint32(16))
@@ -172,13 +176,95 @@ def _key_inverse(key: np.ndarray, seed: int) -> np.ndarray:
     """The position in 0 .. 2^32 − 1 whose :func:`sample_key` is ``key`` (each step undone)."""
     h = np.asarray(key).astype(np.uint32)
     h = h ^ (h >> np.uint32(16))
-    for shift, inv in ((13, _FMIX_INV[1]), (16, _FMIX_INV[0])):
-        h = h * np.uint32(inv)
-        x = h
-        for _ in range(32 // shift):  # x ^ (x >> s) undone by iterating x = h ^ (x >> s)
-            x = h ^ (x >> np.uint32(shift))
-        h = x
-    return (h - np.uint32(int(seed) % (1 << 32))) * np.uint32(_WEYL_INV)
+    t = np.empty_like(h)
+    _undo_middle(h, t)
+    return (h - np.uint32(int(seed) & _M32)) * np.uint32(_WEYL_INV)
+
+
+def _undo_middle(h: np.ndarray, t: np.ndarray) -> None:
+    """In place, h <- the input of fmix32's steps 2-4 (multiply, xor-shift by 13, multiply)
+    whose output is h; ``t`` is scratch space of h's shape. A xor-shift x ^ (x >> s) of 32-bit
+    numbers is undone by h ^ (h >> s) ^ (h >> 2s) ^ ..., which for s = 13 stops at 2s and for
+    s = 16 at s."""
+    np.multiply(h, np.uint32(_FMIX_INV[1]), out=h)
+    np.right_shift(h, np.uint32(13), out=t)
+    np.bitwise_xor(h, t, out=h)
+    np.right_shift(t, np.uint32(13), out=t)
+    np.bitwise_xor(h, t, out=h)
+    np.multiply(h, np.uint32(_FMIX_INV[0]), out=h)
+    np.right_shift(h, np.uint32(16), out=t)
+    np.bitwise_xor(h, t, out=h)
+
+
+def _inverse_search(n: int, size: int, seed: int) -> np.ndarray:
+    """The positions below n of the ``size`` smallest keys, found by undoing the hash of the keys
+    0, 1, 2, … (in steps of whole 2^16 blocks) until ``size`` of them fall below n.
+
+    fmix32's last step h -> h ^ (h >> 16) maps each aligned block of 2^16 numbers onto itself
+    (h >> 16 is the same for the whole block), so the keys of a block are the outputs of its own
+    numbers: undoing the other steps on the block's numbers, in any order, gives the positions of
+    the block's keys. The positions found below n are then ranked by their keys, recomputed with
+    :func:`sample_key`."""
+    lo = np.arange(_STEP, dtype=np.uint32)
+    h, t = np.empty_like(lo), np.empty_like(lo)
+    last = np.uint32(n - 1)  # n <= 2^32: the test p <= n - 1 stays in uint32
+    seed_term = np.uint32((-(int(seed) & _M32) * _WEYL_INV) & _M32)  # p = h·W⁻¹ − seed·W⁻¹
+    found: list[np.ndarray] = []
+    got = 0
+    for start in range(0, 1 << 32, _STEP):
+        np.add(lo, np.uint32(start), out=h)  # start is a multiple of 2^16 and of _STEP
+        _undo_middle(h, t)
+        np.multiply(h, np.uint32(_WEYL_INV), out=h)
+        np.add(h, seed_term, out=h)
+        hits = h[h <= last]
+        found.append(hits)
+        got += hits.size
+        if got >= size:
+            break
+    pos = np.concatenate(found)
+    if pos.size > size:  # distinct keys (n <= 2^32): the size smallest
+        pos = pos[np.argpartition(sample_key(pos, seed), size - 1)[:size]]
+    return np.sort(pos).astype(np.int64)
+
+
+def _smallest(keys: np.ndarray, pos: np.ndarray, size: int) -> tuple[np.ndarray, np.ndarray]:
+    """The ``size`` (key, position) pairs with the smallest keys, ties broken by position."""
+    if keys.size <= size:
+        return keys, pos
+    v = np.partition(keys, size - 1)[size - 1]
+    below = np.flatnonzero(keys < v)
+    at = np.flatnonzero(keys == v)
+    at = at[np.argsort(pos[at], kind="stable")[: size - below.size]]
+    keep = np.concatenate([below, at])
+    return keys[keep], pos[keep]
+
+
+def _forward_search(n: int, size: int, seed: int) -> np.ndarray:
+    """The positions of the ``size`` smallest keys among the keys of all n positions, computed in
+    steps; after the first ``size`` keys only the keys below the largest kept one compete (a
+    later position loses a tie, so strictly below)."""
+    lo_w = np.arange(min(_STEP, n), dtype=np.uint32) * np.uint32(_WEYL)
+    h, t = np.empty_like(lo_w), np.empty_like(lo_w)
+    s32 = int(seed) & _M32
+    best_key = np.empty(0, dtype=np.uint32)
+    best_pos = np.empty(0, dtype=np.int64)
+    for start in range(0, n, _STEP):
+        m = min(_STEP, n - start)
+        k, u = h[:m], t[:m]
+        np.add(lo_w[:m], np.uint32((start * _WEYL + s32) & _M32), out=k)  # p·W + seed
+        for shift, mult in ((16, _FMIX[0]), (13, _FMIX[1])):
+            np.right_shift(k, np.uint32(shift), out=u)
+            np.bitwise_xor(k, u, out=k)
+            np.multiply(k, np.uint32(mult), out=k)
+        np.right_shift(k, np.uint32(16), out=u)
+        np.bitwise_xor(k, u, out=k)
+        if best_key.size < size:
+            key, pos = k.copy(), np.arange(start, start + m, dtype=np.int64)
+        else:
+            pos = np.flatnonzero(k < best_key.max())
+            key, pos = k[pos], pos + start
+        best_key, best_pos = _smallest(np.concatenate([best_key, key]), np.concatenate([best_pos, pos]), size)
+    return np.sort(best_pos)
 
 
 def sample_positions(n: int, size: int, seed: int) -> np.ndarray:
@@ -189,9 +275,9 @@ def sample_positions(n: int, size: int, seed: int) -> np.ndarray:
     n ≤ size. For a hash that behaves as a random permutation this is a simple random sample
     without replacement. It depends on (n, size, seed) only, so every reader draws the same rows.
 
-    Cost: the keys of all n positions in chunks (O(n) time, O(size + chunk) memory), or, when
-    size · 2^32 / n is smaller, the positions of the smallest keys 0, 1, 2, … found through the
-    inverse of the hash until ``size`` of them fall below n (about size · 2^32 / n keys).
+    Cost: the keys of all n positions in steps (O(n) time, O(size + step) memory), or, when
+    size · 2^32 / n is smaller, the positions of the smallest keys found through the inverse of
+    the hash until ``size`` of them fall below n (about size · 2^32 / n keys).
     """
     n, size = int(n), int(size)
     if n <= size:
@@ -199,27 +285,5 @@ def sample_positions(n: int, size: int, seed: int) -> np.ndarray:
     if size <= 0:
         return np.empty(0, dtype=np.int64)
     if n <= (1 << 32) and size * ((1 << 32) / n) < n:
-        found: list[np.ndarray] = []
-        got, start = 0, 0
-        step = max(_CHUNK, int(1.25 * size * ((1 << 32) / n)))
-        while got < size and start < (1 << 32):
-            keys = np.arange(start, min(start + step, 1 << 32), dtype=np.uint64)
-            pos = _key_inverse(keys, seed)
-            pos = pos[pos < n]  # in increasing key order
-            found.append(pos[: size - got].astype(np.int64))
-            got += found[-1].size
-            start += step
-        return np.sort(np.concatenate(found))
-    best_key = np.empty(0, dtype=np.uint32)
-    best_pos = np.empty(0, dtype=np.int64)
-    for start in range(0, n, _CHUNK):
-        pos = np.concatenate([best_pos, np.arange(start, min(start + _CHUNK, n), dtype=np.int64)])
-        keys = np.concatenate([best_key, sample_key(pos[best_pos.size:], seed)])
-        if keys.size > size:
-            if n <= (1 << 32):  # distinct keys
-                keep = np.argpartition(keys, size - 1)[:size]
-            else:
-                keep = np.lexsort((pos, keys))[:size]
-            keys, pos = keys[keep], pos[keep]
-        best_key, best_pos = keys, pos
-    return np.sort(best_pos)
+        return _inverse_search(n, size, seed)
+    return _forward_search(n, size, seed)
