@@ -156,8 +156,14 @@ def segment_moments(x: np.ndarray) -> tuple[float, float]:
     (Chan, Golub & LeVeque 1983, The American Statistician 37(3), 242-247, eq. 1.7), with
     exactly rounded sums up to 16,384 values and pairwise sums beyond."""
     total = _sum_exact if x.size <= _FSUM_LIMIT else _sum_pairwise
-    m, d, s1 = _refined_deviations(x, total)
-    return m, max(total(d * d) - s1 * s1 / x.size, 0.0)
+    n = x.size
+    m0 = total(x) / n
+    d = x - m0  # one scratch array, reused: the same operations as _refined_deviations
+    m = m0 + total(d) / n
+    np.subtract(x, m, out=d)
+    s1 = total(d)
+    np.multiply(d, d, out=d)
+    return m, max(total(d) - s1 * s1 / n, 0.0)
 
 
 def _refined_deviations(x: np.ndarray, total) -> tuple[float, np.ndarray, float]:

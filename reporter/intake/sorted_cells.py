@@ -9,7 +9,7 @@ once. Every answer is then the same computation on the same numbers, whichever r
 Cost for N rows in k cells: grouping by cell is a stable counting pass (numpy's radix sort of
 small integer codes), each cell is sorted in place (O(N log N)), and the answers are linear
 passes; the mid-ranks merge the k sorted runs slab by slab (:meth:`SortedCells.rank_sums`), so
-the extra memory is the values themselves (8 bytes a row) plus a slab of about 2^20 rows.
+the extra memory is the values themselves (8 bytes a row) plus a slab of about 2^18 rows.
 """
 
 from __future__ import annotations
@@ -23,7 +23,7 @@ from reporter.intake.cells import segment_moments
 from reporter.intake.rows import CellPoints, RankSums
 
 MAX_ROWS = 1 << 24  # the DuckDB rows hold the values in memory up to this many rows (128 MB)
-_SLAB = 1 << 20  # rows per slab when the sorted runs are merged
+_SLAB = 1 << 18  # rows per slab when the sorted runs are merged
 
 
 def type7_quantiles(counts: dict[int, int], probs: Sequence[float], order_stats) -> dict[int, np.ndarray]:
@@ -133,7 +133,8 @@ class SortedCells:
         centre = np.asarray(centre, dtype=np.float64)
         mean, ss = np.full(self.k, np.nan), np.full(self.k, np.nan)
         for c in self.observed():
-            mean[c], ss[c] = segment_moments(np.abs(self.segment(c) - centre[c]))
+            z = np.subtract(self.segment(c), centre[c])
+            mean[c], ss[c] = segment_moments(np.abs(z, out=z))
         return self.counts.copy(), mean, ss
 
     def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
@@ -146,9 +147,10 @@ class SortedCells:
         )
 
     def values_counts(self, c: int) -> tuple[np.ndarray, np.ndarray]:
-        """Cell c's values in increasing order with the number of rows of each (all ones here)."""
+        """Cell c's values in increasing order with the number of rows of each (all ones here,
+        a read-only view that takes no memory)."""
         seg = self.segment(c)
-        return seg, np.ones(seg.size, dtype=np.int64)
+        return seg, np.broadcast_to(np.int64(1), seg.shape)
 
     # -----------------------------------------------------------------------------------------
     # merging the sorted runs
@@ -200,10 +202,10 @@ class SortedCells:
             new = np.empty(m, dtype=bool)
             new[0] = True
             np.not_equal(sv[1:], sv[:-1], out=new[1:])
-            starts = np.flatnonzero(new)
-            if starts.size == m:  # no ties in the slab: rank = position
+            if new.all():  # no ties in the slab: rank = position
                 w = 2.0 * np.arange(base + 1, base + m + 1, dtype=np.float64)
             else:
+                starts = np.flatnonzero(new)
                 t = np.diff(np.append(starts, m))
                 w = np.repeat(2.0 * (base + starts) + t + 1, t)
                 tie += tie_term(t)
@@ -261,6 +263,19 @@ def _first_at_least(run: np.ndarray, cuts: np.ndarray, value) -> np.ndarray:
         below[open_] = value(run[mid[open_]]) < cuts[open_]
         lo = np.where(open_ & below, mid + 1, lo)
         hi = np.where(open_ & ~below, mid, hi)
+
+
+def first_where(run: np.ndarray, test) -> int:
+    """The first position i of ``run`` where ``test(run[i])`` holds, for a test that is false
+    and then true along the run (a bisection); ``run.size`` when it never holds."""
+    lo, hi = 0, run.size
+    while lo < hi:
+        mid = (lo + hi) // 2
+        if test(run[mid]):
+            hi = mid
+        else:
+            lo = mid + 1
+    return lo
 
 
 def _code_type(k: int):

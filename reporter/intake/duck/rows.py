@@ -26,7 +26,7 @@ from reporter.intake.duck.cell_table import _moments
 from reporter.intake.duck.connection import _close, _doubles
 from reporter.intake.duck.files import _RowNumbers
 from reporter.intake.rows import CellPoints, FlaggedRows, RankSums, sample_positions
-from reporter.intake.sorted_cells import MAX_ROWS, SortedCells, type7_quantiles
+from reporter.intake.sorted_cells import MAX_ROWS, SortedCells, first_where, type7_quantiles
 
 
 class DuckRows:
@@ -383,11 +383,16 @@ class DuckRows:
             if not (math.isfinite(bound[c]) and self._counts[c] > 0):
                 continue
             v, w = held.values_counts(c)
-            e = v - centre[c]
-            sel = np.abs(e) > bound[c]
-            if not sel.any():
+            # e = v − centre rounds monotonically in the sorted values, so the flagged values
+            # (e < −bound or e > bound) are a head and a tail of them, found by bisection
+            cen, b = centre[c], bound[c]
+            head = first_where(v, lambda x: x - cen >= -b)
+            tail = first_where(v, lambda x: x - cen > b)
+            if head == 0 and tail == v.size:
                 continue
-            v, w, e = v[sel], w[sel], e[sel]
+            v = np.concatenate([v[:head], v[tail:]])
+            w = np.concatenate([w[:head], w[tail:]])
+            e = v - cen
             count[c] = int(w.sum())
             wf = w.astype(np.float64)
             sum_dev[c] = math.fsum((wf * e).tolist())
