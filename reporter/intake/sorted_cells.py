@@ -1,4 +1,4 @@
-"""Each cell's values in increasing order, held in one float64 array, and the row-level answers
+"""Each cell's values in increasing order, held in memory as float64, and the row-level answers
 that follow from them: order statistics, medians, quantiles, deviations about a centre per cell,
 mid-rank sums and quantiles of the pooled scaled residuals.
 
@@ -15,15 +15,31 @@ the extra memory is the values themselves (8 bytes a row) plus a slab of about 2
 from __future__ import annotations
 
 import math
-from typing import Iterable, Sequence
+import os
+from concurrent.futures import ThreadPoolExecutor
+from typing import Callable, Iterable, Sequence, TypeVar
 
 import numpy as np
 
 from reporter.intake.cells import segment_moments
 from reporter.intake.rows import CellPoints, RankSums
 
+_T = TypeVar("_T")
+_R = TypeVar("_R")
+
 MAX_ROWS = 1 << 24  # the DuckDB rows hold the values in memory up to this many rows (128 MB)
 _SLAB = 1 << 18  # rows per slab when the sorted runs are merged
+_THREADS = 4  # at most this many threads (numpy's sorts and array arithmetic run without the GIL)
+
+
+def _each(fn: Callable[..., _R], jobs: Iterable[tuple]) -> list[_R]:
+    """``fn(*job)`` for every job, in order, on up to :data:`_THREADS` threads (one core: inline).
+    Every job is independent, so the answers do not depend on the number of threads."""
+    workers = min(_THREADS, os.cpu_count() or 1)
+    if workers <= 1:
+        return [fn(*job) for job in jobs]
+    with ThreadPoolExecutor(max_workers=workers) as pool:
+        return [f.result() for f in [pool.submit(fn, *job) for job in jobs]]
 
 
 def type7_quantiles(counts: dict[int, int], probs: Sequence[float], order_stats) -> dict[int, np.ndarray]:
@@ -59,26 +75,26 @@ def tie_term(sizes: np.ndarray) -> int:
 
 
 class SortedCells:
-    """The values of each cell in increasing order: ``values[starts[c]:ends[c]]`` is cell c."""
+    """The values of each cell in increasing order: ``segment(c)`` is cell c's (a float64 array
+    each, sorted in place here, then read-only)."""
 
-    def __init__(self, values: np.ndarray, counts: np.ndarray):
-        self.values = values
-        self.counts = np.asarray(counts, dtype=np.int64)
-        self.k = int(self.counts.size)
-        self.ends = np.cumsum(self.counts)
-        self.starts = self.ends - self.counts
+    def __init__(self, segments: Sequence[np.ndarray]):
+        self._segs = list(segments)
+        self.k = len(self._segs)
+        self.counts = np.array([seg.size for seg in self._segs], dtype=np.int64)
         self.n = int(self.counts.sum())
-        for c in range(self.k):
-            self.values[self.starts[c] : self.ends[c]].sort()
-        self.values.setflags(write=False)
+        _each(np.ndarray.sort, [(seg,) for seg in self._segs if seg.size > 1])
+        for seg in self._segs:
+            seg.setflags(write=False)
 
     @classmethod
     def from_rows(cls, y: np.ndarray, cell: np.ndarray, k: int) -> "SortedCells":
-        """From each row's value ``y`` and cell code ``cell`` (0 .. k − 1)."""
+        """From each row's value ``y`` and cell code ``cell`` (0 .. k − 1); ``y`` is not changed."""
         counts = np.bincount(cell, minlength=k).astype(np.int64) if cell.size else np.zeros(k, np.int64)
-        codes = cell.astype(_code_type(k), copy=False)
-        order = np.argsort(codes, kind="stable")
-        return cls(np.asarray(y, dtype=np.float64)[order], counts)
+        order = np.argsort(cell.astype(_code_type(k), copy=False), kind="stable")
+        values = np.asarray(y, dtype=np.float64)[order]
+        ends = np.cumsum(counts)
+        return cls([values[e - m : e] for m, e in zip(counts.tolist(), ends.tolist())])
 
     @classmethod
     def from_chunks(cls, chunks: Iterable[tuple[np.ndarray, np.ndarray]], counts: np.ndarray) -> "SortedCells":
@@ -89,24 +105,29 @@ class SortedCells:
         values = np.empty(int(counts.sum()), dtype=np.float64)
         fill = np.cumsum(counts) - counts
         stop = fill + counts
+        first = fill.copy()
+        wanted = np.arange(k + 1)
         for cell, y in chunks:
             codes = np.asarray(cell).astype(_code_type(k), copy=False)
-            m = np.bincount(codes, minlength=k)
-            y = np.asarray(y, dtype=np.float64)[np.argsort(codes, kind="stable")]
-            pos = 0
-            for c in np.flatnonzero(m).tolist():
-                j = int(m[c])
-                if fill[c] + j > stop[c]:
+            order = np.argsort(codes, kind="stable")
+            bounds = np.searchsorted(codes[order], wanted).tolist()  # each cell's run in the grouped chunk
+            if bounds[k] != codes.size:
+                raise ValueError(f"a cell code outside 0 .. {k - 1}")
+            y = np.asarray(y, dtype=np.float64)[order]
+            for c in range(k):
+                a, b = bounds[c], bounds[c + 1]
+                if b == a:
+                    continue
+                if fill[c] + (b - a) > stop[c]:
                     raise ValueError(f"cell {c} got more rows than its count {int(counts[c])}")
-                values[fill[c] : fill[c] + j] = y[pos : pos + j]
-                fill[c] += j
-                pos += j
+                values[fill[c] : fill[c] + (b - a)] = y[a:b]
+                fill[c] += b - a
         if not np.array_equal(fill, stop):
             raise ValueError("the chunks hold fewer rows than the cell counts")
-        return cls(values, counts)
+        return cls([values[a:b] for a, b in zip(first.tolist(), stop.tolist())])
 
     def segment(self, c: int) -> np.ndarray:
-        return self.values[self.starts[c] : self.ends[c]]
+        return self._segs[c]
 
     def observed(self) -> dict[int, int]:
         return {c: int(m) for c, m in enumerate(self.counts.tolist()) if m > 0}
@@ -116,7 +137,7 @@ class SortedCells:
         out = {}
         for c, ranks in positions.items():
             r = np.asarray(ranks, dtype=np.int64)
-            out.update(zip(((c, q) for q in r.tolist()), self.values[self.starts[c] + r].tolist()))
+            out.update(zip(((c, q) for q in r.tolist()), self._segs[c][r].tolist()))
         return out
 
     def quantiles(self, counts: dict[int, int], probs: Sequence[float]) -> dict[int, np.ndarray]:
@@ -132,9 +153,14 @@ class SortedCells:
         """Per cell (n, mean, centred SS) of |x − centre_c|, by :func:`~reporter.intake.cells.segment_moments`."""
         centre = np.asarray(centre, dtype=np.float64)
         mean, ss = np.full(self.k, np.nan), np.full(self.k, np.nan)
-        for c in self.observed():
+
+        def one(c: int) -> tuple[float, float]:
             z = np.subtract(self.segment(c), centre[c])
-            mean[c], ss[c] = segment_moments(np.abs(z, out=z))
+            return segment_moments(np.abs(z, out=z))
+
+        cells = list(self.observed())
+        for c, (m, s) in zip(cells, _each(one, [(c,) for c in cells])):
+            mean[c], ss[c] = m, s
         return self.counts.copy(), mean, ss
 
     def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
@@ -157,15 +183,15 @@ class SortedCells:
 
     def _slabs(self, runs: Sequence[np.ndarray], maps: Sequence[tuple[float, float]] | None = None):
         """The sorted runs cut by common values into slabs of about :data:`_SLAB` rows: yields,
-        per slab, the parts of the runs with values in [p_s, p_s+1), in the order of ``runs``.
-        With ``maps``, run i stands for the values (x − a_i)/b_i (b_i > 0, so still sorted),
-        computed a slab at a time. A value never straddles two slabs: every run is cut at its
-        first position holding p_s or more."""
+        per slab, the parts of the runs (views) with values in [p_s, p_s+1), in the order of
+        ``runs``. With ``maps``, run i stands for the values (x − a_i)/b_i (b_i > 0, so still
+        sorted; :func:`_mapped` computes them a slab at a time). A value never straddles two
+        slabs: every run is cut at its first position holding p_s or more."""
         if maps is None:
             maps = [None] * len(runs)
 
         def value(i, x):
-            return x if maps[i] is None else (x - maps[i][0]) / maps[i][1]
+            return _mapped(x, maps[i])
 
         total = sum(r.size for r in runs)
         nslab = max(1, math.ceil(total / _SLAB))
@@ -179,22 +205,18 @@ class SortedCells:
         bounds = [np.concatenate([[0], _first_at_least(r, cuts, lambda x, i=i: value(i, x)), [r.size]])
                   for i, r in enumerate(runs)]
         for s in range(cuts.size + 1):
-            yield [value(i, r[b[s] : b[s + 1]]) for i, (r, b) in enumerate(zip(runs, bounds))]
+            yield [r[b[s] : b[s + 1]] for r, b in zip(runs, bounds)]
 
     def rank_sums(self) -> RankSums:
         """Mid-rank sums per cell (Kruskal & Wallis 1952, JASA 47, 583-621: a tie group at sorted
         positions s+1 .. s+t gets rank s + (t + 1)/2) and Σ(t³ − t), exactly: twice each rank is
         an integer, summed in float64 within a slab (below 2^53) and in Python integers across
         slabs. The runs are merged one slab at a time (an argsort of the slab's k sorted parts)."""
-        runs = [self.segment(c) for c in range(self.k)]
-        twice = [0] * self.k
-        tie, base = 0, 0
         labels_all = np.arange(self.k, dtype=_code_type(self.k))
-        for parts in self._slabs(runs):
+
+        def one(parts: list[np.ndarray], base: int) -> tuple[np.ndarray, int]:
             sizes = np.array([p.size for p in parts], dtype=np.int64)
             m = int(sizes.sum())
-            if m == 0:
-                continue
             v = np.concatenate(parts)
             order = np.argsort(v)
             sv = v[order]
@@ -204,15 +226,24 @@ class SortedCells:
             np.not_equal(sv[1:], sv[:-1], out=new[1:])
             if new.all():  # no ties in the slab: rank = position
                 w = 2.0 * np.arange(base + 1, base + m + 1, dtype=np.float64)
+                tie = 0
             else:
                 starts = np.flatnonzero(new)
                 t = np.diff(np.append(starts, m))
                 w = np.repeat(2.0 * (base + starts) + t + 1, t)
-                tie += tie_term(t)
-            got = np.bincount(lab, weights=w, minlength=self.k)
-            for c in range(self.k):
-                twice[c] += int(got[c])
-            base += m
+                tie = tie_term(t)
+            return np.bincount(lab, weights=w, minlength=self.k), tie
+
+        jobs, base = [], 0
+        for parts in self._slabs([self.segment(c) for c in range(self.k)]):
+            m = sum(p.size for p in parts)
+            if m:
+                jobs.append((parts, base))
+                base += m
+        twice, tie = [0] * self.k, 0
+        for got, t in _each(one, jobs):
+            twice = [a + int(x) for a, x in zip(twice, got.tolist())]
+            tie += t
         rank_sum = np.array([t / 2 for t in twice], dtype=np.float64)
         return RankSums(rank_sum=rank_sum, tie_term=float(tie), n=self.n)
 
@@ -233,20 +264,27 @@ class SortedCells:
         runs = [self.segment(c) for c in cells]
         maps = [(means[c], scale[c]) for c in cells]
 
+        def pick(parts: list[np.ndarray], at: np.ndarray) -> list[float]:
+            sv = np.sort(np.concatenate([_mapped(p, mp) for p, mp in zip(parts, maps)]))
+            return sv[at].tolist()
+
         def order_stats(positions: dict[int, list[int]]) -> dict[tuple[int, int], float]:
             want = np.unique(np.asarray(positions[0], dtype=np.int64))
-            out, base, i = {}, 0, 0
+            jobs, base, i = [], 0, 0
             for parts in self._slabs(runs, maps):
                 m = sum(p.size for p in parts)
                 j = int(np.searchsorted(want, base + m, side="left"))
                 if j > i:
-                    sv = np.sort(np.concatenate(parts))
-                    out.update(zip(((0, q) for q in want[i:j].tolist()), sv[want[i:j] - base].tolist()))
+                    jobs.append((parts, want[i:j] - base))
                     i = j
                 base += m
-            return out
+            return dict(zip(((0, q) for q in want.tolist()), (v for got in _each(pick, jobs) for v in got)))
 
         return type7_quantiles({0: n}, probs, order_stats)[0]
+
+
+def _mapped(x: np.ndarray, ab: tuple[float, float] | None) -> np.ndarray:
+    return x if ab is None else (x - ab[0]) / ab[1]
 
 
 def _first_at_least(run: np.ndarray, cuts: np.ndarray, value) -> np.ndarray:

@@ -208,13 +208,15 @@ def test_nist_certified_values_out_of_core(name, tmp_path):
 # Row access against the in-memory answers and numpy / scipy
 
 
-@pytest.fixture(params=["scans", "sorted", "distinct"])
+@pytest.fixture(params=["scans", "sorted", "sorted-slices", "distinct"])
 def rows_pair(tmp_path, request, monkeypatch):
     """Rows with many ties, answered by scans of the rows, from each cell's sorted values held in
-    memory, or from the distinct values."""
+    memory (fetched a cell at a time, or in slices of rows), or from the distinct values."""
     monkeypatch.setattr(duck_rows, "_DISTINCT_SHARE", 1.0 if request.param == "distinct" else 0.0)
     monkeypatch.setattr(duck_rows, "MAX_ROWS", 0 if request.param == "scans" else duck_rows.MAX_ROWS)
     monkeypatch.setattr(duck_rows, "_FETCH", 1000)  # the sorted values fetched in several slices
+    if request.param == "sorted-slices":
+        monkeypatch.setattr(duck_rows, "_CELL_QUERIES", 0)
     rng = np.random.default_rng(7)
     n = 3000
     dose = rng.choice(["1", "2", "5"], n)
@@ -226,7 +228,7 @@ def rows_pair(tmp_path, request, monkeypatch):
     mem, duck = both(tmp_path, "d.csv")
     cells, cell = memory_cells(load_plan(tmp_path / "m.toml"), mem)
     assert (duck.row_access._distinct() is not None) == (request.param == "distinct")
-    assert (duck.row_access._sorted() is not None) == (request.param == "sorted")
+    assert (duck.row_access._sorted() is not None) == request.param.startswith("sorted")
     return mem.y, cell, cells, duck.row_access, mem.rows
 
 

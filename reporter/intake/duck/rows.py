@@ -94,18 +94,29 @@ class DuckRows:
     def _sorted(self) -> SortedCells | None:
         """Each cell's values in increasing order, held in memory, for continuous data (when
         the distinct values are not few) up to :data:`~reporter.intake.sorted_cells.MAX_ROWS`
-        rows; fetched once, in slices of row ids, so memory is the values plus a slice."""
+        rows; fetched once: up to :data:`_CELL_QUERIES` cells one query per cell (its values
+        are sorted where they arrive), else in slices of row ids grouped by cell in numpy, so
+        memory is the values plus a slice."""
         if self._sorted_state is None:
             self._sorted_state = False
             if 0 < self.n <= MAX_ROWS and self._distinct() is None:
-                step = _FETCH
+                if self.k <= _CELL_QUERIES:
+                    segs = []
+                    for c in range(self.k):
+                        got = self._np(f"SELECT d FROM kept WHERE cell = {c}")["d"] if self._counts[c] else np.empty(0)
+                        segs.append(np.require(got, np.float64, ["C", "W"]))
+                        if segs[-1].size != self._counts[c]:
+                            raise RuntimeError(f"cell {c}: {segs[-1].size} values fetched for {self._counts[c]} rows")
+                    self._sorted_state = SortedCells(segs)
+                else:
+                    step = _FETCH
 
-                def chunks():
-                    for start in range(0, self._n_obs, step):
-                        got = self._np(f"SELECT cell, d FROM kept WHERE id >= {start} AND id < {start + step}")
-                        yield got["cell"], got["d"]
+                    def chunks():
+                        for start in range(0, self._n_obs, step):
+                            got = self._np(f"SELECT cell, d FROM kept WHERE id >= {start} AND id < {start + step}")
+                            yield got["cell"], got["d"]
 
-                self._sorted_state = SortedCells.from_chunks(chunks(), self._counts)
+                    self._sorted_state = SortedCells.from_chunks(chunks(), self._counts)
         return self._sorted_state or None
 
     def _value_stats(self, source: str, bounds: dict[int, tuple[float, float]], counts: dict[int, int]):
@@ -454,6 +465,7 @@ class DuckRows:
 
 _MAX_BUCKETS = 1 << 20  # histogram buckets per cell at most when locating order statistics
 _FETCH = 1_000_000  # values fetched into Python at most per refinement step
+_CELL_QUERIES = 8  # at most this many cells: the sorted values fetched by one query per cell
 _WIDE_CELLS = 64  # at most this many cells: rank sums from one aggregate with a count column per cell
 _TABLES = itertools.count()  # names of the temporary tables of distinct values
 _DISTINCT_SHARE = 0.125  # distinct values at most this share of the rows: answers from _Distinct
