@@ -552,11 +552,11 @@ def test_quick_decimal_read_only_takes_valid_numbers(tmp_path, comma):
     texts += ["+ 1", "- 1", "1 .5", "1. 5", " +.5 ", "-.", "+.", "-99", " -99 ", "1_000", "1e2", "1.2345",
               "0" * 120 + "1", "1" * 17, "1" * 18 + ".5", "12345678901234567890", "\u22121.5", "1.5\n", "\t-2"]
     pivot = decimal.Decimal("462.553")
-    q, offset = duck_outcome._quick_sql("y", plan, pivot, ["1.5", "2.25", "3.125"])
+    dot, q, offset = duck_outcome._quick_sql("y", plan, pivot, ["1.5", "2.25", "3.125"])
     con = duckdb.connect()
     con.execute("CREATE TABLE s (i INTEGER, y VARCHAR)")
     con.executemany("INSERT INTO s VALUES (?, ?)", [[i, x] for i, x in enumerate(texts)])
-    got = con.execute(f"SELECT i, q, {offset} FROM (SELECT *, {q} AS q FROM s) ORDER BY i").fetchall()
+    got = con.execute(f"SELECT i, q, {offset} FROM (SELECT *, {q} AS q FROM (SELECT *, {dot} AS dot FROM s)) ORDER BY i").fetchall()
     taken = 0
     for (i, value, off), x in zip(got, texts):
         if value is None:

@@ -53,5 +53,8 @@ def _known_case(plan, factor, fv: str, source: str) -> str:
                 spelled.append(str(int(x)))
     known = list(dict.fromkeys([*plan.data.missing, "", *spelled]))
     codes = _level_codes(plan, factor, known, source, lambda i: "")
-    arms = " ".join(f"WHEN {_lit(v)} THEN {int(c)}" for v, c in zip(known, codes))
-    return f"(CASE WHEN {fv} IS NULL THEN -1 ELSE (CASE {fv} {arms} ELSE -9 END) END)"
+    # The texts are distinct, so the order of the arms changes no code; the levels come first
+    # because most rows hold one (each row is compared arm by arm until one matches), and a
+    # NULL matches no arm.
+    arms = " ".join(f"WHEN {_lit(v)} THEN {int(c)}" for v, c in sorted(zip(known, codes), key=lambda vc: vc[1] < 0))
+    return f"(CASE {fv} {arms} ELSE (CASE WHEN {fv} IS NULL THEN -1 ELSE -9 END) END)"

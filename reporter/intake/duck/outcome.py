@@ -142,18 +142,21 @@ def _short_scale(pv: decimal.Decimal, head: Sequence[str]) -> int | None:
     return None
 
 
-def _fits_sql(y: str, s18: int) -> str:
-    """SQL: the text ``y`` has no exponent and at most ``s18`` decimals."""
+def _fits_sql(y: str, s18: int, dot: str | None = None) -> str:
+    """SQL: the text ``y`` has no exponent and at most ``s18`` decimals. ``dot``, when given, is
+    a column already holding ``instr(y, '.')`` (so that it is computed once a row)."""
+    dot = dot or f"instr({y}, '.')"
     return (
         f"(NOT contains({y}, 'e') AND NOT contains({y}, 'E') AND "
-        f"(CASE WHEN instr({y}, '.') > 0 THEN strlen({y}) - instr({y}, '.') ELSE 0 END) <= {s18})"
+        f"(CASE WHEN {dot} > 0 THEN strlen({y}) - {dot} ELSE 0 END) <= {s18})"
     )
 
 
-def _quick_sql(y: str, plan, pv: decimal.Decimal, head: Sequence[str]) -> tuple[str, str] | None:
+def _quick_sql(y: str, plan, pv: decimal.Decimal, head: Sequence[str]) -> tuple[str, str, str] | None:
     """SQL over the raw outcome text ``y`` for the common row, or None when route 1 of
-    :func:`_offset_sql` does not exist: (``q``, its value as ``DECIMAL(18, s)`` or NULL; the
-    offset of a row whose ``q`` is not NULL).
+    :func:`_offset_sql` does not exist: (``dot``, the place of the decimal point, a column of
+    the query layer below ``q``; ``q``, the value as ``DECIMAL(18, s)`` or NULL; the offset of a
+    row whose ``q`` is not NULL).
 
     ``q`` is tried first, before the tests of :func:`_status_sql`: a text of at most
     ``MAX_NUMBER_CHARS`` characters, without ``e``, ``E`` or ``_``, with at most ``s`` decimals
@@ -167,12 +170,12 @@ def _quick_sql(y: str, plan, pv: decimal.Decimal, head: Sequence[str]) -> tuple[
         return None
     text = f"replace({y}, ',', '.')" if plan.data.decimal == "," else y
     numeric_tokens = [m for m in plan.data.missing if _clean_number(m, _NoMissing(plan)) is not None]
-    pre = f"strlen({y}) <= {D.MAX_NUMBER_CHARS} AND NOT contains({y}, '_') AND {_fits_sql(text, s18)}"
+    pre = f"strlen({y}) <= {D.MAX_NUMBER_CHARS} AND NOT contains({y}, '_') AND {_fits_sql(text, s18, 'dot')}"
     if numeric_tokens:
         pre += f" AND trim({y}) NOT IN ({', '.join(map(_lit, numeric_tokens))})"
     d18 = f"DECIMAL(18, {s18})"
     q = f"(CASE WHEN {pre} THEN TRY_CAST({text} AS {d18}) END)"
-    return q, f"CAST(q - CAST({_lit(str(pv))} AS {d18}) AS DOUBLE)"
+    return f"instr({text}, '.')", q, f"CAST(q - CAST({_lit(str(pv))} AS {d18}) AS DOUBLE)"
 
 
 def _refuse(plan, value: str, text: bool, source: str, where: str) -> None:

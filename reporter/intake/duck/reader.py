@@ -4,10 +4,13 @@
    combination of raw factor values with its row count, its first row, its first valid outcome
    and the digit counts of its valid outcomes. The distinct values are matched to the plan's
    levels in Python by the same rules as the in-memory reader (:mod:`.levels`).
-2. **One compact table.** Each row is written once to a table in a temporary DuckDB database
-   (on disk, so DuckDB may spill under its memory limit): its row number, the reason it was left
-   out (0 for analysed rows), its design cell (row-major over the plan's level order, as
-   ``numpy.ravel_multi_index``) and its outcome as an offset from the pivot (:mod:`.outcome`).
+2. **One compact table.** Each row is written once, in file order (its row number is its
+   ``rowid`` + 1), to a table of a DuckDB database that spills to a temporary folder beyond its
+   memory limit: its factor codes (the first one together with the outcome's status, see
+   :class:`_CodeStatus`), its outcome as an offset from the pivot (:mod:`.outcome`) and its
+   covariates' statuses and offsets. The view ``kept`` gives the analysed rows with their
+   design cell (row-major over the plan's level order, as ``numpy.ravel_multi_index``), the view
+   ``rowinfo`` the rows left out with the reason.
 """
 
 from __future__ import annotations
@@ -34,6 +37,41 @@ from reporter.intake.duck.files import _file_digest, _glob_digest, _read_header,
 from reporter.intake.duck.levels import _LEVEL_CAP, _factor_text_sql, _known_case, _level_codes
 from reporter.intake.duck.outcome import _check_spread, _clean_number, _is_numeric_type, _offset_sql, _quick_sql, _refuse, _status_sql
 from reporter.intake.duck.rows import DuckRows
+
+
+class _CodeStatus:
+    """The first factor's code ``c0`` (a level's index, -1 missing, -2 excluded, -9 not yet
+    matched) and the outcome's status ``st`` (0 valid, 1 missing, 2 not a number) stored in one
+    column of the compact table, ``cs = c0 + B·st``: one column fewer to write for every row, and
+    ``cs`` is the cell itself in an analysed row of a one-factor design. ``B`` leaves room for
+    every code, so each question about ``c0`` or ``st`` is a range of ``cs``."""
+
+    def __init__(self, levels: int):
+        self.levels = levels
+        self.base = max(10_000, levels + 16)
+        self.type = "SMALLINT" if 2 * self.base + levels < 1 << 15 else "INTEGER"
+
+    def store(self, c0: str, st: str) -> str:
+        return f"CAST({c0} + {self.base} * {st} AS {self.type}) AS cs"
+
+    def code(self, value: int) -> str:
+        """SQL: ``c0 = value``, whatever the status."""
+        b = self.base
+        return f"cs IN ({value}, {value + b}, {value + 2 * b})"
+
+    def status(self, st: int) -> str:
+        """SQL: ``st = st``, whatever the code."""
+        return f"cs BETWEEN {st * self.base - 9} AND {(st + 1) * self.base - 10}"
+
+    def analysed(self, st: int) -> str:
+        """SQL: ``c0 >= 0 AND st = st``."""
+        return f"cs BETWEEN {st * self.base} AND {st * self.base + self.levels - 1}"
+
+    def decoded(self) -> tuple[str, str]:
+        """SQL giving ``c0`` and ``st`` back."""
+        b = self.base
+        st = f"(CASE WHEN cs >= {2 * b - 9} THEN 2 WHEN cs >= {b - 9} THEN 1 ELSE 0 END)"
+        return f"(cs - {b} * {st})", st
 
 
 def _head_rows(con, path: Path, scan_sql: str, text: bool, delimiter: str, idx: dict[str, int], fexprs, yname,
@@ -218,10 +256,11 @@ def load_out_of_core(plan, quiet: bool | None = None):
             q_col, d_sql = [], f"CASE WHEN st = 0 THEN {value_sql} END"
             layers = [", ".join(codes + [f"v{j}" for j in range(nf)] + ["y", f"{fast_sql} AS fast"] + cl1)]
         else:  # the common row read by one DECIMAL cast first; the others tested as before
-            q_sql, q_value = quick
+            dot_sql, q_sql, q_value = quick
             q_col, d_sql = ["q"], f"CASE WHEN q IS NOT NULL THEN {q_value} WHEN st = 0 THEN {value_sql} END"
             carried = [c.rsplit(" AS ", 1)[-1] for c in cl1]  # the covariates' columns, passed on
-            layers = [", ".join(codes + [f"v{j}" for j in range(nf)] + ["y", f"{q_sql} AS q"] + cl1),
+            layers = [", ".join([f"v{j}" for j in range(nf)] + ["y", f"{dot_sql} AS dot"] + [f"xr{c.j}" for c in covs]),
+                      ", ".join(codes + [f"v{j}" for j in range(nf)] + ["y", f"{q_sql} AS q"] + cl1),
                       ", ".join(keep + ["y", "q", f"(CASE WHEN q IS NOT NULL THEN true ELSE {fast_sql} END) AS fast"]
                                 + carried)]
         layers = [
@@ -233,17 +272,19 @@ def load_out_of_core(plan, quiet: bool | None = None):
         query = f"SELECT {layers[0]} FROM {scan}"
         for layer in layers[1:]:
             query = f"SELECT {layer} FROM ({query})"
-        final = ", ".join([f"CAST(c{j} AS SMALLINT) AS c{j}" for j in range(nf)]
-                          + ["CAST(st AS TINYINT) AS st", f"{d_sql} AS d"] + cfinal)
+        cs = _CodeStatus(len(plan.factors[0].levels))
+        final = ", ".join([cs.store("c0", "st")] + [f"CAST(c{j} AS SMALLINT) AS c{j}" for j in range(1, nf)]
+                          + [f"{d_sql} AS d"] + cfinal)
         with _Progress(con, "Reading the data", quiet):
             _run(con, f"CREATE TABLE obs AS SELECT {final} FROM ({query})", source)
         hasher.join()
         for d in digests:
             if isinstance(d, DataError):
                 raise d
-        unresolved = " OR ".join([f"c{j} = -9" for j in range(nf)] + [f"sx{c.j} = 2" for c in covs])
+        # Counted by filters DuckDB answers from the table's statistics when no row matches.
+        unresolved = " OR ".join([cs.code(-9)] + [f"c{j} = -9" for j in range(1, nf)] + [f"sx{c.j} = 2" for c in covs])
         n_read, n_odd = con.execute(
-            f"SELECT count(*), count(*) FILTER (WHERE {unresolved} OR st = 2) FROM obs"
+            f"SELECT (SELECT count(*) FROM obs), (SELECT count(*) FROM obs WHERE {unresolved} OR {cs.status(2)})"
         ).fetchall()[0]
         n_read = int(n_read)
         regular = False
@@ -260,9 +301,10 @@ def load_out_of_core(plan, quiet: bool | None = None):
         # outcome, kept apart (text columns in the big table would cost 16 bytes a row).
         extra = ", ".join([f"CASE WHEN c{j} = -9 THEN v{j} END AS u{j}" for j in range(nf)]
                           + [f"CASE WHEN st = 2 THEN {bad_sql} END AS bad"] + cov_sql.bad_texts(covs))
+        odd_rows = " OR ".join([f"c{j} = -9" for j in range(nf)] + [f"sx{c.j} = 2" for c in covs] + ["st = 2"])
         con.execute(
             f"CREATE TEMP TABLE extra AS SELECT r, {extra} FROM (SELECT row_number() OVER () AS r, * FROM ({query})) "
-            + (f"WHERE {unresolved} OR st = 2" if n_odd else "WHERE false")
+            + (f"WHERE {odd_rows}" if n_odd else "WHERE false")
         )
 
         # Factor values not written as in the plan: matched by the in-memory rules.
@@ -286,37 +328,43 @@ def load_out_of_core(plan, quiet: bool | None = None):
             )
             con.execute("CREATE OR REPLACE TEMP TABLE lv (u VARCHAR, code SMALLINT)")
             con.executemany("INSERT INTO lv VALUES (?, ?)", [[v, int(c)] for (v, _, _), c in zip(other, codes)])
+            new = "obs.cs + 9 + m.code" if j == 0 else "m.code"  # the first factor's -9 carries the status
             con.execute(
-                f"UPDATE obs SET c{j} = m.code FROM (SELECT e.r, lv.code FROM extra e JOIN lv ON e.u{j} = lv.u) m "
-                "WHERE obs.rowid + 1 = m.r"
+                f"UPDATE obs SET {'cs' if j == 0 else f'c{j}'} = {new} FROM (SELECT e.r, lv.code FROM extra e JOIN lv "
+                f"ON e.u{j} = lv.u) m WHERE obs.rowid + 1 = m.r"
             )
 
         # Outcomes that read as numbers but break the plain-decimal rule or float64's range are
         # errors in analysed rows, as in the in-memory reader, whose check runs on each such text
         # (in the order of their first rows, so the first offending row is named).
-        factor_kept = " AND ".join(f"c{j} >= 0" for j in range(nf))
+        other_kept = [f"c{j} >= 0" for j in range(1, nf)]
         odd = con.execute(
-            f"SELECT e.bad, min(e.r) AS first FROM extra e JOIN (SELECT rowid + 1 AS r FROM obs WHERE st = 2 AND "
-            f"{factor_kept}) k USING (r) GROUP BY e.bad ORDER BY first"
+            f"SELECT e.bad, min(e.r) AS first FROM extra e JOIN (SELECT rowid + 1 AS r FROM obs WHERE "
+            f"{' AND '.join([cs.analysed(2)] + other_kept)}) k USING (r) GROUP BY e.bad ORDER BY first"
         ).fetchall() if n_odd else []
         for value, first in odd:
             _refuse(plan, value, ytext, source, f"{rownum.word} {rownum.number(first)}")
-        cov_sql.check_values(con, covs, plan, f"{factor_kept} AND st = 0", source,
+        cov_sql.check_values(con, covs, plan, " AND ".join([cs.analysed(0)] + other_kept), source,
                              lambda r: f"{rownum.word} {rownum.number(r)}")
 
         shape = tuple(len(f.levels) for f in plan.factors)
         strides = [int(np.prod(shape[j + 1 :])) for j in range(nf)]
-        cell_sql = " + ".join(f"CAST(c{j} AS INTEGER) * {strides[j]}" for j in range(nf))
+        cell_sql = " + ".join(f"CAST({'cs' if j == 0 else f'c{j}'} AS INTEGER)" + (f" * {strides[j]}" if strides[j] != 1 else "")
+                              for j in range(nf))
         cov_arms, cov_reasons = cov_sql.reasons(covs, 2 * nf + 3)
         reason_sql = "CASE " + " ".join(
             f"WHEN c{j} = -1 THEN {2 * j + 1} WHEN c{j} = -2 THEN {2 * j + 2}" for j in range(nf)
         ) + f" WHEN st = 1 THEN {2 * nf + 1} WHEN st = 2 THEN {2 * nf + 2} {cov_arms} ELSE 0 END"
         levels_sql = ", ".join(f"c{j}" for j in range(nf))
+        all_kept = " AND ".join([cs.analysed(0)] + other_kept + [f"sx{c.j} = 0" for c in covs])
+        c0_sql, st_sql_obs = cs.decoded()
+        # The rows left out (reason > 0), with the first factor's code and the status apart again;
+        # the filter first, so that DuckDB skips the table by its statistics when none is.
         con.execute(
-            f"CREATE VIEW rowinfo AS SELECT rowid + 1 AS r, {reason_sql} AS reason, {cell_sql} AS cell, "
-            f"d, {levels_sql} FROM obs"
+            f"CREATE VIEW rowinfo AS SELECT r, {reason_sql} AS reason, {levels_sql} FROM (SELECT rowid + 1 AS r, "
+            f"{c0_sql} AS c0, {st_sql_obs} AS st{''.join(f', c{j}' for j in range(1, nf))}"
+            f"{''.join(f', sx{c.j}' for c in covs)} FROM obs WHERE NOT ({all_kept}))"
         )
-        all_kept = " AND ".join([f"c{j} >= 0" for j in range(nf)] + ["st = 0"] + [f"sx{c.j} = 0" for c in covs])
         xs = "".join(f", x{c.j}" for c in covs)
         con.execute(f"CREATE VIEW kept AS SELECT rowid + 1 AS r, rowid AS id, {cell_sql} AS cell, d{xs} FROM obs WHERE {all_kept}")
 
