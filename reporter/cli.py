@@ -215,6 +215,20 @@ def _stop_on_signals():
             signal.signal(s, handler if handler is not None else signal.SIG_DFL)
 
 
+#: True when :func:`main` runs as the program itself (console script, ``python -m reporter``),
+#: False when it is called from Python: only the program's own process may be prepared for it.
+_PROGRAM = False
+
+
+def _load_numerics() -> None:
+    """In the program's own process, import scipy.special before the fitting layer does,
+    without the NumPy submodules it never uses (:mod:`reporter.numerics.scipy_import`)."""
+    if _PROGRAM:
+        from reporter.numerics.scipy_import import import_special_lean
+
+        import_special_lean()
+
+
 def _skip_exit_collection() -> None:
     """The process is about to exit: move every object to the collector's permanent generation,
     so that the interpreter's shutdown does not search them all for reference cycles again
@@ -330,6 +344,7 @@ def _quiet_readers(quiet: bool):
 def _cmd_run(args) -> int:
     formats = _formats(args.format)
     say = args.messages
+    _load_numerics()
     try:
         from reporter.api import prepare
         from reporter.run import analyse, check_out_dir, write_files
@@ -400,6 +415,7 @@ def _verify_arguments(v: argparse.ArgumentParser) -> None:
 
 
 def _cmd_verify(args) -> int:
+    _load_numerics()
     from reporter.trail.verify import render_verification, verify
 
     with _quiet_readers(args.messages.quiet):
@@ -490,6 +506,8 @@ COMMANDS: tuple[Command, ...] = (
 
 def main(argv: list[str] | None = None) -> int:
     if argv is None:  # the program itself (console script, python -m reporter)
+        global _PROGRAM
+        _PROGRAM = True
         try:
             return main(sys.argv[1:])
         finally:

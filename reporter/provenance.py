@@ -131,7 +131,7 @@ def _data_bytes(data, path) -> int | None:
 def randomness(plan, analysis) -> Randomness:
     """The seeds and permutation counts of a run: the plan's settings and what was drawn."""
     from reporter.inference.permutation import SEQUENTIAL_EXCEEDANCES
-    from reporter.render.figures import _JITTER_SEED
+    from reporter.render import FIGURE_JITTER_SEED
 
     a = plan.analysis
     run: list[tuple[str, int]] = []
@@ -156,7 +156,7 @@ def randomness(plan, analysis) -> Randomness:
         permutation_stop_after=SEQUENTIAL_EXCEEDANCES,
         permutations_run=tuple(run),
         shapiro_sample=shapiro,
-        figure_jitter_seed=_JITTER_SEED,
+        figure_jitter_seed=FIGURE_JITTER_SEED,
     )
 
 

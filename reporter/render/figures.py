@@ -116,6 +116,7 @@ from html import escape as _html_escape
 
 from reporter.errors import RenderError
 from reporter.narrative.document import FigureSpec
+from reporter.render import FIGURE_JITTER_SEED
 from reporter.render.visible import show_controls
 
 PALETTE: tuple[str, ...] = ("#0D4687", "#E0731D", "#7C2E06", "#1A9FB5", "#5F444B", "#A57BFF")
@@ -135,7 +136,7 @@ KINDS = ("means", "interaction", "qq", "residuals", "adjusted-means", "covariate
 FIGSIZE = (6.4, 3.6)
 """Natural size in inches; 460.8 x 259.2 pt in the SVG."""
 
-_JITTER_SEED = 20_240_917
+_JITTER_SEED = FIGURE_JITTER_SEED
 _JITTER_HALF_WIDTH = 0.17
 _MARKERS = ("o", "s", "^", "D", "v", "p")
 _DASHES = ("-", "--", ":", "-.")
