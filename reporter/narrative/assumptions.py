@@ -12,6 +12,9 @@ from reporter.narrative.phrases import _interval, _num, _rows_phrase
 
 # Outlier rows listed in the report (results.json lists up to the scan's limit).
 OUTLIERS_SHOWN = 20
+# Below this many rows in the smallest cell the report warns that the variance tests have little
+# power (common practice, no source).
+SMALL_CELL = 30
 
 
 POSTHOC_METHOD_NOTES = {
@@ -27,6 +30,11 @@ POSTHOC_METHOD_NOTES["games-howell"] = POSTHOC_METHOD_NOTES["all-pairs"]
 
 class AssumptionSections:
     """The section “Checking the assumptions”."""
+
+    def smallest_cell(self) -> int:
+        """Rows in the smallest observed cell."""
+        n = self.a.cells.n
+        return int(n[n > 0].min()) if (n > 0).any() else 0
 
     def assumption_section(self) -> Section | None:
         inf = self.inf
@@ -60,9 +68,12 @@ class AssumptionSections:
         elif a.heterogeneous:
             verdict = ("The Brown–Forsythe test indicates unequal variances across cells; compare the classical and "
                        "robust results below.")
-        else:
+        elif self.smallest_cell() < SMALL_CELL:
             verdict = ("The Brown–Forsythe test does not indicate unequal variances; with small cells such a test has "
                        "little power, so the robust results are shown beside the classical ones in any case.")
+        else:
+            verdict = ("The Brown–Forsythe test does not indicate unequal variances; the robust results are shown "
+                       "beside the classical ones in any case.")
         blocks.append(Paragraph(runs_of(verdict)))
         if a.qq is not None:
             blocks.append(self.qq_figure())
