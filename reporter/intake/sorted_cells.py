@@ -64,6 +64,30 @@ def type7_quantiles(counts: dict[int, int], probs: Sequence[float], order_stats)
     return out
 
 
+def slab_rank_sums(values: np.ndarray, labels: np.ndarray, base: int, k: int) -> tuple[np.ndarray, int]:
+    """Twice the mid-rank sum per cell (labels 0 .. k − 1) of a slab of values, every other value
+    of which lies entirely below (``base`` of them) or above the slab, and the slab's Σ(t³ − t).
+    The sums are integers held exactly in float64 while (base + m) · m < 2^52 for m values."""
+    m = values.size
+    if m == 0:
+        return np.zeros(k), 0
+    order = np.argsort(values)
+    sv = values[order]
+    lab = labels[order]
+    new = np.empty(m, dtype=bool)
+    new[0] = True
+    np.not_equal(sv[1:], sv[:-1], out=new[1:])
+    if new.all():  # no ties in the slab: rank = position
+        w = 2.0 * np.arange(base + 1, base + m + 1, dtype=np.float64)
+        tie = 0
+    else:
+        starts = np.flatnonzero(new)
+        t = np.diff(np.append(starts, m))
+        w = np.repeat(2.0 * (base + starts) + t + 1, t)
+        tie = tie_term(t)
+    return np.bincount(lab, weights=w, minlength=k), tie
+
+
 def tie_term(sizes: np.ndarray) -> int:
     """Σ(t³ − t) over tie groups of sizes t, exactly (Python integers when t³ would pass int64)."""
     tied = sizes[sizes > 1]
@@ -216,23 +240,7 @@ class SortedCells:
 
         def one(parts: list[np.ndarray], base: int) -> tuple[np.ndarray, int]:
             sizes = np.array([p.size for p in parts], dtype=np.int64)
-            m = int(sizes.sum())
-            v = np.concatenate(parts)
-            order = np.argsort(v)
-            sv = v[order]
-            lab = np.repeat(labels_all, sizes)[order]
-            new = np.empty(m, dtype=bool)
-            new[0] = True
-            np.not_equal(sv[1:], sv[:-1], out=new[1:])
-            if new.all():  # no ties in the slab: rank = position
-                w = 2.0 * np.arange(base + 1, base + m + 1, dtype=np.float64)
-                tie = 0
-            else:
-                starts = np.flatnonzero(new)
-                t = np.diff(np.append(starts, m))
-                w = np.repeat(2.0 * (base + starts) + t + 1, t)
-                tie = tie_term(t)
-            return np.bincount(lab, weights=w, minlength=self.k), tie
+            return slab_rank_sums(np.concatenate(parts), np.repeat(labels_all, sizes), base, self.k)
 
         jobs, base = [], 0
         for parts in self._slabs([self.segment(c) for c in range(self.k)]):

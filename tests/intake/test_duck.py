@@ -217,6 +217,9 @@ def rows_pair(tmp_path, request, monkeypatch):
     monkeypatch.setattr(duck_rows, "_FETCH", 1000)  # the sorted values fetched in several slices
     if request.param == "sorted-slices":
         monkeypatch.setattr(duck_rows, "_CELL_QUERIES", 0)
+    if request.param == "scans":  # rank slabs of a few hundred rows, and buckets heavier than a slab
+        monkeypatch.setattr(duck_rows, "_RANK_SLAB_ROWS", 150)
+        monkeypatch.setattr(duck_rows, "_RANK_BUCKETS", 64)
     rng = np.random.default_rng(7)
     n = 3000
     dose = rng.choice(["1", "2", "5"], n)
@@ -623,3 +626,30 @@ def test_reports_agree_between_readers(tmp_path, case, monkeypatch):
                          r"|^/results_sha256$|/permutation(_note)?$|/permutation/")
     assert [p for p in differ if not allowed.search(p)] == []
     assert duck["anova"]["rows"] and duck["hypotheses"]
+
+
+def test_rank_slabs_out_of_core_take_both_paths(rows_pair, monkeypatch):
+    """Out-of-core, small slabs are fetched and ranked in numpy and buckets heavier than a slab
+    are ranked from their distinct values; both give scipy's mid-rank sums (reference library)."""
+    y, cell, _, rows, _ = rows_pair
+    monkeypatch.setattr(duck_rows, "_RANK_SLAB_ROWS", 150)
+    monkeypatch.setattr(duck_rows, "_RANK_BUCKETS", 64)
+    used = {"slab": 0, "heavy": 0}
+    slab, heavy = duck_rows.slab_rank_sums, duck_rows.DuckRows._heavy_bucket_ranks
+
+    def count_slab(*a):
+        used["slab"] += 1
+        return slab(*a)
+
+    def count_heavy(self, *a):
+        used["heavy"] += 1
+        return heavy(self, *a)
+
+    monkeypatch.setattr(duck_rows, "slab_rank_sums", count_slab)
+    monkeypatch.setattr(duck_rows.DuckRows, "_heavy_bucket_ranks", count_heavy)
+    got = rows._rank_sums_by_slabs()
+    assert used["slab"] >= 2 and used["heavy"] >= 2
+    ranks = scipy.stats.rankdata(y)
+    assert_close(got.rank_sum, np.bincount(cell, weights=ranks, minlength=6))
+    _, t = np.unique(y, return_counts=True)
+    assert got.tie_term == float(np.sum(t.astype(float) ** 3 - t))

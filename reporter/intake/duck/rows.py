@@ -26,7 +26,7 @@ from reporter.intake.duck.cell_table import _moments
 from reporter.intake.duck.connection import _close, _doubles
 from reporter.intake.duck.files import _RowNumbers
 from reporter.intake.rows import CellPoints, FlaggedRows, RankSums, sample_positions
-from reporter.intake.sorted_cells import MAX_ROWS, SortedCells, first_where, type7_quantiles
+from reporter.intake.sorted_cells import MAX_ROWS, SortedCells, first_where, slab_rank_sums, tie_term, type7_quantiles
 
 
 class DuckRows:
@@ -182,36 +182,79 @@ class DuckRows:
     def rank_sums(self) -> RankSums:
         """Rank sums with mid-ranks for ties, in exact integers (twice each sum): a value shared
         by t rows that has ``below`` rows under it gets rank (2·below + t + 1)/2; the tie term
-        is Σ(t³ − t). Up to :data:`_WIDE_CELLS` cells this is one hash aggregate of the rows by
-        value (with a count per cell) and one running sum over the distinct values; with the
-        distinct values fetched, that sum in numpy."""
+        is Σ(t³ − t). From the distinct values when fetched, else from each cell's sorted values
+        when held, else slab by slab out-of-core (:meth:`_rank_sums_by_slabs`)."""
         dist = self._distinct()
         if dist is not None:
             return dist.rank_sums()
         if self._sorted() is not None:
             return self._sorted().rank_sums()
-        if self.k <= _WIDE_CELLS:
-            counts = ", ".join(f"count(*) FILTER (WHERE cell = {j}) AS c{j}" for j in range(self.k))
-            sums = ", ".join(f"sum(CAST(c{j} AS HUGEINT) * (2 * CAST(below AS HUGEINT) + t + 1))" for j in range(self.k))
-            got = self._q(
-                f"WITH v AS (SELECT d, count(*) AS t, {counts} FROM kept GROUP BY d), "
-                "r AS (SELECT *, sum(t) OVER (ORDER BY d ROWS UNBOUNDED PRECEDING) - t AS below FROM v) "
-                f"SELECT sum(CAST(t AS HUGEINT) * t * t - t), {sums} FROM r"
-            )[0]
-            tie, rows = got[0], list(enumerate(got[1:]))
-        else:
-            rows = self._q(
-                "WITH g AS (SELECT d, cell, count(*) AS m FROM kept GROUP BY d, cell), "
-                "v AS (SELECT d, sum(m) AS t FROM g GROUP BY d), "
-                "r AS (SELECT d, t, sum(t) OVER (ORDER BY d ROWS UNBOUNDED PRECEDING) - t AS below FROM v) "
-                "SELECT g.cell, sum(CAST(g.m AS HUGEINT) * (2 * CAST(r.below AS HUGEINT) + CAST(r.t AS HUGEINT) + 1)) "
-                "FROM g JOIN r USING (d) GROUP BY g.cell"
-            )
-            tie = self._q("SELECT sum(t * t * t - t) FROM (SELECT CAST(count(*) AS HUGEINT) AS t FROM kept GROUP BY d)")[0][0]
-        rank_sum = np.zeros(self.k)
-        for c, twice in rows:
-            rank_sum[c] = float(Fraction(int(twice or 0), 2))
-        return RankSums(rank_sum=rank_sum, tie_term=float(int(tie or 0)), n=self.n)
+        return self._rank_sums_by_slabs()
+
+    def _rank_sums_by_slabs(self) -> RankSums:
+        """Mid-rank sums out-of-core: a histogram of the pooled values in equal-width buckets
+        (monotone in the value, so a bucket never splits a tie) groups consecutive buckets into
+        slabs of at most :data:`_RANK_SLAB_ROWS` rows; each slab's rows are fetched and ranked in
+        numpy (:func:`~reporter.intake.sorted_cells.slab_rank_sums`) after the rows of the slabs
+        below it. A single bucket heavier than a slab (values crowded or tied) is ranked from its
+        distinct values with their counts per cell. One scan per slab; memory one slab."""
+        k = self.k
+        cells = list(self._observed())
+        if not cells:
+            return RankSums(rank_sum=np.zeros(k), tie_term=0.0, n=0)
+        lo = float(min(self._lo[c] for c in cells))
+        hi = float(max(self._hi[c] for c in cells))
+        nb = _RANK_BUCKETS
+        step = nb / (hi - lo) if hi > lo else 0.0
+        if not math.isfinite(step):
+            step = 0.0  # a range below float64's resolution for the division: one bucket
+        bucket = (f"greatest(least(CAST(floor((d - CAST('{lo!r}' AS DOUBLE)) * CAST('{step!r}' AS DOUBLE)) AS BIGINT), "
+                  f"{nb - 1}), 0)")
+        hist = self._np(f"SELECT {bucket} AS b, count(*) AS m FROM kept GROUP BY b")
+        sizes = np.zeros(nb, dtype=np.int64)
+        sizes[np.asarray(hist["b"], dtype=np.int64)] = np.asarray(hist["m"], dtype=np.int64)
+        limit = max(1, min(_RANK_SLAB_ROWS, (1 << 51) // max(self.n, 1)))  # twice-rank sums stay exact in float64
+        twice, tie, base, b = [0] * k, 0, 0, 0
+        while b < nb:
+            if sizes[b] == 0:
+                b += 1
+                continue
+            e, total = b, 0
+            while e < nb and (total == 0 or total + sizes[e] <= limit):
+                total += int(sizes[e])
+                e += 1
+            if total <= limit:
+                got = self._np(f"SELECT cell, d FROM kept WHERE {bucket} BETWEEN {b} AND {e - 1}")
+                w, t = slab_rank_sums(np.asarray(got["d"], dtype=np.float64), np.asarray(got["cell"], dtype=np.int64), base, k)
+                part = [int(x) for x in w.tolist()]
+            else:
+                part, t = self._heavy_bucket_ranks(f"{bucket} = {b}", base)
+            twice = [x + y for x, y in zip(twice, part)]
+            tie += t
+            base += total
+            b = e
+        rank_sum = np.array([float(Fraction(x, 2)) for x in twice])
+        return RankSums(rank_sum=rank_sum, tie_term=float(tie), n=self.n)
+
+    def _heavy_bucket_ranks(self, where: str, base: int) -> tuple[list[int], int]:
+        """Twice the mid-rank sum per cell and Σ(t³ − t) of the rows ``where`` selects, whose
+        values lie above ``base`` other rows and below the rest, from their distinct values with
+        the rows of each in each cell (exact integers)."""
+        got = self._np(f"SELECT d, cell, count(*) AS m FROM kept WHERE {where} GROUP BY d, cell ORDER BY d, cell")
+        d = np.asarray(got["d"], dtype=np.float64)
+        cell = np.asarray(got["cell"], dtype=np.int64)
+        m = np.asarray(got["m"], dtype=np.int64)
+        new = np.empty(d.size, dtype=bool)
+        new[:1] = True
+        np.not_equal(d[1:], d[:-1], out=new[1:])
+        starts = np.flatnonzero(new)
+        t = np.add.reduceat(m, starts) if d.size else np.zeros(0, dtype=np.int64)
+        below = base + np.cumsum(t) - t
+        group = np.cumsum(new) - 1
+        twice = [0] * self.k
+        for c, x in zip(cell.tolist(), (m * (2 * below[group] + t[group] + 1)).tolist()):
+            twice[c] += x
+        return twice, tie_term(t)
 
     def _order_stats(self, source: str, positions: dict[int, list[int]], bounds: dict[int, tuple[float, float]],
                      counts: dict[int, int]) -> dict[tuple[int, int], float]:
@@ -465,6 +508,8 @@ class DuckRows:
 
 _MAX_BUCKETS = 1 << 20  # histogram buckets per cell at most when locating order statistics
 _FETCH = 1_000_000  # values fetched into Python at most per refinement step
+_RANK_SLAB_ROWS = 1 << 22  # rows ranked at a time out-of-core
+_RANK_BUCKETS = 1 << 16  # histogram buckets that cut the pooled values into slabs
 _CELL_QUERIES = 8  # at most this many cells: the sorted values fetched by one query per cell
 _WIDE_CELLS = 64  # at most this many cells: rank sums from one aggregate with a count column per cell
 _TABLES = itertools.count()  # names of the temporary tables of distinct values
@@ -525,10 +570,6 @@ class _Distinct:
         t = self.counts.sum(axis=1)
         below = np.cumsum(t) - t
         twice = (self.counts * (2 * below + t + 1)[:, None]).sum(axis=0)
-        tied = t[t > 1]
-        if tied.size and int(tied.max()) >= 1 << 21:  # t^3 beyond int64
-            tie = sum(x * x * x - x for x in tied.tolist())
-        else:
-            tie = sum(((tied - 1) * tied * (tied + 1)).tolist())
+        tie = tie_term(t)
         rank_sum = np.array([float(Fraction(int(x), 2)) for x in twice.tolist()])
         return RankSums(rank_sum=rank_sum, tie_term=float(tie), n=int(t.sum()))
