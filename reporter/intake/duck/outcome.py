@@ -170,7 +170,8 @@ def _quick_sql(y: str, plan, pv: decimal.Decimal, head: Sequence[str]) -> tuple[
         return None
     text = f"replace({y}, ',', '.')" if plan.data.decimal == "," else y
     numeric_tokens = [m for m in plan.data.missing if _clean_number(m, _NoMissing(plan)) is not None]
-    pre = f"strlen({y}) <= {D.MAX_NUMBER_CHARS} AND NOT contains({y}, '_') AND {_fits_sql(text, s18, 'dot')}"
+    # replacing the decimal comma keeps the length and the letters: only the point and the cast need it
+    pre = f"strlen({y}) <= {D.MAX_NUMBER_CHARS} AND NOT contains({y}, '_') AND {_fits_sql(y, s18, 'dot')}"
     if numeric_tokens:
         pre += f" AND trim({y}) NOT IN ({', '.join(map(_lit, numeric_tokens))})"
     d18 = f"DECIMAL(18, {s18})"
