@@ -173,6 +173,47 @@ def test_float_factor_and_text_outcome_in_parquet(tmp_path):
     assert_close(duck.cells.mean, memory_cells(load_plan(tmp_path / "m.toml"), mem)[0].mean)
 
 
+@pytest.mark.parametrize("n_levels", [3, D.MAX_LEVELS // 2], ids=["few levels", "most levels"])
+def test_first_factor_code_and_outcome_status_in_every_combination(tmp_path, n_levels):
+    """The compact table keeps the first factor's code and the outcome's status in one column
+    (reader._CodeStatus; up to the most levels the cell limit leaves with a second factor): every pair of (level as written in
+    the plan, level written otherwise, excluded level, missing factor) and (valid, missing,
+    non-numeric outcome), in both factor positions, gives the in-memory reader's exclusions,
+    cells and dropped-outcome levels."""
+    levels = [f"L{i}" for i in range(n_levels)]
+    text = f"""
+title = "t"
+[data]
+path = "{{path}}"
+outcome = "y"
+reader = "{{reader}}"
+[[factors]]
+name = "dose"
+levels = {levels!r}
+exclude = ["X"]
+[[factors]]
+name = "site"
+levels = ["north", "south"]
+exclude = ["east"]
+""".replace("'", '"')
+    spellings = ["L1", " L2 ", "X", "", "L0"]  # as in the plan, trimmed by the matching rules, excluded, missing
+    outcomes = ["1.5", "NA", "abc", "2.25"]
+    lines = ["dose,site,y"]
+    for dose in spellings:
+        for y in outcomes:
+            for site in ["north", " south", "east", ""]:  # ' south': the second factor's matching too
+                lines.append(f"{dose},{site},{y}")
+    (tmp_path / "d.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    mem, duck = both(tmp_path, "d.csv", text)
+    cells, _ = memory_cells(load_plan(tmp_path / "m.toml"), mem)
+    assert (duck.n_read, duck.n) == (mem.n_read, mem.n)
+    assert duck.exclusions == mem.exclusions
+    assert np.array_equal(duck.cells.n, cells.n)
+    assert_close(duck.cells.mean, cells.mean)
+    assert sorted(map(tuple, duck.dropped_outcome_levels)) == sorted(map(tuple, mem.dropped_outcome_levels))
+    assert len(duck.exclusions) >= 5
+
+
 # ---------------------------------------------------------------------------------------------
 # NIST StRD through the out-of-core reader
 

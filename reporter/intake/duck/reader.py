@@ -42,17 +42,18 @@ from reporter.intake.duck.rows import DuckRows
 class _CodeStatus:
     """The first factor's code ``c0`` (a level's index, -1 missing, -2 excluded, -9 not yet
     matched) and the outcome's status ``st`` (0 valid, 1 missing, 2 not a number) stored in one
-    column of the compact table, ``cs = c0 + B·st``: one column fewer to write for every row, and
-    ``cs`` is the cell itself in an analysed row of a one-factor design. ``B`` leaves room for
-    every code, so each question about ``c0`` or ``st`` is a range of ``cs``."""
+    SMALLINT column of the compact table, ``cs = c0 + B·st``: one column fewer to write for every
+    row, and ``cs`` is the cell itself in an analysed row of a one-factor design. ``B`` = 1000
+    leaves room for every code (a factor has at most ``MAX_LEVELS`` = 256 levels), so each
+    question about ``c0`` or ``st`` is a range of ``cs``, which DuckDB answers from the table's
+    statistics when no row is in it."""
 
     def __init__(self, levels: int):
         self.levels = levels
-        self.base = max(10_000, levels + 16)
-        self.type = "SMALLINT" if 2 * self.base + levels < 1 << 15 else "INTEGER"
+        self.base = 1000  # > MAX_LEVELS + 9: the codes of one status never reach the next's
 
     def store(self, c0: str, st: str) -> str:
-        return f"CAST({c0} + {self.base} * {st} AS {self.type}) AS cs"
+        return f"CAST({c0} + {self.base} * {st} AS SMALLINT) AS cs"
 
     def code(self, value: int) -> str:
         """SQL: ``c0 = value``, whatever the status."""
