@@ -182,9 +182,8 @@ class SortedCells:
             z = np.subtract(self.segment(c), centre[c])
             return segment_moments(np.abs(z, out=z))
 
-        cells = list(self.observed())
-        for c, (m, s) in zip(cells, _each(one, [(c,) for c in cells])):
-            mean[c], ss[c] = m, s
+        for c in self.observed():  # one cell at a time: two scratch arrays of a cell's size
+            mean[c], ss[c] = one(c)
         return self.counts.copy(), mean, ss
 
     def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
