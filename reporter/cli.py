@@ -229,6 +229,19 @@ def _load_numerics() -> None:
         import_special_lean()
 
 
+def _one_blas_thread() -> None:
+    """Before NumPy loads, one OpenBLAS thread unless OPENBLAS_NUM_THREADS says otherwise.
+
+    NumPy and SciPy each load their own OpenBLAS, which starts a worker thread per core that
+    busy-waits for a while after start-up and after every threaded call. The program's linear
+    algebra is on cell-level matrices and vectors, far below the sizes where OpenBLAS would share
+    work between threads, so those threads only burn CPU time the DuckDB queries could use:
+    importing numpy and scipy.special took 0.33 s of CPU in 0.18 s with them, 0.14 s in 0.14 s
+    without (2 cores)."""
+    if "numpy" not in sys.modules:
+        os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+
+
 def _skip_exit_collection() -> None:
     """The process is about to exit: move every object to the collector's permanent generation,
     so that the interpreter's shutdown does not search them all for reference cycles again
@@ -508,6 +521,7 @@ def main(argv: list[str] | None = None) -> int:
     if argv is None:  # the program itself (console script, python -m reporter)
         global _PROGRAM
         _PROGRAM = True
+        _one_blas_thread()
         try:
             return main(sys.argv[1:])
         finally:

@@ -90,3 +90,33 @@ def test_run_with_json_output_imports_nothing_only_other_outputs_need(reader, tm
     assert leaked == []
     html_run = _imported(["run", "oneway.toml", "--out", "out-html", "--format", "html", "--quiet"], tmp_path)
     assert {"matplotlib", "jinja2"} <= html_run
+
+
+BLAS_PROBE = """
+import os, runpy, sys
+sys.argv = ["anova-report", "run", {plan!r}, "--out", "out", "--format", "json", "--quiet"]
+try:
+    runpy.run_module("reporter", run_name="__main__", alter_sys=True)
+except SystemExit as exc:
+    assert exc.code in (0, None), exc.code
+"""
+
+
+@pytest.mark.parametrize(("given", "expected"), [(None, "1"), ("2", "2")], ids=["unset", "set-by-the-user"])
+def test_program_loads_openblas_with_one_thread_unless_the_user_chose(given, expected, tmp_path):
+    """The program sets OPENBLAS_NUM_THREADS=1 before NumPy loads (OpenBLAS reads it then) and
+    keeps a value the user set; /proc lists the process's threads, so on Linux the OpenBLAS
+    workers are seen to be absent after the run."""
+    env = {k: v for k, v in ENV.items() if k != "OPENBLAS_NUM_THREADS"}
+    if given is not None:
+        env["OPENBLAS_NUM_THREADS"] = given
+    code = BLAS_PROBE.format(plan=str(ROOT / "demo_project" / "oneway.toml")) + (
+        "print(os.environ.get('OPENBLAS_NUM_THREADS'))\n"
+        "import glob; print(len(glob.glob('/proc/self/task/*')) or 'unknown')\n"
+    )
+    res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, cwd=tmp_path)
+    assert res.returncode == 0, res.stderr
+    value, threads = res.stdout.splitlines()[-2:]
+    assert value == expected
+    if threads != "unknown" and given is None:
+        assert int(threads) == 1
