@@ -133,7 +133,7 @@ def main() -> None:
         out = folder / f"out-{n}"
         t, m, c = median_measure(ours(plan, out, "html,json"), args.repeat)
         base = base or t
-        row("default plan, Parquet, html,json (÷ 10^3 run)", n, t, m, out, base, c)
+        row("default plan, parquet, 3 decimals, html,json (÷ 10^3 run)", n, t, m, out, base, c)
     big = sizes[-1]
     for fmt, decimals in (("parquet", 3), ("parquet", None), ("csv", 3)):
         data = write_rows(folder, big, fmt, decimals=decimals)
@@ -153,7 +153,7 @@ def main() -> None:
         plan = write_plan(folder, data)
         out = folder / "out-huge"
         t, m, c = measure(ours(plan, out, "json"))
-        row("default plan, Parquet, json (10^8)", n, t, m, out, cpu=c)
+        row("default plan, parquet, 3 decimals, json (10^8)", n, t, m, out, cpu=c)
     print(f"load average after: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     if args.folder is None:
         shutil.rmtree(folder, ignore_errors=True)
