@@ -463,7 +463,8 @@ def qq_quantiles(rows: RowAccess, cells: CellStats, mse: float, *, max_points: i
     if m <= max_points:
         ranks = np.arange(1, m + 1, dtype=np.float64)
     else:
-        ranks = np.unique(np.round(np.linspace(1.0, float(m), max_points)))
+        # Distinct without np.unique: the spacing (m - 1)/(max_points - 1) exceeds 1.
+        ranks = np.round(np.linspace(1.0, float(m), max_points))
     probs = (ranks - 1.0) / (m - 1.0) if m > 1 else np.array([0.5])
     sample = np.asarray(rows.residual_quantiles(cells.offset_mean, _internal_scale(cells, mse, leverage),
                                                 probs.tolist()))
