@@ -112,3 +112,28 @@ def test_random_ties_and_slabs(pairs, slab_size):
         sorted_cells._SLAB = old
     ranks = scipy.stats.rankdata(y)
     np.testing.assert_array_equal(got.rank_sum, np.bincount(cell, weights=ranks, minlength=4))
+
+
+@settings(max_examples=80, deadline=None)
+@given(st.lists(st.lists(st.tuples(st.sampled_from([-2.0, -0.0, 0.0, 0.5, 1.0, 3.0, 1e-300]), st.integers(1, 4)),
+                         max_size=8), min_size=1, max_size=4))
+def test_pooled_order_stats_of_weighted_runs(cells):
+    """The order statistics of distinct values with counts, pooled over runs, without merging
+    them: equal to indexing numpy's sort of the expanded multiset (reference)."""
+    from reporter.intake.duck.rows import pooled_order_stats
+
+    runs, cums, expanded = [], [], []
+    for pairs in cells:
+        vals = {}
+        for v, m in pairs:
+            vals[v] = vals.get(v, 0) + m  # one entry per distinct value (-0.0 and 0.0 are one)
+        v = np.array(sorted(vals), dtype=np.float64)
+        w = np.array([vals[x] for x in sorted(vals)], dtype=np.int64)
+        runs.append(v)
+        cums.append(np.cumsum(w))
+        expanded.append(np.repeat(v, w))
+    pooled = np.sort(np.concatenate(expanded))
+    if pooled.size == 0:
+        return
+    ranks = np.arange(pooled.size)
+    np.testing.assert_array_equal(pooled_order_stats(runs, cums, ranks), pooled)

@@ -517,6 +517,42 @@ _DISTINCT_SHARE = 0.125  # distinct values at most this share of the rows: answe
 _DISTINCT_CELLS = 4_000_000  # and distinct values x (cells + 1) at most this (about 32 MB fetched)
 
 
+def pooled_order_stats(runs: Sequence[np.ndarray], cums: Sequence[np.ndarray], ranks: np.ndarray) -> np.ndarray:
+    """The values at 0-based ``ranks`` of the multiset pooled from sorted runs of values, run i
+    holding runs[i][j] with multiplicity cums[i][j] − cums[i][j − 1] (``cums`` the running
+    counts). The value at rank r is the smallest x of any run with F(x) > r, F(x) being the rows
+    at or below x in all runs together; each run's smallest such x is found by bisection on its
+    positions (F is monotone along a run), for every rank at once, so nothing is merged."""
+    ranks = np.asarray(ranks, dtype=np.int64)
+    best = np.full(ranks.size, np.inf)
+
+    def below_or_at(x: np.ndarray) -> np.ndarray:
+        total = np.zeros(x.size, dtype=np.int64)
+        for run, cum in zip(runs, cums):
+            if run.size == 0:
+                continue
+            i = np.searchsorted(run, x, side="right")
+            total += np.where(i > 0, cum[np.maximum(i - 1, 0)], 0)
+        return total
+
+    for run in runs:
+        if run.size == 0:
+            continue
+        lo = np.zeros(ranks.size, dtype=np.int64)
+        hi = np.full(ranks.size, run.size, dtype=np.int64)
+        while True:
+            open_ = lo < hi
+            if not open_.any():
+                break
+            mid = (lo + hi) // 2
+            beyond = below_or_at(run[np.minimum(mid, run.size - 1)]) > ranks
+            lo = np.where(open_ & ~beyond, mid + 1, lo)
+            hi = np.where(open_ & beyond, mid, hi)
+        found = lo < run.size
+        best[found] = np.minimum(best[found], run[lo[found]])
+    return best
+
+
 class _Distinct:
     """The analysed values as distinct values in increasing order (``values``), with the number
     of rows of each value in each cell (``counts``, shape (D, k)); every answer exact."""
@@ -539,18 +575,16 @@ class _Distinct:
         """Order statistics (key 0) of (value − means_c)/scale_c pooled over ``cells``, each
         value weighted by its rows in the cell (the same floating-point operations as the SQL
         of :meth:`DuckRows.residual_quantiles`)."""
-        parts, weights = [], []
+        runs, cums = [], []
         for c in cells.tolist():
             m = self.counts[:, c] > 0
-            parts.append((self.values[m] - means[c]) / scale[c])
-            weights.append(self.counts[m, c])
-        v = np.concatenate(parts)
-        order = np.argsort(v, kind="stable")
-        v, cum = v[order], np.cumsum(np.concatenate(weights)[order])
+            runs.append((self.values[m] - means[c]) / scale[c])
+            cums.append(np.cumsum(self.counts[m, c]))
 
         def stats(positions: dict[int, list[int]]) -> dict[tuple[int, int], float]:
-            r = np.asarray(positions[0], dtype=np.int64)
-            return {(0, q): x for q, x in zip(r.tolist(), v[np.searchsorted(cum, r, side="right")].tolist())}
+            r = np.unique(np.asarray(positions[0], dtype=np.int64))
+            got = pooled_order_stats(runs, cums, r)
+            return dict(zip(((0, q) for q in r.tolist()), got.tolist()))
 
         return stats
 
