@@ -724,6 +724,15 @@ def open_parquet(path: Path):
         raise DataError(f"{path}: is not a readable Parquet file ({exc}).") from None
 
 
+def _arrow_to_numpy(arr, null=None) -> np.ndarray:
+    """A pyarrow array of a fixed-width type as a numpy array of its own, nulls replaced by
+    ``null``, through DLPack: pyarrow's ``to_numpy`` and its scalars from Python values import
+    pandas (a third of a second), so the nulls are replaced only when there are any."""
+    if arr.null_count:
+        arr = arr.fill_null(null)
+    return np.array(np.from_dlpack(arr), copy=True)
+
+
 def _from_parquet(plan: Plan, path: Path) -> Dataset:
     import pyarrow as pa
     import pyarrow.compute as pc
@@ -753,9 +762,9 @@ def _from_parquet(plan: Plan, path: Path) -> Dataset:
             col = col.cast(col.type.value_type)
         enc = pc.dictionary_encode(col).combine_chunks()
         uniq = np.asarray(enc.dictionary.to_pylist(), dtype=object)
-        idx = enc.indices.to_numpy(zero_copy_only=False)
+        idx = _arrow_to_numpy(enc.indices, 0)
         if enc.null_count:
-            idx = np.where(enc.is_null().to_numpy(zero_copy_only=False), len(uniq), idx)
+            idx = np.where(_arrow_to_numpy(enc.is_null().cast(pa.uint8())).astype(bool), len(uniq), idx)
             uniq = np.append(uniq, None)
         cols[f.data_column] = _Encoded(uniq, idx.astype(np.int64))
     for name in dict.fromkeys([plan.data.outcome, *(c.name for c in plan.covariates)]):
@@ -763,7 +772,7 @@ def _from_parquet(plan: Plan, path: Path) -> Dataset:
         if pa.types.is_dictionary(out.type):
             out = out.cast(out.type.value_type)
         if pa.types.is_integer(out.type) or pa.types.is_floating(out.type) or pa.types.is_decimal(out.type):
-            cols[name] = out.cast(pa.float64()).to_numpy(zero_copy_only=False)
+            cols[name] = _arrow_to_numpy(out.cast(pa.float64()).combine_chunks(), float("nan"))
         else:
             cols[name] = np.asarray(out.cast(pa.string()).to_pylist(), dtype=object)
     return _build_columns(plan, str(path), sha, "parquet", cols, n, row_numbers=np.arange(1, n + 1, dtype=np.int64))

@@ -73,15 +73,25 @@ def _imported(args: list[str], cwd: Path) -> set[str]:
     return set(re.findall(r"^import time:\s+\d+ \|\s+\d+ \|\s*(\S+)\s*$", res.stderr, flags=re.M))
 
 
-@pytest.mark.parametrize("reader", ["in-memory", "out-of-core"])
-def test_run_with_json_output_imports_nothing_only_other_outputs_need(reader, tmp_path):
-    """`anova-report run --format json` on the one-way demo, with either reader, imports none of
-    NOT_FOR_JSON (Python's -X importtime lists every module imported); the same run with
-    --format html imports matplotlib and jinja2, which shows the listing sees them."""
+@pytest.mark.parametrize("reader, fmt", [("in-memory", "csv"), ("out-of-core", "csv"), ("in-memory", "parquet")])
+def test_run_with_json_output_imports_nothing_only_other_outputs_need(reader, fmt, tmp_path):
+    """`anova-report run --format json` on the one-way demo, with either reader and from a
+    Parquet copy, imports none of NOT_FOR_JSON (Python's -X importtime lists every module
+    imported); the same run with --format html imports matplotlib and jinja2, which shows the
+    listing sees them."""
     plan = (ROOT / "demo_project" / "oneway.toml").read_text(encoding="utf-8")
+    if fmt == "parquet":
+        import pyarrow.csv
+        import pyarrow.parquet
+
+        pyarrow.parquet.write_table(pyarrow.csv.read_csv(ROOT / "demo_project" / "recall_oneway.csv"),
+                                    tmp_path / "recall_oneway.parquet")
+        assert "recall_oneway.csv" in plan
+        plan = plan.replace("recall_oneway.csv", "recall_oneway.parquet")
+    else:
+        (tmp_path / "recall_oneway.csv").write_bytes((ROOT / "demo_project" / "recall_oneway.csv").read_bytes())
     (tmp_path / "oneway.toml").write_text(plan.replace("[data]\n", f'[data]\nreader = "{reader}"\n', 1),
                                           encoding="utf-8")
-    (tmp_path / "recall_oneway.csv").write_bytes((ROOT / "demo_project" / "recall_oneway.csv").read_bytes())
     json_run = _imported(["run", "oneway.toml", "--out", "out-json", "--format", "json", "--quiet"], tmp_path)
     assert (tmp_path / "out-json" / "results.json").is_file()
     assert {"reporter.fitting.anova", "scipy.special"} <= json_run
