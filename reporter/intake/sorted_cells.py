@@ -225,7 +225,8 @@ class SortedCells:
             if picks:
                 pooled = np.sort(np.concatenate(picks))
                 cuts = np.unique(pooled[np.linspace(0, pooled.size - 1, nslab + 1).astype(np.int64)[1:-1]])
-        bounds = [np.concatenate([[0], _first_at_least(r, cuts, lambda x, i=i: value(i, x)), [r.size]])
+        bounds = [np.concatenate([[0], first_true(r.size, lambda mid, i=i, r=r: value(i, r[mid]) >= cuts, cuts.size),
+                                  [r.size]])
                   for i, r in enumerate(runs)]
         for s in range(cuts.size + 1):
             yield [r[b[s] : b[s + 1]] for r, b in zip(runs, bounds)]
@@ -294,33 +295,21 @@ def _mapped(x: np.ndarray, ab: tuple[float, float] | None) -> np.ndarray:
     return x if ab is None else (x - ab[0]) / ab[1]
 
 
-def _first_at_least(run: np.ndarray, cuts: np.ndarray, value) -> np.ndarray:
-    """For each cut p, the first position i of the sorted ``run`` with value(run[i]) ≥ p, where
-    ``value`` is monotone non-decreasing (a bisection on all cuts at once)."""
-    lo = np.zeros(cuts.size, dtype=np.int64)
-    hi = np.full(cuts.size, run.size, dtype=np.int64)
+def first_true(size: int, test, count: int) -> np.ndarray:
+    """For each of ``count`` questions, the first position i in 0 .. size − 1 where the test
+    holds, for a test that is false and then true along the positions; ``size`` where it never
+    holds. A bisection on every question at once: ``test(positions)`` gets one position per
+    question and returns one truth value per question."""
+    lo = np.zeros(count, dtype=np.int64)
+    hi = np.full(count, size, dtype=np.int64)
     while True:
         open_ = lo < hi
         if not open_.any():
             return lo
         mid = (lo + hi) // 2
-        below = np.zeros(cuts.size, dtype=bool)
-        below[open_] = value(run[mid[open_]]) < cuts[open_]
-        lo = np.where(open_ & below, mid + 1, lo)
-        hi = np.where(open_ & ~below, mid, hi)
-
-
-def first_where(run: np.ndarray, test) -> int:
-    """The first position i of ``run`` where ``test(run[i])`` holds, for a test that is false
-    and then true along the run (a bisection); ``run.size`` when it never holds."""
-    lo, hi = 0, run.size
-    while lo < hi:
-        mid = (lo + hi) // 2
-        if test(run[mid]):
-            hi = mid
-        else:
-            lo = mid + 1
-    return lo
+        holds = np.asarray(test(np.minimum(mid, size - 1)), dtype=bool)
+        lo = np.where(open_ & ~holds, mid + 1, lo)
+        hi = np.where(open_ & holds, mid, hi)
 
 
 def _code_type(k: int):

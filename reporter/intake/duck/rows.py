@@ -26,7 +26,7 @@ from reporter.intake.duck.cell_table import _moments
 from reporter.intake.duck.connection import _close, _doubles
 from reporter.intake.duck.files import _RowNumbers
 from reporter.intake.rows import CellPoints, FlaggedRows, RankSums, sample_positions
-from reporter.intake.sorted_cells import MAX_ROWS, SortedCells, first_where, slab_rank_sums, tie_term, type7_quantiles
+from reporter.intake.sorted_cells import MAX_ROWS, SortedCells, first_true, slab_rank_sums, tie_term, type7_quantiles
 
 
 class DuckRows:
@@ -440,8 +440,8 @@ class DuckRows:
             # e = v − centre rounds monotonically in the sorted values, so the flagged values
             # (e < −bound or e > bound) are a head and a tail of them, found by bisection
             cen, b = centre[c], bound[c]
-            head = first_where(v, lambda x: x - cen >= -b)
-            tail = first_where(v, lambda x: x - cen > b)
+            head = int(first_true(v.size, lambda mid: v[mid] - cen >= -b, 1)[0])
+            tail = int(first_true(v.size, lambda mid: v[mid] - cen > b, 1)[0])
             if head == 0 and tail == v.size:
                 continue
             v = np.concatenate([v[:head], v[tail:]])
@@ -522,7 +522,8 @@ def pooled_order_stats(runs: Sequence[np.ndarray], cums: Sequence[np.ndarray], r
     holding runs[i][j] with multiplicity cums[i][j] − cums[i][j − 1] (``cums`` the running
     counts). The value at rank r is the smallest x of any run with F(x) > r, F(x) being the rows
     at or below x in all runs together; each run's smallest such x is found by bisection on its
-    positions (F is monotone along a run), for every rank at once, so nothing is merged."""
+    positions (F is monotone along a run; :func:`~reporter.intake.sorted_cells.first_true`), for
+    every rank at once, so nothing is merged."""
     ranks = np.asarray(ranks, dtype=np.int64)
     best = np.full(ranks.size, np.inf)
 
@@ -538,16 +539,7 @@ def pooled_order_stats(runs: Sequence[np.ndarray], cums: Sequence[np.ndarray], r
     for run in runs:
         if run.size == 0:
             continue
-        lo = np.zeros(ranks.size, dtype=np.int64)
-        hi = np.full(ranks.size, run.size, dtype=np.int64)
-        while True:
-            open_ = lo < hi
-            if not open_.any():
-                break
-            mid = (lo + hi) // 2
-            beyond = below_or_at(run[np.minimum(mid, run.size - 1)]) > ranks
-            lo = np.where(open_ & ~beyond, mid + 1, lo)
-            hi = np.where(open_ & beyond, mid, hi)
+        lo = first_true(run.size, lambda mid: below_or_at(run[mid]) > ranks, ranks.size)
         found = lo < run.size
         best[found] = np.minimum(best[found], run[lo[found]])
     return best
