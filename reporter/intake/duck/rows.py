@@ -251,10 +251,9 @@ class DuckRows:
         t = np.add.reduceat(m, starts) if d.size else np.zeros(0, dtype=np.int64)
         below = base + np.cumsum(t) - t
         group = np.cumsum(new) - 1
-        twice = [0] * self.k
-        for c, x in zip(cell.tolist(), (m * (2 * below[group] + t[group] + 1)).tolist()):
-            twice[c] += x
-        return twice, tie_term(t)
+        twice = np.zeros(self.k, dtype=np.int64)  # exact: the sums stay below 2^63 for n < 2^31
+        np.add.at(twice, cell, m * (2 * below[group] + t[group] + 1))
+        return [int(x) for x in twice.tolist()], tie_term(t)
 
     def _order_stats(self, source: str, positions: dict[int, list[int]], bounds: dict[int, tuple[float, float]],
                      counts: dict[int, int]) -> dict[tuple[int, int], float]:
