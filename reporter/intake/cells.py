@@ -142,11 +142,16 @@ def _sum_pairwise(x: np.ndarray) -> float:
     return float(x.sum())
 
 
-def _grouped(cell: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def code_type(k: int):
+    """The narrowest unsigned type for cell codes 0 .. k − 1 (numpy's stable sort of 8- and 16-bit
+    integers is a radix sort)."""
+    return np.uint8 if k <= 255 else np.uint16 if k <= 65535 else np.int64
+
+
+def group_by_cell(cell: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Cell counts, a stable order grouping rows by cell, and each cell's start and end in it."""
     n = np.bincount(cell, minlength=k).astype(np.int64)
-    code_type = np.uint8 if k <= 255 else np.uint16 if k <= 65535 else np.int64
-    order = np.argsort(cell.astype(code_type, copy=False), kind="stable")
+    order = np.argsort(cell.astype(code_type(k), copy=False), kind="stable")
     ends = np.cumsum(n)
     return n, order, ends - n, ends
 
@@ -178,7 +183,7 @@ def describe_cells(y: np.ndarray, cell: np.ndarray, k: int, pivot: float = 0.0, 
     """Per-cell n, mean and centred SS of ``y`` (offsets from ``pivot``) grouped by ``cell``."""
     y = np.asarray(y, dtype=np.float64)
     cell = np.asarray(cell)
-    n, order, starts, ends = _grouped(cell, k)
+    n, order, starts, ends = group_by_cell(cell, k)
     ys = y[order]
     mean = np.full(k, np.nan)
     ss = np.full(k, np.nan)
@@ -218,7 +223,7 @@ def describe_covariates(
     piv = np.zeros(p) if pivot is None else np.array(pivot, dtype=np.float64).reshape(p)
     exact = tuple(Fraction(float(v)) for v in piv) if pivot_exact is None else tuple(pivot_exact)
     labels = tuple(f"x{j + 1}" for j in range(p)) if names is None else tuple(names)
-    n, order, starts, ends = _grouped(cell, k)
+    n, order, starts, ends = group_by_cell(cell, k)
     ys = y[order]
     xs = x[order]
     mean = np.full((k, p), np.nan)

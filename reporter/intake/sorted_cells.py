@@ -15,31 +15,15 @@ the extra memory is the values themselves (8 bytes a row) plus a slab of about 2
 from __future__ import annotations
 
 import math
-import os
-from concurrent.futures import ThreadPoolExecutor
-from typing import Callable, Iterable, Sequence, TypeVar
+from typing import Iterable, Sequence
 
 import numpy as np
 
-from reporter.intake.cells import segment_moments
+from reporter.intake.cells import code_type, group_by_cell, segment_moments
 from reporter.intake.rows import CellPoints, RankSums
-
-_T = TypeVar("_T")
-_R = TypeVar("_R")
 
 MAX_ROWS = 1 << 24  # the DuckDB rows hold the values in memory up to this many rows (128 MB)
 _SLAB = 1 << 18  # rows per slab when the sorted runs are merged
-_THREADS = 4  # at most this many threads (numpy's sorts and array arithmetic run without the GIL)
-
-
-def _each(fn: Callable[..., _R], jobs: Iterable[tuple]) -> list[_R]:
-    """``fn(*job)`` for every job, in order, on up to :data:`_THREADS` threads (one core: inline).
-    Every job is independent, so the answers do not depend on the number of threads."""
-    workers = min(_THREADS, os.cpu_count() or 1)
-    if workers <= 1:
-        return [fn(*job) for job in jobs]
-    with ThreadPoolExecutor(max_workers=workers) as pool:
-        return [f.result() for f in [pool.submit(fn, *job) for job in jobs]]
 
 
 def type7_quantiles(counts: dict[int, int], probs: Sequence[float], order_stats) -> dict[int, np.ndarray]:
@@ -107,18 +91,16 @@ class SortedCells:
         self.k = len(self._segs)
         self.counts = np.array([seg.size for seg in self._segs], dtype=np.int64)
         self.n = int(self.counts.sum())
-        _each(np.ndarray.sort, [(seg,) for seg in self._segs if seg.size > 1])
         for seg in self._segs:
+            seg.sort()
             seg.setflags(write=False)
 
     @classmethod
     def from_rows(cls, y: np.ndarray, cell: np.ndarray, k: int) -> "SortedCells":
         """From each row's value ``y`` and cell code ``cell`` (0 .. k − 1); ``y`` is not changed."""
-        counts = np.bincount(cell, minlength=k).astype(np.int64) if cell.size else np.zeros(k, np.int64)
-        order = np.argsort(cell.astype(_code_type(k), copy=False), kind="stable")
+        _, order, starts, ends = group_by_cell(np.asarray(cell), k)
         values = np.asarray(y, dtype=np.float64)[order]
-        ends = np.cumsum(counts)
-        return cls([values[e - m : e] for m, e in zip(counts.tolist(), ends.tolist())])
+        return cls([values[a:b] for a, b in zip(starts.tolist(), ends.tolist())])
 
     @classmethod
     def from_chunks(cls, chunks: Iterable[tuple[np.ndarray, np.ndarray]], counts: np.ndarray) -> "SortedCells":
@@ -132,7 +114,7 @@ class SortedCells:
         first = fill.copy()
         wanted = np.arange(k + 1)
         for cell, y in chunks:
-            codes = np.asarray(cell).astype(_code_type(k), copy=False)
+            codes = np.asarray(cell).astype(code_type(k), copy=False)
             order = np.argsort(codes, kind="stable")
             bounds = np.searchsorted(codes[order], wanted).tolist()  # each cell's run in the grouped chunk
             if bounds[k] != codes.size:
@@ -177,13 +159,9 @@ class SortedCells:
         """Per cell (n, mean, centred SS) of |x − centre_c|, by :func:`~reporter.intake.cells.segment_moments`."""
         centre = np.asarray(centre, dtype=np.float64)
         mean, ss = np.full(self.k, np.nan), np.full(self.k, np.nan)
-
-        def one(c: int) -> tuple[float, float]:
-            z = np.subtract(self.segment(c), centre[c])
-            return segment_moments(np.abs(z, out=z))
-
         for c in self.observed():  # one cell at a time: two scratch arrays of a cell's size
-            mean[c], ss[c] = one(c)
+            z = np.subtract(self.segment(c), centre[c])
+            mean[c], ss[c] = segment_moments(np.abs(z, out=z))
         return self.counts.copy(), mean, ss
 
     def cell_points(self, max_points: int) -> tuple[CellPoints, ...]:
@@ -236,22 +214,14 @@ class SortedCells:
         positions s+1 .. s+t gets rank s + (t + 1)/2) and Σ(t³ − t), exactly: twice each rank is
         an integer, summed in float64 within a slab (below 2^53) and in Python integers across
         slabs. The runs are merged one slab at a time (an argsort of the slab's k sorted parts)."""
-        labels_all = np.arange(self.k, dtype=_code_type(self.k))
-
-        def one(parts: list[np.ndarray], base: int) -> tuple[np.ndarray, int]:
-            sizes = np.array([p.size for p in parts], dtype=np.int64)
-            return slab_rank_sums(np.concatenate(parts), np.repeat(labels_all, sizes), base, self.k)
-
-        jobs, base = [], 0
+        labels_all = np.arange(self.k, dtype=code_type(self.k))
+        twice, tie, base = [0] * self.k, 0, 0
         for parts in self._slabs([self.segment(c) for c in range(self.k)]):
-            m = sum(p.size for p in parts)
-            if m:
-                jobs.append((parts, base))
-                base += m
-        twice, tie = [0] * self.k, 0
-        for got, t in _each(one, jobs):
+            sizes = np.array([p.size for p in parts], dtype=np.int64)
+            got, t = slab_rank_sums(np.concatenate(parts), np.repeat(labels_all, sizes), base, self.k)
             twice = [a + int(x) for a, x in zip(twice, got.tolist())]
             tie += t
+            base += int(sizes.sum())
         rank_sum = np.array([t / 2 for t in twice], dtype=np.float64)
         return RankSums(rank_sum=rank_sum, tie_term=float(tie), n=self.n)
 
@@ -286,7 +256,7 @@ class SortedCells:
                     jobs.append((parts, want[i:j] - base))
                     i = j
                 base += m
-            return dict(zip(((0, q) for q in want.tolist()), (v for got in _each(pick, jobs) for v in got)))
+            return dict(zip(((0, q) for q in want.tolist()), (v for job in jobs for v in pick(*job))))
 
         return type7_quantiles({0: n}, probs, order_stats)[0]
 
@@ -310,7 +280,3 @@ def first_true(size: int, test, count: int) -> np.ndarray:
         holds = np.asarray(test(np.minimum(mid, size - 1)), dtype=bool)
         lo = np.where(open_ & ~holds, mid + 1, lo)
         hi = np.where(open_ & holds, mid, hi)
-
-
-def _code_type(k: int):
-    return np.uint8 if k <= 255 else np.uint16 if k <= 65535 else np.int64
